@@ -1,0 +1,30 @@
+# Two commands: `make run` (the families study and its table) and `make test`.
+# Both create .venv when it is missing and install the CPU build of torch before the package,
+# so that no dependency pulls a CUDA build.
+PYTHON ?= python3
+VENV := .venv
+BIN := $(VENV)/bin
+STAMP := $(VENV)/.shiftbench-installed
+
+.PHONY: setup run test bench clean
+
+$(BIN)/python:
+	$(PYTHON) -m venv $(VENV)
+
+$(STAMP): pyproject.toml | $(BIN)/python
+	$(BIN)/python -m pip install --quiet --upgrade pip
+	$(BIN)/python -m pip install --quiet torch==2.13.0
+	$(BIN)/python -m pip install --quiet -e '.[dev]'
+	touch $(STAMP)
+
+setup: $(STAMP)
+
+run: setup
+	$(BIN)/shiftbench -m +experiment=families
+	$(BIN)/shiftbench-report results/families
+
+test: setup
+	$(BIN)/python -m pytest -q
+
+clean:
+	rm -rf $(VENV) results/runs results/multirun results/families
