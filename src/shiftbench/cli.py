@@ -1,0 +1,69 @@
+"""Command-line entry points: ``shiftbench`` (a Hydra app, one job per call, ``-m`` for sweeps)
+and ``shiftbench-report``. Wiring only: the work lives in :mod:`job` and :mod:`report`."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+import hydra
+from hydra.core.hydra_config import HydraConfig
+from hydra.types import RunMode
+from omegaconf import DictConfig, OmegaConf
+
+from shiftbench.config import ConfigError, check_group_choices
+from shiftbench.job import run_job
+from shiftbench.report import write_report
+
+# The config tree lives beside the source (``configs/`` at the project root), so the app finds
+# it from any working directory.
+CONFIG_DIR = Path(__file__).resolve().parents[2] / "configs"
+
+
+def fail(message: str) -> None:
+    """Print a user error as one line and exit with status 2."""
+    print(f"shiftbench: error: {message}", file=sys.stderr)
+    raise SystemExit(2)
+
+
+@hydra.main(version_base="1.3", config_path=str(CONFIG_DIR), config_name="config")
+def _job(config: DictConfig) -> str:
+    hydra_config = HydraConfig.get()
+    in_sweep = hydra_config.mode == RunMode.MULTIRUN
+    overrides = list(OmegaConf.to_container(hydra_config.overrides.task))  # type: ignore[arg-type]
+    try:
+        record = run_job(
+            config, Path(hydra_config.runtime.output_dir), overrides, live=sys.stdout.isatty() and not in_sweep
+        )
+    except ConfigError as error:
+        fail(str(error))
+    return record["status"]
+
+
+def main() -> None:
+    if not CONFIG_DIR.is_dir():
+        fail(f"config folder {CONFIG_DIR} not found; install shiftbench from its source tree (pip install -e .)")
+    try:
+        check_group_choices(sys.argv[1:], CONFIG_DIR)
+    except ConfigError as error:
+        fail(str(error))
+    _job()
+
+
+def report_main(arguments: list[str] | None = None) -> None:
+    parser = argparse.ArgumentParser(
+        prog="shiftbench-report", description="Tabulate the records found under one or more folders."
+    )
+    parser.add_argument("paths", nargs="+", type=Path, help="folders (searched recursively) or result.json files")
+    parser.add_argument("--out", type=Path, help="where to write summary.csv and summary.md (default: the first path)")
+    options = parser.parse_args(arguments)
+    missing = [str(path) for path in options.paths if not path.exists()]
+    if missing:
+        parser.exit(2, f"shiftbench-report: error: no such file or folder: {missing[0]}\n")
+    out = options.out or (options.paths[0] if options.paths[0].is_dir() else options.paths[0].parent)
+    try:
+        text = write_report(options.paths, out)
+    except ValueError as error:
+        parser.exit(2, f"shiftbench-report: error: {error}\n")
+    print(text)

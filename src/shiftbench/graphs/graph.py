@@ -1,0 +1,110 @@
+"""The graph: nodes and weighted directed edges, and its conversions.
+
+Convention (used everywhere in shiftbench): an edge ``j -> i`` with weight ``w`` puts ``w`` at
+``S[i, j]`` of the adjacency, so ``(S x)_i = sum_j S[i, j] x_j`` collects what flows into ``i``.
+``edge_index[0]`` holds sources and ``edge_index[1]`` targets, as in PyG.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import networkx as nx
+import numpy as np
+import scipy.sparse as sp
+import torch
+
+
+@dataclass(frozen=True)
+class Graph:
+    """A graph on ``nodes`` nodes.
+
+    Attributes:
+        nodes: number of nodes.
+        edge_index: ``(2, edges)`` int64, row 0 the source and row 1 the target of each edge.
+        edge_weight: ``(edges,)`` float32 weights.
+        positions: optional ``(nodes, dims)`` float coordinates (for plots and geometric sources).
+        name: the graph source that made it (``line``, ``knn``, ...).
+    """
+
+    nodes: int
+    edge_index: torch.Tensor
+    edge_weight: torch.Tensor
+    positions: torch.Tensor | None = None
+    name: str = "graph"
+
+    def __post_init__(self) -> None:
+        if self.edge_index.dim() != 2 or self.edge_index.shape[0] != 2:
+            raise ValueError(f"edge_index must have shape (2, edges), got {tuple(self.edge_index.shape)}")
+        if self.edge_weight.shape != (self.edge_index.shape[1],):
+            raise ValueError(
+                f"edge_weight must have shape ({self.edge_index.shape[1]},), "
+                f"got {tuple(self.edge_weight.shape)}"
+            )
+        if self.edge_index.numel() and (self.edge_index.min() < 0 or self.edge_index.max() >= self.nodes):
+            raise ValueError(f"edge_index holds node ids outside 0..{self.nodes - 1}")
+        if self.positions is not None and self.positions.shape[0] != self.nodes:
+            raise ValueError(f"positions must have {self.nodes} rows, got {self.positions.shape[0]}")
+
+    @property
+    def edges(self) -> int:
+        return int(self.edge_index.shape[1])
+
+    def adjacency(self) -> sp.csr_matrix:
+        """The ``(nodes, nodes)`` scipy CSR adjacency with ``A[target, source] = weight``.
+
+        Duplicate edges are summed.
+        """
+        source, target = self.edge_index.numpy()
+        matrix = sp.coo_matrix(
+            (self.edge_weight.double().numpy(), (target, source)), shape=(self.nodes, self.nodes)
+        )
+        return matrix.tocsr()
+
+    def is_symmetric(self) -> bool:
+        adjacency = self.adjacency()
+        return abs(adjacency - adjacency.T).max() == 0 if adjacency.nnz else True
+
+    def to_networkx(self) -> nx.DiGraph:
+        """A networkx DiGraph with edges ``source -> target`` carrying ``weight``."""
+        graph = nx.DiGraph()
+        graph.add_nodes_from(range(self.nodes))
+        source, target = self.edge_index.tolist()
+        graph.add_weighted_edges_from(zip(source, target, self.edge_weight.tolist()))
+        return graph
+
+    def to_torch_sparse(self) -> torch.Tensor:
+        """The adjacency as a ``(nodes, nodes)`` torch sparse COO tensor, ``A[target, source]``."""
+        indices = torch.stack([self.edge_index[1], self.edge_index[0]])
+        return torch.sparse_coo_tensor(indices, self.edge_weight, (self.nodes, self.nodes)).coalesce()
+
+    @classmethod
+    def from_adjacency(
+        cls, matrix: sp.spmatrix, name: str = "graph", positions: np.ndarray | None = None
+    ) -> Graph:
+        """A graph from a square scipy sparse matrix read as ``A[target, source] = weight``."""
+        if matrix.shape[0] != matrix.shape[1]:
+            raise ValueError(f"an adjacency must be square, got shape {matrix.shape}")
+        coo = sp.coo_matrix(matrix)
+        coo.sum_duplicates()
+        coo.eliminate_zeros()
+        edge_index = torch.from_numpy(np.stack([coo.col, coo.row]).astype(np.int64))
+        edge_weight = torch.from_numpy(coo.data.astype(np.float32))
+        return cls(
+            nodes=int(matrix.shape[0]),
+            edge_index=edge_index,
+            edge_weight=edge_weight,
+            positions=None if positions is None else torch.as_tensor(positions, dtype=torch.float32),
+            name=name,
+        )
+
+    @classmethod
+    def from_networkx(cls, graph: nx.Graph, name: str = "graph", weight: str = "weight") -> Graph:
+        """A graph from networkx; nodes are taken in ``graph.nodes`` order and relabelled 0..n-1.
+
+        An undirected networkx graph gives each edge in both directions.
+        """
+        order = list(graph.nodes)
+        matrix = nx.to_scipy_sparse_array(graph, nodelist=order, weight=weight, format="csr")
+        # networkx puts an edge u -> v at M[u, v]; our convention wants it at A[v, u].
+        return cls.from_adjacency(sp.csr_matrix(matrix).T, name=name)

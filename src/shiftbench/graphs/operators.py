@@ -1,0 +1,116 @@
+"""Shift operators: the matrix ``S`` whose powers a graph filter takes.
+
+With ``A`` the adjacency (``A[i, j]`` the weight of edge ``j -> i``) and ``D`` the diagonal of
+weighted in-degrees ``d_i = sum_j A[i, j]``:
+
+- ``adjacency``:             ``S = A``
+- ``laplacian``:             ``S = D - A``
+- ``normalized_adjacency``:  ``S = D^-1/2 A D^-1/2``      (``d_i = 0`` gives a zero row and column)
+- ``normalized_laplacian``:  ``S = I - D^-1/2 A D^-1/2``
+
+``scale: spectral`` divides ``S`` by its spectral radius ``max |lambda(S)|`` (left as is when the
+radius is zero, as for the nilpotent directed line graph); ``scale: none`` keeps it.
+"""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import scipy.sparse as sp
+import scipy.sparse.linalg as spla
+import torch
+
+from shiftbench.graphs.graph import Graph
+
+OPERATORS = ("adjacency", "laplacian", "normalized_adjacency", "normalized_laplacian")
+SCALES = ("spectral", "none")
+
+# Below this many nodes a dense eigensolver is exact and fast enough.
+DENSE_EIGEN_LIMIT = 1024
+# A radius below this counts as zero: the operator is (numerically) nilpotent.
+ZERO_RADIUS = 1e-9
+
+
+def operator_matrix(graph: Graph, operator: str) -> sp.csr_matrix:
+    """The unscaled ``(nodes, nodes)`` shift operator of ``graph`` as scipy CSR (float64)."""
+    adjacency = graph.adjacency()
+    if operator == "adjacency":
+        return adjacency
+    degree = np.asarray(adjacency.sum(axis=1)).ravel()
+    if operator == "laplacian":
+        return (sp.diags(degree) - adjacency).tocsr()
+    with np.errstate(divide="ignore"):
+        inverse_root = np.where(degree > 0, 1.0 / np.sqrt(np.abs(degree)), 0.0)
+    normalized = (sp.diags(inverse_root) @ adjacency @ sp.diags(inverse_root)).tocsr()
+    if operator == "normalized_adjacency":
+        return normalized
+    if operator == "normalized_laplacian":
+        return (sp.identity(graph.nodes, format="csr") - normalized).tocsr()
+    raise ValueError(f"unknown shift operator {operator!r}; accepted: {', '.join(OPERATORS)}")
+
+
+def spectral_radius(matrix: sp.spmatrix) -> float:
+    """``max |lambda|`` over the eigenvalues of a square sparse matrix.
+
+    Dense ``numpy.linalg.eigvals`` up to ``DENSE_EIGEN_LIMIT`` nodes, ARPACK above (``eigsh`` for
+    symmetric matrices, ``eigs`` otherwise). When ARPACK does not converge, as happens on
+    nilpotent matrices, Gelfand's formula ``||S^k||^(1/k)`` with ``k = 64`` gives the estimate.
+    """
+    nodes = matrix.shape[0]
+    if matrix.nnz == 0:
+        return 0.0
+    if nodes <= DENSE_EIGEN_LIMIT:
+        return float(np.abs(np.linalg.eigvals(matrix.toarray())).max())
+    symmetric = abs(matrix - matrix.T).max() < 1e-12
+    try:
+        if symmetric:
+            values = spla.eigsh(matrix, k=1, which="LM", return_eigenvectors=False)
+        else:
+            values = spla.eigs(matrix, k=1, which="LM", return_eigenvectors=False, maxiter=nodes * 10)
+        return float(np.abs(values).max())
+    except spla.ArpackNoConvergence:
+        return _gelfand_radius(matrix, power=64)
+
+
+def _gelfand_radius(matrix: sp.spmatrix, power: int) -> float:
+    """Estimate ``||S^k v||^(1/k)`` for a unit vector ``v`` of ones (a lower bound on the
+    induced norm ``||S^k||^(1/k)``, which tends to the spectral radius)."""
+    vector = np.ones(matrix.shape[0]) / np.sqrt(matrix.shape[0])
+    log_growth = 0.0
+    for _ in range(power):
+        vector = matrix @ vector
+        norm = np.linalg.norm(vector)
+        if norm == 0.0:
+            return 0.0
+        log_growth += np.log(norm)
+        vector /= norm
+    return float(np.exp(log_growth / power))
+
+
+def shift_operator(graph: Graph, operator: str = "adjacency", scale: str = "spectral") -> torch.Tensor:
+    """The shift operator as a ``(nodes, nodes)`` float32 torch sparse CSR tensor."""
+    if scale not in SCALES:
+        raise ValueError(f"unknown scale {scale!r}; accepted: {', '.join(SCALES)}")
+    matrix = operator_matrix(graph, operator)
+    if scale == "spectral":
+        radius = spectral_radius(matrix)
+        if radius > ZERO_RADIUS:
+            matrix = matrix / radius
+    return scipy_to_torch_csr(sp.csr_matrix(matrix))
+
+
+def scipy_to_torch_csr(matrix: sp.csr_matrix) -> torch.Tensor:
+    """A scipy CSR matrix as a float32 torch sparse CSR tensor of the same shape."""
+    matrix = sp.csr_matrix(matrix)
+    matrix.sort_indices()
+    with warnings.catch_warnings():
+        # torch flags CSR as beta on every construction; the products used here are stable.
+        warnings.simplefilter("ignore", UserWarning)
+        return torch.sparse_csr_tensor(
+            torch.from_numpy(matrix.indptr.astype(np.int64)),
+            torch.from_numpy(matrix.indices.astype(np.int64)),
+            torch.from_numpy(matrix.data.astype(np.float32)),
+            size=matrix.shape,
+            check_invariants=False,
+        )

@@ -1,0 +1,89 @@
+"""Graph sources: the ways shiftbench makes a graph on a dataset's nodes.
+
+Each builder returns a :class:`Graph`; :func:`build_graph` picks one from a graph config.
+networkx and scikit-learn do the graph theory; this module only adapts their output.
+"""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+import networkx as nx
+import numpy as np
+import scipy.sparse as sp
+from sklearn.neighbors import kneighbors_graph
+
+from shiftbench.graphs.graph import Graph
+
+if TYPE_CHECKING:
+    from shiftbench.config import GraphConfig
+    from shiftbench.data.dataset import Dataset
+
+
+def line_graph(nodes: int) -> Graph:
+    """The directed line graph ``0 -> 1 -> ... -> nodes-1``: its adjacency is a one-sample delay."""
+    return Graph.from_networkx(nx.path_graph(nodes, create_using=nx.DiGraph), name="line")
+
+
+def cycle_graph(nodes: int) -> Graph:
+    """The directed cycle ``0 -> 1 -> ... -> nodes-1 -> 0``: a circular one-sample delay."""
+    return Graph.from_networkx(nx.cycle_graph(nodes, create_using=nx.DiGraph), name="cycle")
+
+
+def path_graph(nodes: int) -> Graph:
+    """The undirected path on ``nodes`` nodes (each edge in both directions)."""
+    return Graph.from_networkx(nx.path_graph(nodes), name="path")
+
+
+def grid_graph(rows: int, cols: int) -> Graph:
+    """The undirected ``rows x cols`` 4-neighbour grid, nodes in raster order ``r * cols + c``."""
+    grid = nx.grid_2d_graph(rows, cols)
+    raster = sorted(grid.nodes)
+    matrix = nx.to_scipy_sparse_array(grid, nodelist=raster, format="csr")
+    positions = np.array([[c, r] for r, c in raster], dtype=np.float32)
+    return Graph.from_adjacency(sp.csr_matrix(matrix).T, name="grid", positions=positions)
+
+
+def knn_graph(positions: np.ndarray, neighbors: int) -> Graph:
+    """Each node linked to its ``neighbors`` nearest nodes, symmetrized (an edge either way
+    becomes an edge both ways), unit weights.
+
+    Args:
+        positions: ``(nodes, dims)`` coordinates.
+    """
+    directed = kneighbors_graph(positions, n_neighbors=neighbors, mode="connectivity")
+    symmetric = directed.maximum(directed.T)
+    return Graph.from_adjacency(symmetric, name="knn", positions=positions)
+
+
+def sbm_graph(nodes: int, blocks: int, p_in: float, p_out: float, seed: int) -> Graph:
+    """An undirected stochastic block model: ``blocks`` near-equal blocks of consecutive nodes,
+    edge probability ``p_in`` inside a block and ``p_out`` between blocks."""
+    sizes = [nodes // blocks + (1 if b < nodes % blocks else 0) for b in range(blocks)]
+    probabilities = [[p_in if a == b else p_out for b in range(blocks)] for a in range(blocks)]
+    model = nx.stochastic_block_model(sizes, probabilities, seed=seed)
+    return Graph.from_networkx(model, name="sbm")
+
+
+def build_graph(config: GraphConfig, dataset: Dataset) -> Graph:
+    """The graph that ``config.source`` names, on ``dataset``'s nodes."""
+    nodes = dataset.nodes
+    source = config.source
+    if source == "native":
+        return dataset.native_graph
+    if source == "line":
+        return line_graph(nodes)
+    if source == "cycle":
+        return cycle_graph(nodes)
+    if source == "path":
+        return path_graph(nodes)
+    if source == "grid":
+        return grid_graph(config.rows, config.cols)
+    if source == "knn":
+        positions = dataset.native_graph.positions
+        if positions is None:
+            raise ValueError(f"graph=knn needs node positions, and data={dataset.name} has none")
+        return knn_graph(positions.numpy(), config.neighbors)
+    if source == "sbm":
+        return sbm_graph(nodes, config.blocks, config.p_in, config.p_out, config.seed)
+    raise ValueError(f"unknown graph source {source!r}")

@@ -1,0 +1,136 @@
+"""One job: the data walk from a composed config to a written record.
+
+config -> dataset -> graph -> shift operator -> family -> training -> record. A user error in the
+config raises :class:`ConfigError` before any work; any failure after that becomes a record with
+``status: failed`` so that the other jobs of a sweep go on.
+"""
+
+from __future__ import annotations
+
+import resource
+import traceback
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Any
+
+import torch
+from omegaconf import DictConfig
+
+from shiftbench.config import ConfigError, RunConfig, as_plain_dict, validate
+from shiftbench.data import Dataset, load_dataset
+from shiftbench.graphs import build_graph, shift_operator
+from shiftbench.models import build_model, count_parameters
+from shiftbench.progress import EpochProgress
+from shiftbench.records import SCHEMA_VERSION, config_hash, versions, write_curve, write_record
+from shiftbench.training import seed_everything, train
+
+
+def check_device(device: str) -> None:
+    if device == "cuda" and not torch.cuda.is_available():
+        raise ConfigError("device='cuda' is not accepted: no CUDA device is available here; accepted: cpu")
+
+
+def check_compatible(run: RunConfig, dataset: Dataset) -> None:
+    """Cross-group checks that need the dataset's size."""
+    graph = run.graph
+    if run.arch.family != "graph_conv":
+        return
+    if graph.source == "grid" and graph.rows * graph.cols != dataset.nodes:
+        raise ConfigError(
+            f"graph.rows*graph.cols={graph.rows}*{graph.cols}={graph.rows * graph.cols} is not accepted; "
+            f"accepted: rows*cols equal to the data's {dataset.nodes} nodes"
+        )
+    if graph.source == "knn" and graph.neighbors >= dataset.nodes:
+        raise ConfigError(
+            f"graph.neighbors={graph.neighbors} is not accepted; accepted: fewer than the data's {dataset.nodes} nodes"
+        )
+
+
+def structure(run: RunConfig) -> tuple[str, str]:
+    """The graph and shift operator a family actually uses: ``graph_conv`` the configured ones,
+    ``line_conv`` the line graph's (or cycle's) delay, ``fc`` none."""
+    if run.arch.family == "graph_conv":
+        return run.graph.source, run.graph.operator
+    if run.arch.family == "line_conv":
+        return ("cycle" if run.arch.boundary == "circular" else "line"), "adjacency"
+    return "none", "none"
+
+
+def run_job(config: DictConfig, output_dir: Path, overrides: list[str], live: bool) -> dict[str, Any]:
+    """Validate ``config``, run the job, write ``result.json`` and ``curve.csv`` into ``output_dir``,
+    print one summary line, and return the record."""
+    run = validate(config)
+    check_device(run.device)
+    plain = as_plain_dict(run)
+    graph_name, operator = structure(run)
+    record: dict[str, Any] = {
+        "schema_version": SCHEMA_VERSION,
+        "status": "failed",
+        "error": None,
+        "config": plain,
+        "overrides": overrides,
+        "config_hash": config_hash(plain),
+        "family": run.arch.family,
+        "graph": graph_name,
+        "operator": operator,
+        "data": run.data.name,
+        "nodes": None,
+        "order": getattr(run.arch, "order", None),
+        "seed": run.seed,
+        "parameters": None,
+        "started": datetime.now(timezone.utc).isoformat(timespec="seconds"),
+    }
+    curve: list[dict[str, float]] = []
+    try:
+        dataset = load_dataset(run.data)
+        check_compatible(run, dataset)
+        record["nodes"] = dataset.nodes
+        shift = None
+        if run.arch.family == "graph_conv":
+            graph = build_graph(run.graph, dataset)
+            shift = shift_operator(graph, run.graph.operator, run.graph.scale)
+        seed_everything(run.seed)
+        model = build_model(run.arch, dataset.nodes, dataset.features, dataset.classes, shift)
+        record["parameters"] = count_parameters(model)
+        progress = EpochProgress(run.train.epochs, live)
+        try:
+            result = train(model, dataset, run.train, run.seed, run.device, on_epoch=progress)
+        finally:
+            progress.close()
+        curve = result.curve
+        record.update(
+            status="completed",
+            train_accuracy=result.train_accuracy,
+            val_accuracy=result.val_accuracy,
+            test_accuracy=result.test_accuracy,
+            test_loss=result.test_loss,
+            best_epoch=result.best_epoch,
+            epochs_run=result.epochs_run,
+            train_seconds=result.train_seconds,
+            samples_per_second=result.samples_per_second,
+        )
+    except ConfigError:
+        raise
+    except Exception as error:  # a failed job is recorded, never lost, and the sweep goes on
+        record["error"] = f"{type(error).__name__}: {error}"
+        record["traceback"] = traceback.format_exc()
+    record["peak_rss_mb"] = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    record["versions"] = versions()
+    record["finished"] = datetime.now(timezone.utc).isoformat(timespec="seconds")
+    write_curve(output_dir, curve)
+    write_record(output_dir, record)
+    print(summary_line(record), flush=True)
+    return record
+
+
+def summary_line(record: dict[str, Any]) -> str:
+    """One line per job: family, graph, order, parameters, test accuracy (or the failure)."""
+    order = "-" if record["order"] is None else record["order"]
+    head = f"{record['family']} on graph {record['graph']}, order {order}"
+    if record["status"] != "completed":
+        return f"{head}: FAILED: {record['error']}"
+    return (
+        f"{head}: {record['parameters']:,} parameters, test accuracy {record['test_accuracy']:.3f} "
+        f"(best epoch {record['best_epoch']} of {record['epochs_run']}, {record['train_seconds']:.1f} s)"
+    )
+

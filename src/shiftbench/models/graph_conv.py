@@ -1,0 +1,39 @@
+"""The arbitrary-graph convolution family (GNN of polynomial graph filters)."""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+import torch
+
+from shiftbench.models.graph_filter import GraphFilter
+from shiftbench.models.readouts import Readout
+from shiftbench.models.stack import FilterStack, widths
+
+
+class GraphConv(FilterStack):
+    """A stack of graph-filter layers ``X_{l+1} = sigma(sum_k S^k X_l H_{l,k} + b_l)`` (widths
+    ``channels``), then a readout. Parameters per layer: ``(K + 1) * in * out + out``,
+    independent of ``nodes``.
+
+    Args:
+        shift: ``(nodes, nodes)`` sparse shift operator ``S``, shared by every layer.
+
+    Shapes:
+        input ``(batch, nodes, features)`` -> logits ``(batch, classes)``.
+    """
+
+    def __init__(
+        self,
+        shift: torch.Tensor,
+        features: int,
+        channels: Sequence[int],
+        classes: int,
+        order: int,
+        nonlinearity: str = "relu",
+        readout: str = "mean",
+        dropout: float = 0.0,
+    ) -> None:
+        nodes = shift.shape[0]
+        layers = [GraphFilter(shift, i, o, order) for i, o in widths(features, channels)]
+        super().__init__(layers, Readout(readout, nodes, channels[-1], classes), nonlinearity, dropout)

@@ -1,0 +1,36 @@
+"""Readouts: from node features to class logits."""
+
+from __future__ import annotations
+
+import torch
+from torch import nn
+
+READOUTS = ("mean", "max", "flatten")
+
+
+class Readout(nn.Module):
+    """Map ``(batch, nodes, channels)`` to logits ``(batch, classes)``.
+
+    - ``mean``:    ``logits = W mean_n(x_n) + b``   (size independent of ``nodes``)
+    - ``max``:     ``logits = W max_n(x_n) + b``    (size independent of ``nodes``)
+    - ``flatten``: ``logits = W vec(x) + b``        (``W`` has ``nodes * channels`` columns)
+
+    Pooling readouts are invariant to relabelling the nodes; ``flatten`` is not.
+    """
+
+    def __init__(self, kind: str, nodes: int, channels: int, classes: int) -> None:
+        super().__init__()
+        if kind not in READOUTS:
+            raise ValueError(f"unknown readout {kind!r}; accepted: {', '.join(READOUTS)}")
+        self.kind = kind
+        width = nodes * channels if kind == "flatten" else channels
+        self.linear = nn.Linear(width, classes)
+
+    def forward(self, x: torch.Tensor) -> torch.Tensor:
+        if self.kind == "mean":
+            pooled = x.mean(dim=1)
+        elif self.kind == "max":
+            pooled = x.amax(dim=1)
+        else:
+            pooled = x.flatten(start_dim=1)
+        return self.linear(pooled)

@@ -1,0 +1,50 @@
+"""The shape every convolutional family shares: filter layers, each followed by a pointwise
+nonlinearity, then a readout."""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+import torch
+from torch import nn
+
+from shiftbench.models.nonlinearities import nonlinearity as make_nonlinearity
+from shiftbench.models.readouts import Readout
+
+
+class FilterStack(nn.Module):
+    """``x_{l+1} = dropout(sigma(F_l(x_l)))`` for each filter layer ``F_l``, then the readout.
+
+    Args:
+        layers: modules mapping ``(batch, nodes, c_l)`` to ``(batch, nodes, c_{l+1})``.
+        readout: maps ``(batch, nodes, c_L)`` to ``(batch, classes)``.
+        nonlinearity: name of ``sigma`` (``relu``, ``tanh``, ``leaky_relu``).
+        dropout: probability of zeroing an activation during training.
+
+    Shapes:
+        input ``(batch, nodes, features)`` -> logits ``(batch, classes)``.
+    """
+
+    def __init__(
+        self, layers: Sequence[nn.Module], readout: Readout, nonlinearity: str, dropout: float
+    ) -> None:
+        super().__init__()
+        self.layers = nn.ModuleList(layers)
+        self.activation = make_nonlinearity(nonlinearity)
+        self.dropout = nn.Dropout(dropout)
+        self.readout = readout
+
+    def features(self, x: torch.Tensor) -> torch.Tensor:
+        """The node features before the readout: ``(batch, nodes, c_L)``."""
+        for layer in self.layers:
+            x = self.dropout(self.activation(layer(x)))
+        return x
+
+    def forward(self, x: torch.Tensor) -> torch.Tensor:
+        return self.readout(self.features(x))
+
+
+def widths(features: int, channels: Sequence[int]) -> list[tuple[int, int]]:
+    """``(in, out)`` widths of each layer of a stack fed ``features`` and sized by ``channels``."""
+    sizes = [features, *channels]
+    return list(zip(sizes[:-1], sizes[1:]))

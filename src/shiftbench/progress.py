@@ -1,0 +1,36 @@
+"""Progress display for one training run: a live line on a terminal, plain lines elsewhere."""
+
+from __future__ import annotations
+
+import sys
+from typing import TextIO
+
+# In plain-line mode (logs, sweeps) one line per this many epochs keeps logs readable.
+LOG_EVERY = 10
+
+
+class EpochProgress:
+    """Called with each epoch's curve row; ``live`` rewrites one terminal line in place."""
+
+    def __init__(self, epochs: int, live: bool, stream: TextIO = sys.stdout) -> None:
+        self.epochs = epochs
+        self.live = live
+        self.stream = stream
+
+    def __call__(self, row: dict[str, float]) -> None:
+        epoch = int(row["epoch"])
+        line = (
+            f"epoch {epoch:>4}/{self.epochs}  train loss {row['train_loss']:.4f}  "
+            f"val accuracy {row['val_accuracy']:.3f}"
+        )
+        if self.live:
+            self.stream.write("\r" + line)
+            self.stream.flush()
+        elif epoch == 1 or epoch % LOG_EVERY == 0:
+            self.stream.write(line + "\n")
+            self.stream.flush()
+
+    def close(self) -> None:
+        if self.live:
+            self.stream.write("\n")
+            self.stream.flush()

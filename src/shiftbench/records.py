@@ -1,0 +1,115 @@
+"""Records: the JSON each job writes, written atomically, and loaded back as a DataFrame."""
+
+from __future__ import annotations
+
+import hashlib
+import io
+import json
+import os
+import platform
+import subprocess
+import tempfile
+import warnings
+from collections.abc import Iterable
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+import torch
+
+import shiftbench
+
+SCHEMA_VERSION = 1
+RECORD_FILE = "result.json"
+CURVE_FILE = "curve.csv"
+# Keys of the config that say where output goes, not what was computed.
+OUTPUT_KEYS = ("results_dir",)
+
+
+def write_atomic(path: Path, text: str) -> Path:
+    """Write ``text`` to ``path`` so that a reader sees the old file or the whole new one:
+    write a temporary file in the same folder, flush it to disk, then rename it over ``path``."""
+    path.parent.mkdir(parents=True, exist_ok=True)
+    handle, temporary = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
+    try:
+        with os.fdopen(handle, "w", encoding="utf-8") as stream:
+            stream.write(text)
+            stream.flush()
+            os.fsync(stream.fileno())
+        os.replace(temporary, path)
+    except BaseException:
+        Path(temporary).unlink(missing_ok=True)
+        raise
+    return path
+
+
+def write_record(folder: Path, record: dict[str, Any]) -> Path:
+    return write_atomic(folder / RECORD_FILE, json.dumps(record, indent=2, sort_keys=False) + "\n")
+
+
+def write_curve(folder: Path, curve: list[dict[str, float]]) -> Path:
+    buffer = io.StringIO()
+    pd.DataFrame(curve, columns=["epoch", "train_loss", "train_accuracy", "val_loss", "val_accuracy", "seconds"]).to_csv(
+        buffer, index=False
+    )
+    return write_atomic(folder / CURVE_FILE, buffer.getvalue())
+
+
+def config_hash(config: dict[str, Any]) -> str:
+    """A stable hash of what a job computes: its resolved config minus output locations."""
+    content = {key: value for key, value in config.items() if key not in OUTPUT_KEYS}
+    return hashlib.sha256(json.dumps(content, sort_keys=True).encode()).hexdigest()[:16]
+
+
+def versions() -> dict[str, str | None]:
+    """Versions of python, torch and shiftbench, and the git commit of the source when known."""
+    try:
+        commit = subprocess.run(
+            ["git", "rev-parse", "HEAD"],
+            cwd=Path(shiftbench.__file__).parent,
+            capture_output=True,
+            text=True,
+            timeout=5,
+            check=True,
+        ).stdout.strip()
+    except (OSError, subprocess.SubprocessError):
+        commit = None
+    return {
+        "python": platform.python_version(),
+        "torch": torch.__version__,
+        "shiftbench": shiftbench.__version__,
+        "git_commit": commit,
+    }
+
+
+def find_records(paths: Iterable[Path]) -> list[Path]:
+    """Every record file under ``paths`` (a path may also be a record file itself), sorted."""
+    found: set[Path] = set()
+    for path in paths:
+        if path.is_file():
+            found.add(path)
+        else:
+            found.update(path.rglob(RECORD_FILE))
+    return sorted(found)
+
+
+def load_records(paths: Iterable[Path]) -> pd.DataFrame:
+    """One row per record under ``paths``, with every record field as a column and ``path``
+    (the record's folder). Files that cannot be read are skipped with a warning and listed in
+    ``frame.attrs["skipped"]``."""
+    rows, skipped = [], []
+    for path in find_records(paths):
+        try:
+            record = json.loads(path.read_text(encoding="utf-8"))
+        except (OSError, ValueError) as error:
+            skipped.append(f"{path}: {error}")
+            continue
+        if not isinstance(record, dict) or record.get("schema_version") != SCHEMA_VERSION:
+            skipped.append(f"{path}: not a shiftbench record of schema version {SCHEMA_VERSION}")
+            continue
+        rows.append({**record, "path": str(path.parent)})
+    for problem in skipped:
+        warnings.warn(f"skipped {problem}", stacklevel=2)
+    frame = pd.DataFrame(rows)
+    frame.attrs["skipped"] = skipped
+    return frame
