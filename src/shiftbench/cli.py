@@ -12,8 +12,9 @@ from hydra.core.hydra_config import HydraConfig
 from hydra.types import RunMode
 from omegaconf import DictConfig, OmegaConf
 
-from shiftbench.config import ConfigError, check_group_choices
+from shiftbench.config import ConfigError
 from shiftbench.job import run_job
+from shiftbench.preflight import preflight
 from shiftbench.report import write_report
 
 # The config tree lives beside the source (``configs/`` at the project root), so the app finds
@@ -45,7 +46,7 @@ def main() -> None:
     if not CONFIG_DIR.is_dir():
         fail(f"config folder {CONFIG_DIR} not found; install shiftbench from its source tree (pip install -e .)")
     try:
-        check_group_choices(sys.argv[1:], CONFIG_DIR)
+        preflight(sys.argv[1:], CONFIG_DIR)
     except ConfigError as error:
         fail(str(error))
     _job()

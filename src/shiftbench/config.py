@@ -10,7 +10,6 @@ message is one line naming the key, the value and what is accepted.
 from __future__ import annotations
 
 import typing
-from pathlib import Path
 from dataclasses import asdict, dataclass, field, fields
 from typing import Any
 
@@ -285,7 +284,8 @@ def _validate_group(group: str, node: Any) -> Any:
         merged = OmegaConf.merge(OmegaConf.structured(schema), node)
     except ConfigKeyError as error:
         accepted = ", ".join(f.name for f in fields(schema))
-        raise ConfigError(f"unknown key {group}.{error.key}; accepted keys of {group}: {accepted}") from None
+        which = f" ({group} {discriminator} {choice})" if discriminator else ""
+        raise ConfigError(f"unknown key {group}.{error.key}{which}; accepted keys: {accepted}") from None
     except OmegaConfBaseException as error:
         key = str(error.full_key or error.key)
         wanted = _type_name(typing.get_type_hints(schema).get(key.split("[")[0]))
@@ -313,20 +313,3 @@ def as_plain_dict(run: RunConfig) -> dict[str, Any]:
     """The validated config as plain JSON-ready data."""
     return asdict(run)
 
-
-def check_group_choices(arguments: list[str], config_dir: Path) -> None:
-    """Reject a command-line choice of a config group option that does not exist (``arch=cnn``),
-    before Hydra composes anything. Sweep lists (``arch=fc,cnn``) are checked item by item;
-    sweep functions such as ``choice(...)`` are left to Hydra."""
-    for argument in arguments:
-        if argument.startswith("-") or "=" not in argument:
-            continue
-        key, value = argument.split("=", 1)
-        group = key.lstrip("+~")
-        folder = config_dir / group
-        if "/" in group or "(" in value or not folder.is_dir():
-            continue
-        options = sorted(path.stem for path in folder.glob("*.yaml"))
-        for choice in (item.strip() for item in value.split(",")):
-            if choice not in options:
-                raise ConfigError(f"{group}={choice!r} is not accepted; accepted: one of {', '.join(options)}")

@@ -1,0 +1,125 @@
+"""Check a whole command line before Hydra launches any job.
+
+Every value of every sweep axis (given on the command line or by a study's
+``hydra.sweeper.params``) is composed and validated once, varying one axis at a time from the
+first value of each, so a typo anywhere in a sweep stops it before the first job trains. Hydra's
+own composition errors are turned into the same one-line messages as the schema's.
+"""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+from hydra import compose, initialize_config_dir
+from hydra.core.override_parser.overrides_parser import OverridesParser
+from hydra.errors import HydraException, MissingConfigException
+from omegaconf import DictConfig, OmegaConf
+
+from shiftbench.config import ConfigError, validate
+
+# Hydra flags that take the next argument as their value.
+FLAGS_WITH_VALUE = {"-cd", "--config-dir", "-cn", "--config-name", "-cp", "--config-path", "-c", "--cfg", "-p", "--package"}
+# Flags after which Hydra prints information and runs nothing.
+INFORMATION_FLAGS = {"-h", "--help", "--hydra-help", "-i", "--info", "--version", "--shell-completion", "-sc"}
+
+
+def override_arguments(arguments: list[str]) -> list[str] | None:
+    """The override arguments of a command line, or None when it only asks for information."""
+    overrides, skip_next = [], False
+    for argument in arguments:
+        if skip_next:
+            skip_next = False
+        elif argument in INFORMATION_FLAGS:
+            return None
+        elif argument in FLAGS_WITH_VALUE:
+            skip_next = True
+        elif not argument.startswith("-"):
+            overrides.append(argument)
+    return overrides
+
+
+def _line(key: str, value: str) -> str:
+    return f"{key}={value}"
+
+
+def preflight(arguments: list[str], config_dir: Path) -> int:
+    """Validate every job a command line would launch; return how many configs were checked.
+
+    Raises:
+        ConfigError: one line naming the bad key, its value and what is accepted.
+    """
+    overrides = override_arguments(arguments)
+    if overrides is None:
+        return 0
+    try:
+        parsed = OverridesParser.create().parse_overrides(overrides)
+    except HydraException as error:
+        raise ConfigError(_one_line(str(error))) from None
+    axes: dict[str, list[str]] = {}
+    fixed: list[str] = []
+    for override in parsed:
+        key = override.get_key_element()
+        if override.is_sweep_override():
+            axes[key] = [_line(key, value) for value in override.sweep_string_iterator()]
+        else:
+            fixed.append(override.input_line)
+
+    with initialize_config_dir(str(config_dir), version_base="1.3", job_name="shiftbench"):
+        base = fixed + [values[0] for values in axes.values()]
+        config = _compose(base)
+        study_axes = config.hydra.sweeper.get("params") or {}
+        given = {key.lstrip("+~") for key in axes} | {line.split("=", 1)[0].lstrip("+~") for line in fixed}
+        for key, values in study_axes.items():
+            if key.lstrip("+~") not in given:
+                (override,) = OverridesParser.create().parse_overrides([_line(key, str(values))])
+                axes[key] = [_line(key, value) for value in override.sweep_string_iterator()]
+        base = fixed + [values[0] for values in axes.values()]
+        checked = 0
+        _validate(_compose(base))
+        for position, values in enumerate(axes.values()):
+            for value in values[1:]:
+                variant = list(base)
+                variant[len(fixed) + position] = value
+                _validate(_compose(variant))
+                checked += 1
+    return checked + 1
+
+
+def _compose(overrides: list[str]) -> DictConfig:
+    try:
+        return compose("config", overrides=overrides, return_hydra_config=True)
+    except MissingConfigException as error:
+        missing = (error.missing_cfg_file or "").rsplit("/", 1)
+        if len(missing) == 2 and error.options:
+            raise ConfigError(
+                f"{missing[0]}={missing[1]!r} is not accepted; accepted: one of {', '.join(error.options)}"
+            ) from None
+        raise ConfigError(_one_line(str(error))) from None
+    except HydraException as error:
+        added = _added_key_retry(overrides, error)
+        if added is not None:
+            _validate(added)
+        raise ConfigError(_one_line(str(error))) from None
+
+
+def _added_key_retry(overrides: list[str], error: HydraException) -> DictConfig | None:
+    """Hydra refuses ``key=value`` for a key the config lacks; compose it as ``+key=value`` so the
+    schema can name the unknown key and the accepted ones."""
+    refused = re.search(r"Could not override '([^']+)'", str(error))
+    if refused is None or "is not in struct" not in str(error.__cause__):
+        return None
+    retried = ["+" + line if line.split("=", 1)[0] == refused.group(1) else line for line in overrides]
+    try:
+        return compose("config", overrides=retried, return_hydra_config=True)
+    except HydraException:
+        return None
+
+
+def _validate(config: DictConfig) -> None:
+    job = OmegaConf.masked_copy(config, [key for key in config.keys() if key != "hydra"])
+    validate(job)
+
+
+def _one_line(message: str) -> str:
+    return "; ".join(line.strip() for line in message.splitlines() if line.strip())
