@@ -76,7 +76,9 @@ class Graph:
     def to_torch_sparse(self) -> torch.Tensor:
         """The adjacency as a ``(nodes, nodes)`` torch sparse COO tensor, ``A[target, source]``."""
         indices = torch.stack([self.edge_index[1], self.edge_index[0]])
-        return torch.sparse_coo_tensor(indices, self.edge_weight, (self.nodes, self.nodes)).coalesce()
+        return torch.sparse_coo_tensor(
+            indices, self.edge_weight, (self.nodes, self.nodes), check_invariants=True
+        ).coalesce()
 
     @classmethod
     def from_adjacency(

@@ -1,0 +1,68 @@
+"""A graph filter on the directed line graph (cycle) is a causal (circular) Conv1d.
+
+Source: PyTorch's torch.nn.Conv1d documentation: Conv1d computes a cross-correlation,
+``out[o, n] = b[o] + sum_i sum_j W[o, i, j] x[i, n + j]``, so a causal filter with taps
+``H_k`` (applied to ``x_{n-k}``) has weight ``W[o, i, j] = H_{K-j}[i, o]``.
+"""
+
+import numpy as np
+import torch
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from shiftbench.graphs.operators import shift_operator
+from shiftbench.graphs.sources import cycle_graph, line_graph
+from shiftbench.models.graph_filter import GraphFilter
+
+shapes = st.tuples(
+    st.integers(1, 8),  # in channels
+    st.integers(1, 8),  # out channels
+    st.integers(0, 6),  # order
+    st.integers(1, 50),  # nodes
+    st.integers(1, 4),  # batch
+    st.integers(0, 2**31 - 1),  # seed
+)
+
+
+def conv1d_with_mapped_taps(layer: GraphFilter) -> torch.nn.Conv1d:
+    conv = torch.nn.Conv1d(layer.in_channels, layer.out_channels, kernel_size=layer.order + 1)
+    with torch.no_grad():
+        # taps (K+1, in, out) -> weight (out, in, K+1) with the tap axis reversed.
+        conv.weight.copy_(layer.taps.flip(0).permute(2, 1, 0))
+        conv.bias.copy_(layer.bias)
+    return conv
+
+
+@settings(max_examples=60, deadline=None)
+@given(shapes)
+def test_graph_filter_on_the_line_graph_equals_causal_conv1d(shape):
+    in_channels, out_channels, order, nodes, batch, seed = shape
+    torch.manual_seed(seed)
+    layer = GraphFilter(shift_operator(line_graph(nodes), "adjacency", "none"), in_channels, out_channels, order)
+    x = torch.randn(batch, nodes, in_channels)
+    reference = conv1d_with_mapped_taps(layer)(torch.nn.functional.pad(x.transpose(1, 2), (order, 0)))
+    torch.testing.assert_close(layer(x), reference.transpose(1, 2), atol=1e-5, rtol=1e-5)
+
+
+@settings(max_examples=60, deadline=None)
+@given(shapes)
+def test_graph_filter_on_the_directed_cycle_equals_circular_causal_conv1d(shape):
+    in_channels, out_channels, order, nodes, batch, seed = shape
+    torch.manual_seed(seed)
+    layer = GraphFilter(shift_operator(cycle_graph(nodes), "adjacency", "none"), in_channels, out_channels, order)
+    x = torch.randn(batch, nodes, in_channels)
+    # numpy's "wrap" padding repeats the signal periodically, also for pads longer than it.
+    wrapped = torch.from_numpy(np.pad(x.transpose(1, 2).numpy(), ((0, 0), (0, 0), (order, 0)), mode="wrap"))
+    reference = conv1d_with_mapped_taps(layer)(wrapped)
+    torch.testing.assert_close(layer(x), reference.transpose(1, 2), atol=1e-5, rtol=1e-5)
+
+
+def test_line_conv_family_layer_equals_graph_filter_on_the_line_graph():
+    from shiftbench.models.line_conv import CausalConv1d
+
+    torch.manual_seed(0)
+    layer = GraphFilter(shift_operator(line_graph(20), "adjacency", "none"), 3, 5, 4)
+    causal = CausalConv1d(3, 5, 4, boundary="zero")
+    causal.conv.load_state_dict(conv1d_with_mapped_taps(layer).state_dict())
+    x = torch.randn(2, 20, 3)
+    torch.testing.assert_close(causal(x), layer(x), atol=1e-5, rtol=1e-5)

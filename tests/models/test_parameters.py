@@ -1,0 +1,47 @@
+"""Parameter counts against torch's own count and the layer formulas of the torch docs.
+
+Source: torch.nn.Linear documentation (weight ``(out, in)``, bias ``(out,)``) and torch.nn.Conv1d
+documentation (weight ``(out, in, kernel_size)``, bias ``(out,)``).
+"""
+
+import numpy as np
+import pytest
+
+from shiftbench.graphs.operators import shift_operator
+from shiftbench.graphs.sources import knn_graph
+from shiftbench.models import FullyConnected, GraphConv, LineConv, count_parameters
+
+
+def test_fc_count_follows_the_linear_formula():
+    model = FullyConnected(nodes=50, features=2, hidden=[32, 16], classes=4)
+    expected = (100 * 32 + 32) + (32 * 16 + 16) + (16 * 4 + 4)
+    assert count_parameters(model) == expected == sum(p.numel() for p in model.parameters())
+
+
+@pytest.mark.parametrize("readout", ["mean", "flatten"])
+def test_line_conv_count_follows_the_conv1d_formula(readout):
+    model = LineConv(nodes=40, features=3, channels=[8, 5], classes=6, order=4, readout=readout)
+    convolutions = (5 * 3 * 8 + 8) + (5 * 8 * 5 + 5)
+    readout_width = 40 * 5 if readout == "flatten" else 5
+    assert count_parameters(model) == convolutions + readout_width * 6 + 6
+
+
+def test_graph_conv_layer_has_taps_times_in_times_out_plus_out():
+    shift = shift_operator(knn_graph(np.random.default_rng(0).random((30, 2)), 4))
+    model = GraphConv(shift, features=3, channels=[8, 5], classes=6, order=4)
+    layers = (5 * 3 * 8 + 8) + (5 * 8 * 5 + 5)
+    assert count_parameters(model) == layers + 5 * 6 + 6
+
+
+def test_convolutional_counts_do_not_grow_with_nodes_while_fc_does():
+    def counts(nodes):
+        shift = shift_operator(knn_graph(np.random.default_rng(0).random((nodes, 2)), 4))
+        return (
+            count_parameters(FullyConnected(nodes, 1, [16], 4)),
+            count_parameters(LineConv(nodes, 1, [16], 4, order=3)),
+            count_parameters(GraphConv(shift, 1, [16], 4, order=3)),
+        )
+
+    small, large = counts(20), counts(200)
+    assert large[0] - small[0] == 180 * 16
+    assert large[1:] == small[1:]
