@@ -1,0 +1,75 @@
+"""One job end to end: the record it writes, determinism, and failures kept as records."""
+
+import json
+
+import pandas as pd
+import pytest
+
+import shiftbench.job
+from shiftbench.config import ConfigError
+from shiftbench.job import run_job
+from shiftbench.records import CURVE_FILE, RECORD_FILE
+
+DESIGN_FIELDS = {
+    "status", "error", "config", "overrides", "config_hash", "family", "graph", "operator", "data",
+    "nodes", "order", "seed", "parameters", "train_accuracy", "val_accuracy", "test_accuracy",
+    "test_loss", "best_epoch", "epochs_run", "train_seconds", "samples_per_second", "peak_rss_mb",
+    "versions", "started", "finished", "schema_version",
+}
+FIGURES = ["train_accuracy", "val_accuracy", "test_accuracy", "test_loss", "best_epoch", "epochs_run", "parameters"]
+
+
+def test_record_holds_every_design_field_and_the_curve_matches(small_config, tmp_path):
+    record = run_job(small_config("arch=graph_conv"), tmp_path, ["arch=graph_conv"], live=False)
+    written = json.loads((tmp_path / RECORD_FILE).read_text())
+    assert DESIGN_FIELDS <= set(written)
+    assert written["status"] == "completed" and written == record
+    curve = pd.read_csv(tmp_path / CURVE_FILE)
+    assert len(curve) == written["epochs_run"]
+    assert curve["val_accuracy"].iloc[written["best_epoch"] - 1] == pytest.approx(written["val_accuracy"])
+
+
+@pytest.mark.parametrize("family", ["fc", "line_conv", "graph_conv"])
+def test_same_config_and_seed_give_identical_figures(small_config, tmp_path, family):
+    first = run_job(small_config(f"arch={family}", "seed=5"), tmp_path / "a", [], live=False)
+    second = run_job(small_config(f"arch={family}", "seed=5"), tmp_path / "b", [], live=False)
+    assert [first[key] for key in FIGURES] == [second[key] for key in FIGURES]
+    assert first["config_hash"] == second["config_hash"]
+
+
+def test_another_seed_gives_other_figures(small_config, tmp_path):
+    first = run_job(small_config("seed=0"), tmp_path / "a", [], live=False)
+    second = run_job(small_config("seed=1"), tmp_path / "b", [], live=False)
+    assert first["test_loss"] != second["test_loss"]
+
+
+def test_a_job_that_fails_in_training_writes_a_failed_record(small_config, tmp_path, monkeypatch):
+    def explode(*args, **kwargs):
+        raise RuntimeError("simulated failure")
+
+    monkeypatch.setattr(shiftbench.job, "train", explode)
+    record = run_job(small_config(), tmp_path, [], live=False)
+    written = json.loads((tmp_path / RECORD_FILE).read_text())
+    assert record["status"] == written["status"] == "failed"
+    assert written["error"] == "RuntimeError: simulated failure"
+
+
+def test_a_nan_loss_fails_the_job_with_the_reason(small_config, tmp_path):
+    record = run_job(small_config("train.lr=1e30", "train.optimizer=sgd"), tmp_path, [], live=False)
+    assert record["status"] == "failed"
+    assert "TrainingDiverged" in record["error"]
+
+
+def test_a_config_error_writes_nothing(small_config, tmp_path):
+    with pytest.raises(ConfigError, match="graph.rows"):
+        run_job(small_config("graph=grid", "graph.rows=5"), tmp_path / "job", [], live=False)
+    assert not (tmp_path / "job").exists()
+
+
+def test_records_say_which_structure_each_family_used(small_config, tmp_path):
+    fc = run_job(small_config("arch=fc"), tmp_path / "fc", [], live=False)
+    line = run_job(small_config("arch=line_conv", "arch.boundary=circular"), tmp_path / "lc", [], live=False)
+    graph = run_job(small_config("graph=sbm", "graph.operator=laplacian"), tmp_path / "gc", [], live=False)
+    assert (fc["graph"], fc["order"]) == ("none", None)
+    assert line["graph"] == "cycle"
+    assert (graph["graph"], graph["operator"]) == ("sbm", "laplacian")

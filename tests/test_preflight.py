@@ -1,0 +1,60 @@
+"""Bad command lines stop before any work with one line naming the key, the value and what is
+accepted; good ones pass."""
+
+import pytest
+
+from shiftbench.config import ConfigError
+from shiftbench.preflight import preflight
+from tests.conftest import CONFIG_DIR
+
+
+@pytest.mark.parametrize(
+    ("arguments", "named"),
+    [
+        (["arch.order=abc"], "arch.order='abc'"),
+        (["+arch.foo=1"], "arch.foo"),
+        (["arch.foo=1"], "arch.foo"),
+        (["+foo=1"], "foo"),
+        (["arch=cnn"], "arch='cnn'"),
+        (["graph=ring"], "graph='ring'"),
+        (["arch.order=-1"], "arch.order=-1"),
+        (["train.epochs=0"], "train.epochs=0"),
+        (["train.lr=0"], "train.lr=0.0"),
+        (["train.lr=-1e-3"], "train.lr=-0.001"),
+        (["data.nodes=1"], "data.nodes=1"),
+        (["train.optimizer=lbfgs"], "train.optimizer='lbfgs'"),
+        (["graph.operator=lap"], "graph.operator='lap'"),
+        (["-m", "arch=fc,cnn"], "arch='cnn'"),
+        (["-m", "arch.order=1,2,-3"], "arch.order=-3"),
+        (["-m", "+experiment=families", "seed=0,-1"], "seed=-1"),
+        (["-m", "+experiment=nope"], "experiment='nope'"),
+    ],
+)
+def test_bad_command_line_is_one_line_naming_key_and_value(arguments, named):
+    with pytest.raises(ConfigError) as caught:
+        preflight(arguments, CONFIG_DIR)
+    message = str(caught.value)
+    assert "\n" not in message
+    assert named in message
+    assert "accepted" in message
+
+
+@pytest.mark.parametrize(
+    "arguments",
+    [
+        [],
+        ["arch=fc"],
+        ["arch=line_conv", "arch.order=4", "seed=2"],
+        ["arch=graph_conv", "graph=line", "arch.order=2", "train.epochs=5"],
+        ["-m", "arch=fc,line_conv,graph_conv", "seed=0,1,2"],
+        ["-m", "+experiment=families"],
+        ["graph=grid", "graph.rows=8", "graph.cols=8"],
+    ],
+)
+def test_documented_command_lines_pass(arguments):
+    assert preflight(arguments, CONFIG_DIR) >= 1
+
+
+def test_every_value_of_a_study_axis_is_checked():
+    # The families study sweeps 4 setups and 3 seeds: the base config plus 3 + 2 variants.
+    assert preflight(["-m", "+experiment=families"], CONFIG_DIR) == 6

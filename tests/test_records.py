@@ -1,0 +1,41 @@
+"""Records are written whole or not at all, and loading skips what it cannot read."""
+
+import json
+
+import pytest
+
+from shiftbench.records import SCHEMA_VERSION, load_records, write_atomic, write_record
+
+
+def test_atomic_write_replaces_the_file_and_leaves_no_temporary(tmp_path):
+    target = tmp_path / "result.json"
+    write_atomic(target, "old")
+    write_atomic(target, "new")
+    assert target.read_text() == "new"
+    assert [path.name for path in tmp_path.iterdir()] == ["result.json"]
+
+
+def test_a_failed_write_keeps_the_old_file(tmp_path, monkeypatch):
+    target = tmp_path / "result.json"
+    write_atomic(target, "old")
+
+    def broken_replace(*args):
+        raise OSError("disk full")
+
+    monkeypatch.setattr("os.replace", broken_replace)
+    with pytest.raises(OSError):
+        write_atomic(target, "new")
+    assert target.read_text() == "old"
+    assert [path.name for path in tmp_path.iterdir()] == ["result.json"]
+
+
+def test_loader_skips_unreadable_and_foreign_files_and_lists_them(tmp_path):
+    write_record(tmp_path / "good", {"schema_version": SCHEMA_VERSION, "status": "completed"})
+    (tmp_path / "torn").mkdir()
+    (tmp_path / "torn" / "result.json").write_text('{"schema_version": 1, "sta')
+    (tmp_path / "future").mkdir()
+    (tmp_path / "future" / "result.json").write_text(json.dumps({"schema_version": 99}))
+    with pytest.warns(UserWarning):
+        frame = load_records([tmp_path])
+    assert list(frame["status"]) == ["completed"]
+    assert len(frame.attrs["skipped"]) == 2

@@ -1,0 +1,51 @@
+"""The summary table: one row per (data, graph, family, order), figures over seeds."""
+
+import numpy as np
+import pandas as pd
+
+from shiftbench.records import SCHEMA_VERSION, write_record
+from shiftbench.report import format_markdown, format_terminal, summary_table, write_report
+
+
+def record(family, graph, order, seed, accuracy, status="completed"):
+    return {
+        "schema_version": SCHEMA_VERSION, "status": status, "data": "sensor_regimes", "family": family,
+        "graph": graph, "order": order, "seed": seed, "parameters": 100 if family == "fc" else 40,
+        "test_accuracy": accuracy if status == "completed" else None, "train_seconds": 1.0 + seed,
+    }
+
+
+RECORDS = [
+    record("fc", "none", None, 0, 0.70), record("fc", "none", None, 1, 0.80), record("fc", "none", None, 2, 0.75),
+    record("graph_conv", "native", 3, 0, 0.90), record("graph_conv", "native", 3, 1, 0.94),
+    record("graph_conv", "native", 3, 2, None, status="failed"),
+]
+
+
+def test_mean_and_sample_std_over_seeds_match_numpy():
+    table = summary_table(pd.DataFrame(RECORDS)).set_index("family")
+    assert table.loc["fc", "test_accuracy_mean"] == np.mean([0.70, 0.80, 0.75])
+    assert table.loc["fc", "test_accuracy_std"] == np.std([0.70, 0.80, 0.75], ddof=1)
+    assert table.loc["graph_conv", "test_accuracy_mean"] == np.mean([0.90, 0.94])
+
+
+def test_failed_jobs_are_counted_not_averaged():
+    table = summary_table(pd.DataFrame(RECORDS)).set_index("family")
+    assert (table.loc["graph_conv", "seeds"], table.loc["graph_conv", "failed"]) == (2, 1)
+    assert table.loc["graph_conv", "train_seconds_mean"] == np.mean([1.0, 2.0])
+
+
+def test_report_writes_csv_and_markdown_with_one_row_per_setting(tmp_path):
+    for number, entry in enumerate(RECORDS):
+        write_record(tmp_path / str(number), entry)
+    text = write_report([tmp_path], tmp_path)
+    assert len(pd.read_csv(tmp_path / "summary.csv")) == 2
+    markdown = (tmp_path / "summary.md").read_text().splitlines()
+    assert len(markdown) == 4 and markdown[0].startswith("| data")
+    assert max(len(line) for line in text.splitlines()) <= 100
+
+
+def test_terminal_and_markdown_show_missing_values_as_dashes():
+    table = summary_table(pd.DataFrame(RECORDS[:1]))
+    assert "-" in format_terminal(table).splitlines()[2]
+    assert "| - |" in format_markdown(table)
