@@ -66,6 +66,16 @@ def test_a_config_error_writes_nothing(small_config, tmp_path):
     assert not (tmp_path / "job").exists()
 
 
+def test_a_graph_that_does_not_fit_the_loaded_data_is_a_config_error(small_config, tmp_path, monkeypatch):
+    # Datasets whose size is known only once loaded are checked after loading, before training.
+    from shiftbench.data import sensor_regimes
+
+    monkeypatch.setattr(shiftbench.job, "load_dataset", lambda config: sensor_regimes(nodes=30, samples_per_class=20))
+    with pytest.raises(ConfigError, match="equal to the data's 30 nodes"):
+        run_job(small_config("graph=grid", "graph.rows=4", "graph.cols=6"), tmp_path / "job", [], live=False)
+    assert not (tmp_path / "job").exists()
+
+
 def test_records_say_which_structure_each_family_used(small_config, tmp_path):
     fc = run_job(small_config("arch=fc"), tmp_path / "fc", [], live=False)
     line = run_job(small_config("arch=line_conv", "arch.boundary=circular"), tmp_path / "lc", [], live=False)

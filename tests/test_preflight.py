@@ -2,6 +2,7 @@
 accepted; good ones pass."""
 
 import pytest
+import torch
 
 from shiftbench.config import ConfigError
 from shiftbench.preflight import preflight
@@ -28,6 +29,9 @@ from tests.conftest import CONFIG_DIR
         (["-m", "arch.order=1,2,-3"], "arch.order=-3"),
         (["-m", "+experiment=families", "seed=0,-1"], "seed=-1"),
         (["-m", "+experiment=nope"], "experiment='nope'"),
+        (["graph=grid", "graph.rows=4"], "graph.rows*graph.cols=4*8=32"),
+        (["graph=knn", "graph.neighbors=64"], "graph.neighbors=64"),
+        pytest.param(["device=cuda"], "device='cuda'", marks=pytest.mark.skipif(torch.cuda.is_available(), reason="a CUDA device is present")),
     ],
 )
 def test_bad_command_line_is_one_line_naming_key_and_value(arguments, named):

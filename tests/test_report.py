@@ -45,6 +45,14 @@ def test_report_writes_csv_and_markdown_with_one_row_per_setting(tmp_path):
     assert max(len(line) for line in text.splitlines()) <= 100
 
 
+def test_every_markdown_line_has_as_many_cells_as_the_header():
+    # The pipe-table shape of GitHub Flavored Markdown (spec 0.29, section 4.10, "Tables").
+    lines = format_markdown(summary_table(pd.DataFrame(RECORDS))).splitlines()
+    cells = [line.strip().strip("|").split("|") for line in lines]
+    assert all(len(row) == len(cells[0]) for row in cells)
+    assert all(cell.strip().strip(":").strip("-") == "" for cell in cells[1])
+
+
 def test_terminal_and_markdown_show_missing_values_as_dashes():
     table = summary_table(pd.DataFrame(RECORDS[:1]))
     assert "-" in format_terminal(table).splitlines()[2]

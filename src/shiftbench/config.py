@@ -13,6 +13,7 @@ import typing
 from dataclasses import asdict, dataclass, field, fields
 from typing import Any
 
+import torch
 from omegaconf import DictConfig, OmegaConf
 from omegaconf.errors import ConfigKeyError, OmegaConfBaseException
 
@@ -265,9 +266,30 @@ def validate(config: DictConfig) -> RunConfig:
     seed, device, results_dir = config.seed, config.device, config.results_dir
     require("seed", seed, isinstance(seed, int) and not isinstance(seed, bool) and seed >= 0, "an integer >= 0")
     require_choice("device", device, DEVICES)
+    require("device", device, device != "cuda" or torch.cuda.is_available(), "cpu (no CUDA device is available here)")
     require("results_dir", results_dir, isinstance(results_dir, str) and results_dir != "", "a folder path")
     groups = {group: _validate_group(group, config[group]) for group in GROUPS}
-    return RunConfig(seed=seed, results_dir=results_dir, device=device, **groups)
+    run = RunConfig(seed=seed, results_dir=results_dir, device=device, **groups)
+    nodes = getattr(run.data, "nodes", None)
+    if nodes is not None:
+        check_graph_fits(run.graph, run.arch.family, nodes)
+    return run
+
+
+def check_graph_fits(graph: GraphConfig, family: str, nodes: int) -> None:
+    """Checks across groups: a graph a ``graph_conv`` uses must fit the data's ``nodes``.
+    Run at validation when the data config states its size, else once the data is loaded."""
+    if family != "graph_conv":
+        return
+    if isinstance(graph, GridGraphConfig) and graph.rows * graph.cols != nodes:
+        raise ConfigError(
+            f"graph.rows*graph.cols={graph.rows}*{graph.cols}={graph.rows * graph.cols} is not accepted; "
+            f"accepted: rows*cols equal to the data's {nodes} nodes"
+        )
+    if isinstance(graph, KnnGraphConfig) and graph.neighbors >= nodes:
+        raise ConfigError(
+            f"graph.neighbors={graph.neighbors} is not accepted; accepted: fewer than the data's {nodes} nodes"
+        )
 
 
 def _validate_group(group: str, node: Any) -> Any:

@@ -13,37 +13,15 @@ from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any
 
-import torch
 from omegaconf import DictConfig
 
-from shiftbench.config import ConfigError, RunConfig, as_plain_dict, validate
-from shiftbench.data import Dataset, load_dataset
+from shiftbench.config import ConfigError, RunConfig, as_plain_dict, check_graph_fits, validate
+from shiftbench.data import load_dataset
 from shiftbench.graphs import build_graph, shift_operator
 from shiftbench.models import build_model, count_parameters
 from shiftbench.progress import EpochProgress
 from shiftbench.records import SCHEMA_VERSION, config_hash, versions, write_curve, write_record
 from shiftbench.training import seed_everything, train
-
-
-def check_device(device: str) -> None:
-    if device == "cuda" and not torch.cuda.is_available():
-        raise ConfigError("device='cuda' is not accepted: no CUDA device is available here; accepted: cpu")
-
-
-def check_compatible(run: RunConfig, dataset: Dataset) -> None:
-    """Cross-group checks that need the dataset's size."""
-    graph = run.graph
-    if run.arch.family != "graph_conv":
-        return
-    if graph.source == "grid" and graph.rows * graph.cols != dataset.nodes:
-        raise ConfigError(
-            f"graph.rows*graph.cols={graph.rows}*{graph.cols}={graph.rows * graph.cols} is not accepted; "
-            f"accepted: rows*cols equal to the data's {dataset.nodes} nodes"
-        )
-    if graph.source == "knn" and graph.neighbors >= dataset.nodes:
-        raise ConfigError(
-            f"graph.neighbors={graph.neighbors} is not accepted; accepted: fewer than the data's {dataset.nodes} nodes"
-        )
 
 
 def structure(run: RunConfig) -> tuple[str, str]:
@@ -60,7 +38,6 @@ def run_job(config: DictConfig, output_dir: Path, overrides: list[str], live: bo
     """Validate ``config``, run the job, write ``result.json`` and ``curve.csv`` into ``output_dir``,
     print one summary line, and return the record."""
     run = validate(config)
-    check_device(run.device)
     plain = as_plain_dict(run)
     graph_name, operator = structure(run)
     record: dict[str, Any] = {
@@ -83,7 +60,7 @@ def run_job(config: DictConfig, output_dir: Path, overrides: list[str], live: bo
     curve: list[dict[str, float]] = []
     try:
         dataset = load_dataset(run.data)
-        check_compatible(run, dataset)
+        check_graph_fits(run.graph, run.arch.family, dataset.nodes)
         record["nodes"] = dataset.nodes
         shift = None
         if run.arch.family == "graph_conv":

@@ -83,7 +83,7 @@ HEADERS = {
 def format_markdown(table: pd.DataFrame) -> str:
     headers = [HEADERS.get(column, column) for column in table.columns]
     numeric = [pd.api.types.is_numeric_dtype(table[column]) for column in table.columns]
-    lines = ["| " + " | ".join(headers) + " |", "|" + "|".join(" ---: |" if n else " --- |" for n in numeric)]
+    lines = ["| " + " | ".join(headers) + " |", "|" + "".join(" ---: |" if n else " --- |" for n in numeric)]
     lines += ["| " + " | ".join(row) + " |" for row in _cells(table)]
     return "\n".join(lines) + "\n"
 
