@@ -33,13 +33,18 @@ def conv1d_with_mapped_taps(layer: GraphFilter) -> torch.nn.Conv1d:
     return conv
 
 
+def random_filter_and_input(shape, make_graph) -> tuple[GraphFilter, torch.Tensor]:
+    in_channels, out_channels, order, nodes, batch, seed = shape
+    torch.manual_seed(seed)
+    layer = GraphFilter(shift_operator(make_graph(nodes), "adjacency", "none"), in_channels, out_channels, order)
+    return layer, torch.randn(batch, nodes, in_channels)
+
+
 @settings(max_examples=60, deadline=None)
 @given(shapes)
 def test_graph_filter_on_the_line_graph_equals_causal_conv1d(shape):
-    in_channels, out_channels, order, nodes, batch, seed = shape
-    torch.manual_seed(seed)
-    layer = GraphFilter(shift_operator(line_graph(nodes), "adjacency", "none"), in_channels, out_channels, order)
-    x = torch.randn(batch, nodes, in_channels)
+    layer, x = random_filter_and_input(shape, line_graph)
+    order = layer.order
     reference = conv1d_with_mapped_taps(layer)(torch.nn.functional.pad(x.transpose(1, 2), (order, 0)))
     torch.testing.assert_close(layer(x), reference.transpose(1, 2), atol=1e-5, rtol=1e-5)
 
@@ -47,10 +52,8 @@ def test_graph_filter_on_the_line_graph_equals_causal_conv1d(shape):
 @settings(max_examples=60, deadline=None)
 @given(shapes)
 def test_graph_filter_on_the_directed_cycle_equals_circular_causal_conv1d(shape):
-    in_channels, out_channels, order, nodes, batch, seed = shape
-    torch.manual_seed(seed)
-    layer = GraphFilter(shift_operator(cycle_graph(nodes), "adjacency", "none"), in_channels, out_channels, order)
-    x = torch.randn(batch, nodes, in_channels)
+    layer, x = random_filter_and_input(shape, cycle_graph)
+    order = layer.order
     # numpy's "wrap" padding repeats the signal periodically, also for pads longer than it.
     wrapped = torch.from_numpy(np.pad(x.transpose(1, 2).numpy(), ((0, 0), (0, 0), (order, 0)), mode="wrap"))
     reference = conv1d_with_mapped_taps(layer)(wrapped)

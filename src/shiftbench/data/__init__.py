@@ -1,5 +1,7 @@
 """Datasets: the demo scenario and the splits."""
 
+from dataclasses import asdict
+
 from shiftbench.data.dataset import Dataset, Splits
 from shiftbench.data.sensor_regimes import sensor_regimes
 
@@ -7,17 +9,8 @@ __all__ = ["Dataset", "Splits", "load_dataset", "sensor_regimes"]
 
 
 def load_dataset(config) -> Dataset:
-    """The dataset a validated data config names."""
+    """The dataset a validated data config names; the config's other keys are its arguments."""
+    arguments = {key: value for key, value in asdict(config).items() if key != "name"}
     if config.name == "sensor_regimes":
-        return sensor_regimes(
-            nodes=config.nodes,
-            classes=config.classes,
-            samples_per_class=config.samples_per_class,
-            noise=config.noise,
-            process_order=config.process_order,
-            neighbors=config.neighbors,
-            seed=config.seed,
-            val_fraction=config.val_fraction,
-            test_fraction=config.test_fraction,
-        )
+        return sensor_regimes(**arguments)
     raise ValueError(f"unknown dataset {config.name!r}")
