@@ -17,17 +17,16 @@ import torch
 from omegaconf import DictConfig, OmegaConf
 from omegaconf.errors import ConfigKeyError, OmegaConfBaseException
 
+from shiftbench.errors import ConfigError
 from shiftbench.graphs.operators import OPERATORS, SCALES
 from shiftbench.models.line_conv import BOUNDARIES
 from shiftbench.models.nonlinearities import NONLINEARITIES
 from shiftbench.models.readouts import READOUTS
 
+__all__ = ["ConfigError", "RunConfig", "validate"]
+
 OPTIMIZERS = ("adam", "sgd")
 DEVICES = ("cpu", "cuda")
-
-
-class ConfigError(ValueError):
-    """A user's config is invalid; the message is one line, ready to print."""
 
 
 def require(key: str, value: Any, ok: bool, accepted: str) -> None:
@@ -49,31 +48,30 @@ def require_fraction(key: str, value: float) -> None:
 
 
 @dataclass
-class SensorRegimesConfig:
-    """The demo scenario (see :mod:`shiftbench.data.sensor_regimes`)."""
+class DataConfig:
+    """What every data source has: the data seed and the validation share."""
 
-    name: str = "sensor_regimes"
-    nodes: int = 64
-    classes: int = 4
-    samples_per_class: int = 200
-    noise: float = 0.5
-    process_order: int = 6
-    neighbors: int = 6
+    source: str = "sensor_regimes"
     seed: int = 0
     val_fraction: float = 0.2
+
+    def __post_init__(self) -> None:
+        require("seed", self.seed, self.seed >= 0, "an integer >= 0")
+        require_fraction("val_fraction", self.val_fraction)
+
+    def known_nodes(self) -> int | None:
+        """The node count, when the config alone tells it (else it is known once loaded)."""
+        return None
+
+
+@dataclass
+class RandomSplitConfig(DataConfig):
+    """A data source split at random (stratified) into train, validation and test."""
+
     test_fraction: float = 0.2
 
     def __post_init__(self) -> None:
-        require("nodes", self.nodes, self.nodes >= 2, "an integer >= 2")
-        require("classes", self.classes, self.classes >= 2, "an integer >= 2")
-        require("samples_per_class", self.samples_per_class, self.samples_per_class >= 10, "an integer >= 10")
-        require("noise", self.noise, self.noise >= 0, "a number >= 0")
-        require("process_order", self.process_order, self.process_order >= 0, "an integer >= 0")
-        require(
-            "neighbors", self.neighbors, 1 <= self.neighbors < self.nodes, f"an integer in 1..{self.nodes - 1}"
-        )
-        require("seed", self.seed, self.seed >= 0, "an integer >= 0")
-        require_fraction("val_fraction", self.val_fraction)
+        super().__post_init__()
         require_fraction("test_fraction", self.test_fraction)
         require(
             "test_fraction",
@@ -83,7 +81,76 @@ class SensorRegimesConfig:
         )
 
 
-DATA_SCHEMAS: dict[str, type] = {"sensor_regimes": SensorRegimesConfig}
+@dataclass
+class SensorRegimesConfig(RandomSplitConfig):
+    """The demo scenario (see :mod:`shiftbench.data.sensor_regimes`)."""
+
+    source: str = "sensor_regimes"
+    nodes: int = 64
+    classes: int = 4
+    samples_per_class: int = 200
+    noise: float = 0.5
+    process_order: int = 6
+    neighbors: int = 6
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        require("nodes", self.nodes, self.nodes >= 2, "an integer >= 2")
+        require("classes", self.classes, self.classes >= 2, "an integer >= 2")
+        require("samples_per_class", self.samples_per_class, self.samples_per_class >= 10, "an integer >= 10")
+        require("noise", self.noise, self.noise >= 0, "a number >= 0")
+        require("process_order", self.process_order, self.process_order >= 0, "an integer >= 0")
+        require(
+            "neighbors", self.neighbors, 1 <= self.neighbors < self.nodes, f"an integer in 1..{self.nodes - 1}"
+        )
+
+    def known_nodes(self) -> int | None:
+        return self.nodes
+
+
+@dataclass
+class DigitsConfig(RandomSplitConfig):
+    """scikit-learn's 8x8 handwritten digits."""
+
+    source: str = "digits"
+
+    def known_nodes(self) -> int | None:
+        return 64
+
+
+@dataclass
+class UcrConfig(DataConfig):
+    """A UCR/UEA series shipped with aeon; the archive's own train/test split is kept."""
+
+    source: str = "ucr"
+    name: str = "GunPoint"
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        from shiftbench.data.ucr import shipped_names
+
+        require_choice("name", self.name, shipped_names())
+
+
+@dataclass
+class FileDataConfig(RandomSplitConfig):
+    """The user's signals in a ``.npz`` or ``.csv`` file (``test_fraction`` applies when the file
+    brings no ``split``)."""
+
+    source: str = "file"
+    path: str = ""
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        require("path", self.path, self.path != "", "the path of a .npz or .csv file (data.path=...)")
+
+
+DATA_SCHEMAS: dict[str, type] = {
+    "sensor_regimes": SensorRegimesConfig,
+    "digits": DigitsConfig,
+    "ucr": UcrConfig,
+    "file": FileDataConfig,
+}
 
 # ---------------------------------------------------------------------------------------- graph
 
@@ -124,6 +191,42 @@ class KnnGraphConfig(GraphConfig):
 
 
 @dataclass
+class CorrelationGraphConfig(GraphConfig):
+    """Each node's ``neighbors`` strongest absolute correlations over the training split."""
+
+    source: str = "correlation"
+    neighbors: int = 6
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        require("neighbors", self.neighbors, self.neighbors >= 1, "an integer >= 1")
+
+
+@dataclass
+class GeometricGraphConfig(GraphConfig):
+    """Nodes closer than ``radius`` on their positions."""
+
+    source: str = "geometric"
+    radius: float = 0.2
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        require("radius", self.radius, self.radius > 0, "a number > 0")
+
+
+@dataclass
+class FileGraphConfig(GraphConfig):
+    """The user's graph file (edge-list .csv, scipy .npz, .graphml, .gml)."""
+
+    source: str = "file"
+    path: str = ""
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        require("path", self.path, self.path != "", "the path of a graph file (graph.path=...)")
+
+
+@dataclass
 class SbmGraphConfig(GraphConfig):
     source: str = "sbm"
     blocks: int = 4
@@ -147,6 +250,9 @@ GRAPH_SCHEMAS: dict[str, type] = {
     "grid": GridGraphConfig,
     "knn": KnnGraphConfig,
     "sbm": SbmGraphConfig,
+    "correlation": CorrelationGraphConfig,
+    "geometric": GeometricGraphConfig,
+    "file": FileGraphConfig,
 }
 
 # ----------------------------------------------------------------------------------------- arch
@@ -203,7 +309,19 @@ class LineConvConfig(GraphConvConfig):
         require_choice("boundary", self.boundary, BOUNDARIES)
 
 
-ARCH_SCHEMAS: dict[str, type] = {"fc": FcConfig, "line_conv": LineConvConfig, "graph_conv": GraphConvConfig}
+@dataclass
+class NearestConfig:
+    """The non-neural floor: 1-nearest-neighbour on the flattened signals (Euclidean)."""
+
+    family: str = "nearest"
+
+
+ARCH_SCHEMAS: dict[str, type] = {
+    "fc": FcConfig,
+    "line_conv": LineConvConfig,
+    "graph_conv": GraphConvConfig,
+    "nearest": NearestConfig,
+}
 
 # ---------------------------------------------------------------------------------------- train
 
@@ -240,15 +358,15 @@ class RunConfig:
     seed: int
     results_dir: str
     device: str
-    data: SensorRegimesConfig
+    data: DataConfig
     graph: GraphConfig
-    arch: FcConfig | GraphConvConfig
+    arch: FcConfig | GraphConvConfig | NearestConfig
     train: TrainConfig
 
 
 ROOT_KEYS = ("seed", "results_dir", "device", "data", "graph", "arch", "train")
 GROUPS: dict[str, tuple[str, dict[str, type]]] = {
-    "data": ("name", DATA_SCHEMAS),
+    "data": ("source", DATA_SCHEMAS),
     "graph": ("source", GRAPH_SCHEMAS),
     "arch": ("family", ARCH_SCHEMAS),
     "train": ("", {"": TrainConfig}),
@@ -270,7 +388,7 @@ def validate(config: DictConfig) -> RunConfig:
     require("results_dir", results_dir, isinstance(results_dir, str) and results_dir != "", "a folder path")
     groups = {group: _validate_group(group, config[group]) for group in GROUPS}
     run = RunConfig(seed=seed, results_dir=results_dir, device=device, **groups)
-    nodes = getattr(run.data, "nodes", None)
+    nodes = run.data.known_nodes()
     if nodes is not None:
         check_graph_fits(run.graph, run.arch.family, nodes)
     return run
@@ -286,7 +404,7 @@ def check_graph_fits(graph: GraphConfig, family: str, nodes: int) -> None:
             f"graph.rows*graph.cols={graph.rows}*{graph.cols}={graph.rows * graph.cols} is not accepted; "
             f"accepted: rows*cols equal to the data's {nodes} nodes"
         )
-    if isinstance(graph, KnnGraphConfig) and graph.neighbors >= nodes:
+    if isinstance(graph, (KnnGraphConfig, CorrelationGraphConfig)) and graph.neighbors >= nodes:
         raise ConfigError(
             f"graph.neighbors={graph.neighbors} is not accepted; accepted: fewer than the data's {nodes} nodes"
         )

@@ -17,16 +17,39 @@ from omegaconf import DictConfig
 
 from shiftbench.config import ConfigError, RunConfig, as_plain_dict, check_graph_fits, validate
 from shiftbench.data import load_dataset
-from shiftbench.graphs import build_graph, shift_operator
+from shiftbench.graphs import Graph, build_graph, operator_matrix, shift_operator
 from shiftbench.models import build_model, count_parameters
+from shiftbench.models.nearest import fit_nearest
 from shiftbench.progress import EpochProgress
 from shiftbench.records import SCHEMA_VERSION, config_hash, versions, write_curve, write_record
 from shiftbench.training import seed_everything, train
 
 
+def check_inputs(run: RunConfig) -> None:
+    """Read and check the user's files a job would use (a data file, a graph file), so a bad file
+    stops a sweep before its first job. Other sources are checked by the config alone."""
+    uses_graph_file = run.arch.family == "graph_conv" and run.graph.source == "file"
+    if run.data.source != "file" and not uses_graph_file:
+        return
+    dataset = load_dataset(run.data)
+    check_graph_fits(run.graph, run.arch.family, dataset.nodes)
+    if uses_graph_file:
+        operator_matrix(build_graph(run.graph, dataset), run.graph.operator)
+
+
+def graph_notes(graph: Graph) -> list[str]:
+    """What the record should say about the graph: input fixes and isolated nodes."""
+    isolated = graph.isolated_nodes()
+    notes = list(graph.notes)
+    if isolated:
+        shown = ", ".join(map(str, isolated[:10])) + (", ..." if len(isolated) > 10 else "")
+        notes.append(f"{len(isolated)} isolated nodes ({shown})")
+    return notes
+
+
 def structure(run: RunConfig) -> tuple[str, str]:
     """The graph and shift operator a family actually uses: ``graph_conv`` the configured ones,
-    ``line_conv`` the line graph's (or cycle's) delay, ``fc`` none."""
+    ``line_conv`` the line graph's (or cycle's) delay, ``fc`` and ``nearest`` none."""
     if run.arch.family == "graph_conv":
         return run.graph.source, run.graph.operator
     if run.arch.family == "line_conv":
@@ -50,7 +73,7 @@ def run_job(config: DictConfig, output_dir: Path, overrides: list[str], live: bo
         "family": run.arch.family,
         "graph": graph_name,
         "operator": operator,
-        "data": run.data.name,
+        "data": getattr(run.data, "name", run.data.source),
         "nodes": None,
         "order": getattr(run.arch, "order", None),
         "seed": run.seed,
@@ -62,18 +85,24 @@ def run_job(config: DictConfig, output_dir: Path, overrides: list[str], live: bo
         dataset = load_dataset(run.data)
         check_graph_fits(run.graph, run.arch.family, dataset.nodes)
         record["nodes"] = dataset.nodes
-        shift = None
-        if run.arch.family == "graph_conv":
-            graph = build_graph(run.graph, dataset)
-            shift = shift_operator(graph, run.graph.operator, run.graph.scale)
-        seed_everything(run.seed)
-        model = build_model(run.arch, dataset.nodes, dataset.features, dataset.classes, shift)
-        record["parameters"] = count_parameters(model)
-        progress = EpochProgress(run.train.epochs, live)
-        try:
-            result = train(model, dataset, run.train, run.seed, run.device, on_epoch=progress)
-        finally:
-            progress.close()
+        record["data"] = dataset.name
+        if run.arch.family == "nearest":
+            record["parameters"] = 0
+            result = fit_nearest(dataset)
+        else:
+            shift = None
+            if run.arch.family == "graph_conv":
+                graph = build_graph(run.graph, dataset)
+                record["graph_notes"] = graph_notes(graph)
+                shift = shift_operator(graph, run.graph.operator, run.graph.scale)
+            seed_everything(run.seed)
+            model = build_model(run.arch, dataset.nodes, dataset.features, dataset.classes, shift)
+            record["parameters"] = count_parameters(model)
+            progress = EpochProgress(run.train.epochs, live)
+            try:
+                result = train(model, dataset, run.train, run.seed, run.device, on_epoch=progress)
+            finally:
+                progress.close()
         curve = result.curve
         record.update(
             status="completed",
@@ -106,8 +135,9 @@ def summary_line(record: dict[str, Any]) -> str:
     head = f"{record['family']} on graph {record['graph']}, order {order}"
     if record["status"] != "completed":
         return f"{head}: FAILED: {record['error']}"
+    epochs = "" if record["epochs_run"] is None else f"best epoch {record['best_epoch']} of {record['epochs_run']}, "
     return (
         f"{head}: {record['parameters']:,} parameters, test accuracy {record['test_accuracy']:.3f} "
-        f"(best epoch {record['best_epoch']} of {record['epochs_run']}, {record['train_seconds']:.1f} s)"
+        f"({epochs}{record['train_seconds']:.1f} s)"
     )
 

@@ -3,7 +3,8 @@
 Every value of every sweep axis (given on the command line or by a study's
 ``hydra.sweeper.params``) is composed and validated once, varying one axis at a time from the
 first value of each, so a typo anywhere in a sweep stops it before the first job trains. Hydra's
-own composition errors are turned into the same one-line messages as the schema's.
+own composition errors are turned into the same one-line messages as the schema's, and the
+user's data and graph files are read and checked.
 """
 
 from __future__ import annotations
@@ -17,6 +18,7 @@ from hydra.errors import HydraException, MissingConfigException
 from omegaconf import DictConfig, OmegaConf
 
 from shiftbench.config import ConfigError, validate
+from shiftbench.job import check_inputs
 
 # Hydra flags that take the next argument as their value.
 FLAGS_WITH_VALUE = {"-cd", "--config-dir", "-cn", "--config-name", "-cp", "--config-path", "-c", "--cfg", "-p", "--package"}
@@ -118,7 +120,7 @@ def _added_key_retry(overrides: list[str], error: HydraException) -> DictConfig 
 
 def _validate(config: DictConfig) -> None:
     job = OmegaConf.masked_copy(config, [key for key in config.keys() if key != "hydra"])
-    validate(job)
+    check_inputs(validate(job))
 
 
 def _one_line(message: str) -> str:

@@ -27,14 +27,15 @@ class TrainingDiverged(RuntimeError):
 @dataclass
 class TrainingResult:
     """What a finished training run measured. ``curve`` holds one dict per epoch with keys
-    ``epoch, train_loss, train_accuracy, val_loss, val_accuracy, seconds``."""
+    ``epoch, train_loss, train_accuracy, val_loss, val_accuracy, seconds``. Figures that a
+    family does not have (the 1-NN floor has no loss and no epochs) are None."""
 
     train_accuracy: float
     val_accuracy: float
     test_accuracy: float
-    test_loss: float
-    best_epoch: int
-    epochs_run: int
+    test_loss: float | None
+    best_epoch: int | None
+    epochs_run: int | None
     train_seconds: float
     samples_per_second: float
     curve: list[dict[str, float]] = field(default_factory=list)

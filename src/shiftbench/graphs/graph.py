@@ -25,6 +25,8 @@ class Graph:
         edge_weight: ``(edges,)`` float32 weights.
         positions: optional ``(nodes, dims)`` float coordinates (for plots and geometric sources).
         name: the graph source that made it (``line``, ``knn``, ...).
+        notes: what was done to the input on the way in (duplicates summed, self-loops kept),
+            copied into the record.
     """
 
     nodes: int
@@ -32,6 +34,7 @@ class Graph:
     edge_weight: torch.Tensor
     positions: torch.Tensor | None = None
     name: str = "graph"
+    notes: tuple[str, ...] = ()
 
     def __post_init__(self) -> None:
         if self.edge_index.dim() != 2 or self.edge_index.shape[0] != 2:
@@ -49,6 +52,15 @@ class Graph:
     @property
     def edges(self) -> int:
         return int(self.edge_index.shape[1])
+
+    def isolated_nodes(self) -> list[int]:
+        """Nodes with no edge in or out (self-loops do not count)."""
+        source, target = self.edge_index
+        linked = torch.zeros(self.nodes, dtype=torch.bool)
+        proper = source != target
+        linked[source[proper]] = True
+        linked[target[proper]] = True
+        return torch.nonzero(~linked).ravel().tolist()
 
     def adjacency(self) -> sp.csr_matrix:
         """The ``(nodes, nodes)`` scipy CSR adjacency with ``A[target, source] = weight``.
@@ -84,12 +96,22 @@ class Graph:
     def from_adjacency(
         cls, matrix: sp.spmatrix, name: str = "graph", positions: np.ndarray | None = None
     ) -> Graph:
-        """A graph from a square scipy sparse matrix read as ``A[target, source] = weight``."""
+        """A graph from a square scipy sparse matrix read as ``A[target, source] = weight``.
+
+        Duplicate entries (possible in COO input) are summed and self-loops kept; both are noted.
+        """
         if matrix.shape[0] != matrix.shape[1]:
             raise ValueError(f"an adjacency must be square, got shape {matrix.shape}")
         coo = sp.coo_matrix(matrix)
+        entries = coo.nnz
         coo.sum_duplicates()
         coo.eliminate_zeros()
+        notes = []
+        if coo.nnz < entries:
+            notes.append(f"{entries - coo.nnz} duplicate edges summed")
+        loops = int((coo.row == coo.col).sum())
+        if loops:
+            notes.append(f"{loops} self-loops kept")
         edge_index = torch.from_numpy(np.stack([coo.col, coo.row]).astype(np.int64))
         edge_weight = torch.from_numpy(coo.data.astype(np.float32))
         return cls(
@@ -98,7 +120,31 @@ class Graph:
             edge_weight=edge_weight,
             positions=None if positions is None else torch.as_tensor(positions, dtype=torch.float32),
             name=name,
+            notes=tuple(notes),
         )
+
+    @classmethod
+    def from_edge_index(
+        cls,
+        edge_index: torch.Tensor | np.ndarray,
+        edge_weight: torch.Tensor | np.ndarray | None = None,
+        nodes: int | None = None,
+        name: str = "graph",
+    ) -> Graph:
+        """A graph from a PyG-style ``(2, edges)`` index (row 0 sources, row 1 targets) and optional
+        ``(edges,)`` weights (default 1); ``nodes`` defaults to the largest index plus one.
+        Duplicate edges are summed."""
+        index = torch.as_tensor(edge_index, dtype=torch.int64)
+        if index.dim() != 2 or index.shape[0] != 2:
+            raise ValueError(f"edge_index must have shape (2, edges), got {tuple(index.shape)}")
+        weight = np.ones(index.shape[1]) if edge_weight is None else np.asarray(edge_weight, dtype=np.float64)
+        if weight.shape != (index.shape[1],):
+            raise ValueError(f"edge_weight must have shape ({index.shape[1]},), got {weight.shape}")
+        count = nodes if nodes is not None else (int(index.max()) + 1 if index.numel() else 0)
+        if index.numel() and (int(index.min()) < 0 or int(index.max()) >= count):
+            raise ValueError(f"edge_index holds node ids outside 0..{count - 1}")
+        source, target = index.numpy()
+        return cls.from_adjacency(sp.coo_matrix((weight, (target, source)), shape=(count, count)), name=name)
 
     @classmethod
     def from_networkx(cls, graph: nx.Graph, name: str = "graph", weight: str = "weight") -> Graph:
@@ -110,3 +156,23 @@ class Graph:
         matrix = nx.to_scipy_sparse_array(graph, nodelist=order, weight=weight, format="csr")
         # networkx puts an edge u -> v at M[u, v]; our convention wants it at A[v, u].
         return cls.from_adjacency(sp.csr_matrix(matrix).T, name=name)
+
+
+def as_graph(value: object, name: str = "graph") -> Graph:
+    """Accept a graph as users hold it: a :class:`Graph`, a networkx graph, a square scipy sparse
+    matrix (read as ``A[target, source]``) or a PyG ``edge_index`` tensor or ``(edge_index,
+    edge_weight)`` pair."""
+    if isinstance(value, Graph):
+        return value
+    if isinstance(value, nx.Graph):
+        return Graph.from_networkx(value, name=name)
+    if sp.issparse(value):
+        return Graph.from_adjacency(value, name=name)
+    if isinstance(value, tuple) and len(value) == 2:
+        return Graph.from_edge_index(value[0], value[1], name=name)
+    if isinstance(value, (torch.Tensor, np.ndarray)):
+        return Graph.from_edge_index(value, name=name)
+    raise TypeError(
+        f"cannot make a graph from {type(value).__name__}; accepted: a networkx graph, a scipy sparse "
+        "matrix, or a PyG edge_index (optionally with edge weights)"
+    )

@@ -21,6 +21,7 @@ import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 import torch
 
+from shiftbench.errors import ConfigError
 from shiftbench.graphs.graph import Graph
 
 OPERATORS = ("adjacency", "laplacian", "normalized_adjacency", "normalized_laplacian")
@@ -37,6 +38,12 @@ def operator_matrix(graph: Graph, operator: str) -> sp.csr_matrix:
     adjacency = graph.adjacency()
     if operator == "adjacency":
         return adjacency
+    negative = int((adjacency.data < 0).sum())
+    if negative and operator in ("laplacian", "normalized_laplacian"):
+        raise ConfigError(
+            f"graph.operator={operator!r} is not accepted for a graph with {negative} negative edge weights; "
+            "accepted: adjacency or normalized_adjacency"
+        )
     degree = np.asarray(adjacency.sum(axis=1)).ravel()
     if operator == "laplacian":
         return (sp.diags(degree) - adjacency).tocsr()

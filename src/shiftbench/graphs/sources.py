@@ -11,8 +11,11 @@ from typing import TYPE_CHECKING
 import networkx as nx
 import numpy as np
 import scipy.sparse as sp
-from sklearn.neighbors import kneighbors_graph
+from sklearn.neighbors import kneighbors_graph, radius_neighbors_graph
 
+from shiftbench.errors import ConfigError
+from shiftbench.graphs.files import load_graph_file
+from shiftbench.graphs.from_signals import correlation_graph, signal_knn_graph
 from shiftbench.graphs.graph import Graph
 
 if TYPE_CHECKING:
@@ -56,6 +59,16 @@ def knn_graph(positions: np.ndarray, neighbors: int) -> Graph:
     return Graph.from_adjacency(symmetric, name="knn", positions=positions)
 
 
+def geometric_graph(positions: np.ndarray, radius: float) -> Graph:
+    """Link every two nodes closer than ``radius`` (Euclidean, on positions), unit weights.
+
+    Args:
+        positions: ``(nodes, dims)`` coordinates.
+    """
+    linked = radius_neighbors_graph(positions, radius=radius, mode="connectivity", include_self=False)
+    return Graph.from_adjacency(linked.maximum(linked.T), name="geometric", positions=positions)
+
+
 def sbm_graph(nodes: int, blocks: int, p_in: float, p_out: float, seed: int) -> Graph:
     """An undirected stochastic block model: ``blocks`` near-equal blocks of consecutive nodes,
     edge probability ``p_in`` inside a block and ``p_out`` between blocks."""
@@ -66,9 +79,11 @@ def sbm_graph(nodes: int, blocks: int, p_in: float, p_out: float, seed: int) -> 
 
 
 def build_graph(config: GraphConfig, dataset: Dataset) -> Graph:
-    """The graph that ``config.source`` names, on ``dataset``'s nodes."""
+    """The graph that ``config.source`` names, on ``dataset``'s nodes. Sources learned from
+    signals see the training split only."""
     nodes = dataset.nodes
     source = config.source
+    positions = dataset.native_graph.positions
     if source == "native":
         return dataset.native_graph
     if source == "line":
@@ -79,11 +94,22 @@ def build_graph(config: GraphConfig, dataset: Dataset) -> Graph:
         return path_graph(nodes)
     if source == "grid":
         return grid_graph(config.rows, config.cols)
-    if source == "knn":
-        positions = dataset.native_graph.positions
-        if positions is None:
-            raise ValueError(f"graph=knn needs node positions, and data={dataset.name} has none")
-        return knn_graph(positions.numpy(), config.neighbors)
     if source == "sbm":
         return sbm_graph(nodes, config.blocks, config.p_in, config.p_out, config.seed)
+    if source == "file":
+        return load_graph_file(config.path, nodes)
+    training_signals = dataset.signals[dataset.splits.train]
+    if source == "correlation":
+        return correlation_graph(training_signals, config.neighbors)
+    if source == "knn":
+        if positions is None:
+            return signal_knn_graph(training_signals, config.neighbors)
+        return knn_graph(positions.numpy(), config.neighbors)
+    if source == "geometric":
+        if positions is None:
+            raise ConfigError(
+                f"graph=geometric needs node positions and data {dataset.name!r} has none; "
+                "accepted: data with positions (sensor_regimes, digits, a .npz with 'positions')"
+            )
+        return geometric_graph(positions.numpy(), config.radius)
     raise ValueError(f"unknown graph source {source!r}")

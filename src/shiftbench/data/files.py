@@ -1,0 +1,172 @@
+"""The user's own signals from a file, checked before anything trains.
+
+``.npz`` (read with ``allow_pickle=False``): ``signals`` ``(samples, nodes)`` or
+``(samples, nodes, features)``, ``labels`` ``(samples,)`` of integers or strings, optional
+``split`` ``(samples,)`` with 0 train, 1 val, 2 test, optional ``positions`` ``(nodes, dims)``.
+
+``.csv``: a header, one row a sample, a ``label`` column, every other column a node's value.
+
+Every problem is a :class:`ConfigError` with one line that names it and the fix.
+"""
+
+from __future__ import annotations
+
+import zipfile
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import torch
+
+from shiftbench.data.dataset import Dataset, Splits
+from shiftbench.data.labels import encode_labels
+from shiftbench.data.splits import stratified_splits
+from shiftbench.errors import ConfigError
+from shiftbench.graphs.sources import line_graph
+
+SUFFIXES = (".npz", ".csv")
+SPLIT_NAMES = {0: "train", 1: "val", 2: "test"}
+
+
+def _fail(path: Path, problem: str) -> ConfigError:
+    return ConfigError(f"data.path={str(path)!r}: {problem}")
+
+
+def read_npz(path: Path) -> dict[str, np.ndarray]:
+    try:
+        with np.load(path, allow_pickle=False) as archive:
+            return {key: archive[key] for key in archive.files}
+    except ValueError as error:
+        if "allow_pickle" in str(error):
+            raise _fail(path, "holds pickled Python objects; save plain numeric or string arrays") from None
+        raise _fail(path, f"cannot be read as .npz ({error}); save it with numpy.savez") from None
+    except (OSError, zipfile.BadZipFile, EOFError) as error:
+        raise _fail(path, f"cannot be read as .npz ({error}); save it with numpy.savez") from None
+
+
+def read_csv(path: Path) -> dict[str, np.ndarray]:
+    try:
+        table = pd.read_csv(path)
+    except pd.errors.EmptyDataError:
+        raise _fail(path, "is empty; write a header row with a 'label' column and one column per node") from None
+    except (OSError, UnicodeDecodeError, pd.errors.ParserError) as error:
+        raise _fail(path, f"cannot be read as CSV ({str(error).splitlines()[0]})") from None
+    if "label" not in table.columns:
+        raise _fail(path, "has no 'label' column; write a header row with a 'label' column and one column per node")
+    nodes = table.drop(columns="label")
+    text = [column for column in nodes.columns if not pd.api.types.is_numeric_dtype(nodes[column])]
+    if text:
+        raise _fail(path, f"column {text[0]!r} is not numeric; every column but 'label' must hold node values")
+    return {"signals": nodes.to_numpy(dtype=np.float64), "labels": table["label"].to_numpy()}
+
+
+def _check_signals(path: Path, signals: np.ndarray) -> np.ndarray:
+    if signals.ndim == 2:
+        signals = signals[:, :, None]
+    if signals.ndim != 3:
+        raise _fail(path, f"signals has shape {signals.shape}; accepted: (samples, nodes) or (samples, nodes, features)")
+    if not np.issubdtype(signals.dtype, np.number) or np.issubdtype(signals.dtype, np.complexfloating):
+        raise _fail(path, f"signals has dtype {signals.dtype}; accepted: real numbers")
+    bad = ~np.isfinite(signals)
+    if bad.any():
+        sample, node, _ = np.argwhere(bad)[0]
+        raise _fail(
+            path,
+            f"signals holds {int(bad.sum())} NaN or infinite values (first at sample {sample}, node {node}); "
+            "remove or impute them",
+        )
+    return signals.astype(np.float32)
+
+
+def _check_labels(path: Path, labels: np.ndarray, samples: int) -> np.ndarray:
+    if labels.ndim != 1:
+        raise _fail(path, f"labels has shape {labels.shape}; accepted: (samples,)")
+    if len(labels) != samples:
+        raise _fail(path, f"signals has {samples} samples but labels has {len(labels)}; they must agree")
+    if labels.dtype.kind == "f":
+        if not np.isfinite(labels).all() or (labels != np.round(labels)).any():
+            raise _fail(path, "labels are not all integers; accepted: integer or string class labels")
+        labels = labels.astype(np.int64)
+    elif labels.dtype.kind not in "iuUS":
+        raise _fail(path, f"labels have dtype {labels.dtype}; accepted: integer or string class labels")
+    codes, order = encode_labels(labels)
+    if len(order) < 2:
+        raise _fail(path, f"labels hold a single class ({order[0]!r}); accepted: at least 2 classes")
+    return codes
+
+
+def _check_split(path: Path, split: np.ndarray, samples: int) -> Splits:
+    if split.shape != (samples,):
+        raise _fail(path, f"split has shape {split.shape}; accepted: ({samples},), one entry a sample")
+    unknown = sorted(set(np.unique(split).tolist()) - set(SPLIT_NAMES))
+    if unknown:
+        raise _fail(path, f"split holds {unknown[0]!r}; accepted: 0 (train), 1 (val), 2 (test)")
+    parts = {name: np.flatnonzero(split == code) for code, name in SPLIT_NAMES.items()}
+    empty = [name for name, indices in parts.items() if len(indices) == 0]
+    if empty:
+        raise _fail(path, f"split has no {empty[0]} samples; give each of train, val and test at least one")
+    return Splits(**parts)
+
+
+def _check_positions(path: Path, positions: np.ndarray, nodes: int) -> np.ndarray:
+    if positions.ndim != 2 or positions.shape[0] != nodes or not np.isfinite(positions).all():
+        raise _fail(path, f"positions has shape {positions.shape}; accepted: finite ({nodes}, dims)")
+    return positions
+
+
+def _random_splits(path: Path, labels: np.ndarray, val_fraction: float, test_fraction: float, seed: int) -> Splits:
+    counts = np.bincount(labels)
+    smallest = int(counts.argmin())
+    if counts[smallest] < 3:
+        raise _fail(
+            path,
+            f"class {smallest} has {counts[smallest]} samples; each class needs at least 3 for a stratified "
+            "train/val/test split (or give a 'split' array)",
+        )
+    try:
+        return stratified_splits(labels, val_fraction, test_fraction, seed)
+    except ValueError as error:
+        raise _fail(path, f"cannot split it stratified ({error}); raise data.val_fraction and data.test_fraction") from None
+
+
+def load_signal_file(
+    path: str, seed: int = 0, val_fraction: float = 0.2, test_fraction: float = 0.2
+) -> Dataset:
+    """Read and check a user's signal file.
+
+    Returns:
+        A dataset with signals ``(samples, nodes, features)``; its native graph is the directed
+        line graph in the file's node order, carrying ``positions`` when the file has them.
+    """
+    file = Path(path).expanduser()
+    if file.suffix.lower() not in SUFFIXES:
+        raise _fail(file, f"has suffix {file.suffix!r}; accepted: .npz or .csv")
+    if not file.is_file():
+        raise _fail(file, "no such file; give the path of a .npz or .csv file")
+    arrays = read_npz(file) if file.suffix.lower() == ".npz" else read_csv(file)
+    for key in ("signals", "labels"):
+        if key not in arrays:
+            raise _fail(file, f"has no array {key!r}; save signals (samples, nodes[, features]) and labels (samples,)")
+    signals = _check_signals(file, arrays["signals"])
+    labels = _check_labels(file, arrays["labels"], len(signals))
+    if "split" in arrays:
+        splits = _check_split(file, arrays["split"], len(signals))
+    else:
+        splits = _random_splits(file, labels, val_fraction, test_fraction, seed)
+    nodes = signals.shape[1]
+    positions = _check_positions(file, arrays["positions"], nodes) if "positions" in arrays else None
+    native = replace(
+        line_graph(nodes),
+        name="column_order",
+        positions=None if positions is None else torch.as_tensor(positions, dtype=torch.float32),
+    )
+    return Dataset(
+        signals=signals,
+        labels=labels,
+        splits=splits,
+        classes=int(labels.max()) + 1,
+        native_graph=native,
+        name=file.stem,
+    )
+

@@ -1,0 +1,107 @@
+"""The user's graph from a file: an edge-list CSV, a scipy sparse ``.npz``, GraphML or GML.
+
+- ``.csv``: a header ``source,target`` or ``source,target,weight``; ids are integers
+  ``0..nodes-1`` (the data's nodes), an edge ``source -> target``. An undirected graph lists
+  each edge both ways.
+- ``.npz``: a matrix saved with ``scipy.sparse.save_npz``, read as ``A[target, source]``.
+- ``.graphml`` / ``.gml``: read by networkx; nodes are taken in the file's order, and an
+  undirected graph gives each edge both ways. The ``weight`` attribute is used when present.
+
+Duplicate edges are summed and self-loops kept (both noted in the record). Every problem is a
+:class:`ConfigError` with one line naming it and the fix.
+"""
+
+from __future__ import annotations
+
+from dataclasses import replace
+from pathlib import Path
+
+import networkx as nx
+import numpy as np
+import pandas as pd
+import scipy.sparse as sp
+
+from shiftbench.errors import ConfigError
+from shiftbench.graphs.graph import Graph
+
+SUFFIXES = (".csv", ".npz", ".graphml", ".gml")
+
+
+def _fail(path: Path, problem: str) -> ConfigError:
+    return ConfigError(f"graph.path={str(path)!r}: {problem}")
+
+
+def read_edge_list(path: Path, nodes: int) -> Graph:
+    try:
+        table = pd.read_csv(path)
+    except pd.errors.EmptyDataError:
+        raise _fail(path, "is empty; write a header source,target[,weight] and one edge a row") from None
+    except (OSError, UnicodeDecodeError, pd.errors.ParserError) as error:
+        raise _fail(path, f"cannot be read as CSV ({str(error).splitlines()[0]})") from None
+    columns = [str(column).strip() for column in table.columns]
+    if columns not in (["source", "target"], ["source", "target", "weight"]):
+        raise _fail(path, f"has columns {columns}; accepted: a header source,target or source,target,weight")
+    table.columns = columns
+    ids = table[["source", "target"]]
+    if not all(pd.api.types.is_integer_dtype(ids[column]) for column in ids):
+        raise _fail(path, "source and target must be integer node ids 0..nodes-1")
+    index = ids.to_numpy(dtype=np.int64).T
+    if index.size and (index.min() < 0 or index.max() >= nodes):
+        bad = int(index.max()) if index.max() >= nodes else int(index.min())
+        raise _fail(path, f"node id {bad} is outside the data's {nodes} nodes; accepted: ids 0..{nodes - 1}")
+    weight = None
+    if "weight" in table:
+        if not pd.api.types.is_numeric_dtype(table["weight"]) or not np.isfinite(table["weight"]).all():
+            raise _fail(path, "weight column holds values that are not finite numbers")
+        weight = table["weight"].to_numpy(dtype=np.float64)
+    return Graph.from_edge_index(index, weight, nodes=nodes, name="file")
+
+
+def read_sparse_matrix(path: Path) -> Graph:
+    try:
+        matrix = sp.load_npz(path)
+    except (OSError, ValueError, KeyError) as error:
+        raise _fail(path, f"is not a matrix saved with scipy.sparse.save_npz ({error})") from None
+    if matrix.shape[0] != matrix.shape[1]:
+        raise _fail(path, f"holds a {matrix.shape[0]}x{matrix.shape[1]} matrix; accepted: a square adjacency")
+    if not np.isfinite(matrix.data).all():
+        raise _fail(path, "holds weights that are not finite numbers")
+    return Graph.from_adjacency(matrix, name="file")
+
+
+def read_networkx(path: Path) -> Graph:
+    reader = nx.read_graphml if path.suffix.lower() == ".graphml" else nx.read_gml
+    try:
+        graph = reader(path)
+    except (OSError, nx.NetworkXError, ValueError, SyntaxError) as error:
+        kind = "GraphML" if reader is nx.read_graphml else "GML"
+        raise _fail(path, f"cannot be read as {kind} ({str(error).splitlines()[0]})") from None
+    try:
+        loaded = Graph.from_networkx(graph, name="file")
+    except (TypeError, ValueError) as error:
+        raise _fail(path, f"has edge weights that are not numbers ({error})") from None
+    if not graph.is_multigraph():
+        return loaded
+    # networkx sums parallel edges when it builds the matrix; say so in the record.
+    simple = nx.DiGraph(graph) if graph.is_directed() else nx.Graph(graph)
+    parallel = graph.number_of_edges() - simple.number_of_edges()
+    return replace(loaded, notes=(*loaded.notes, f"{parallel} duplicate edges summed") if parallel else loaded.notes)
+
+
+def load_graph_file(path: str, nodes: int) -> Graph:
+    """Read and check a user's graph for data with ``nodes`` nodes."""
+    file = Path(path).expanduser()
+    suffix = file.suffix.lower()
+    if suffix not in SUFFIXES:
+        raise _fail(file, f"has suffix {file.suffix!r}; accepted: {', '.join(SUFFIXES)}")
+    if not file.is_file():
+        raise _fail(file, "no such file; give the path of an edge-list .csv, a scipy .npz, .graphml or .gml")
+    if suffix == ".csv":
+        graph = read_edge_list(file, nodes)
+    elif suffix == ".npz":
+        graph = read_sparse_matrix(file)
+    else:
+        graph = read_networkx(file)
+    if graph.nodes != nodes:
+        raise _fail(file, f"has {graph.nodes} nodes but the data has {nodes}; they must agree")
+    return graph

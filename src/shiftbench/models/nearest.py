@@ -1,0 +1,43 @@
+"""The non-neural floor: 1-nearest-neighbour on the flattened signals (Euclidean distance).
+
+It has nothing to tune, so its reference set for the test split is every labelled sample
+outside it (train and validation: for the UCR archive, exactly the archive's train split). Its
+validation accuracy uses the training split alone as reference.
+"""
+
+from __future__ import annotations
+
+import time
+
+import numpy as np
+from sklearn.neighbors import KNeighborsClassifier
+
+from shiftbench.data.dataset import Dataset
+from shiftbench.training import TrainingResult
+
+
+def _accuracy(reference: np.ndarray, queries: np.ndarray, dataset: Dataset) -> float:
+    """Accuracy on ``queries`` of 1-NN with ``reference`` samples (index arrays)."""
+    flat = dataset.signals.reshape(dataset.samples, -1)
+    classifier = KNeighborsClassifier(n_neighbors=1, algorithm="brute").fit(flat[reference], dataset.labels[reference])
+    return float(classifier.score(flat[queries], dataset.labels[queries]))
+
+
+def fit_nearest(dataset: Dataset) -> TrainingResult:
+    """Fit and score the 1-NN floor; ``train_seconds`` is the time to fit and predict the test split."""
+    splits = dataset.splits
+    labelled = np.concatenate([splits.train, splits.val])
+    started = time.perf_counter()
+    test_accuracy = _accuracy(labelled, splits.test, dataset)
+    seconds = time.perf_counter() - started
+    return TrainingResult(
+        train_accuracy=_accuracy(splits.train, splits.train, dataset),
+        val_accuracy=_accuracy(splits.train, splits.val, dataset),
+        test_accuracy=test_accuracy,
+        test_loss=None,
+        best_epoch=None,
+        epochs_run=None,
+        train_seconds=seconds,
+        samples_per_second=len(labelled) / max(seconds, 1e-9),
+        curve=[],
+    )
