@@ -22,6 +22,7 @@ from shiftbench.graphs.operators import OPERATORS, SCALES
 from shiftbench.models.line_conv import BOUNDARIES
 from shiftbench.models.nonlinearities import NONLINEARITIES
 from shiftbench.models.readouts import READOUTS
+from shiftbench.models.stack import NORMALIZATIONS
 
 __all__ = ["ConfigError", "RunConfig", "validate"]
 
@@ -283,6 +284,7 @@ class GraphConvConfig:
     nonlinearity: str = "relu"
     readout: str = "mean"
     dropout: float = 0.0
+    normalization: str = "none"
 
     def __post_init__(self) -> None:
         require("order", self.order, self.order >= 0, "an integer >= 0")
@@ -295,6 +297,7 @@ class GraphConvConfig:
         require_choice("nonlinearity", self.nonlinearity, NONLINEARITIES)
         require_choice("readout", self.readout, READOUTS)
         require("dropout", self.dropout, 0.0 <= self.dropout < 1.0, "a probability in [0, 1)")
+        require_choice("normalization", self.normalization, NORMALIZATIONS)
 
 
 @dataclass

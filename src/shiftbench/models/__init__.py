@@ -37,12 +37,13 @@ def build_model(
     if arch.family == "line_conv":
         return LineConv(
             nodes, features, arch.channels, classes, arch.order, arch.boundary,
-            arch.nonlinearity, arch.readout, arch.dropout,
+            arch.nonlinearity, arch.readout, arch.dropout, arch.normalization,
         )
     if arch.family == "graph_conv":
         if shift is None:
             raise ValueError("graph_conv needs a shift operator")
         return GraphConv(
-            shift, features, arch.channels, classes, arch.order, arch.nonlinearity, arch.readout, arch.dropout
+            shift, features, arch.channels, classes, arch.order,
+            arch.nonlinearity, arch.readout, arch.dropout, arch.normalization,
         )
     raise ValueError(f"unknown family {arch.family!r}")

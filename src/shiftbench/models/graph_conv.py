@@ -33,7 +33,9 @@ class GraphConv(FilterStack):
         nonlinearity: str = "relu",
         readout: str = "mean",
         dropout: float = 0.0,
+        normalization: str = "none",
     ) -> None:
         nodes = shift.shape[0]
         layers = [GraphFilter(shift, i, o, order) for i, o in widths(features, channels)]
-        super().__init__(layers, Readout(readout, nodes, channels[-1], classes), nonlinearity, dropout)
+        readout_layer = Readout(readout, nodes, channels[-1], classes)
+        super().__init__(layers, readout_layer, nonlinearity, dropout, normalization, channels)

@@ -62,6 +62,8 @@ class LineConv(FilterStack):
         nonlinearity: str = "relu",
         readout: str = "mean",
         dropout: float = 0.0,
+        normalization: str = "none",
     ) -> None:
         layers = [CausalConv1d(i, o, order, boundary) for i, o in widths(features, channels)]
-        super().__init__(layers, Readout(readout, nodes, channels[-1], classes), nonlinearity, dropout)
+        readout_layer = Readout(readout, nodes, channels[-1], classes)
+        super().__init__(layers, readout_layer, nonlinearity, dropout, normalization, channels)

@@ -12,32 +12,61 @@ from shiftbench.models.nonlinearities import nonlinearity as make_nonlinearity
 from shiftbench.models.readouts import Readout
 
 
+NORMALIZATIONS = ("none", "batch")
+
+
+class ChannelBatchNorm(nn.Module):
+    """Batch normalization of each channel over the batch and the nodes (torch's BatchNorm1d on
+    the ``(batch, channels, nodes)`` view). Shapes: ``(batch, nodes, channels)`` both ways."""
+
+    def __init__(self, channels: int) -> None:
+        super().__init__()
+        self.norm = nn.BatchNorm1d(channels)
+
+    def forward(self, x: torch.Tensor) -> torch.Tensor:
+        return self.norm(x.transpose(1, 2)).transpose(1, 2)
+
+
 class FilterStack(nn.Module):
-    """``x_{l+1} = dropout(sigma(F_l(x_l)))`` for each filter layer ``F_l``, then the readout.
+    """``x_{l+1} = dropout(sigma(N_l(F_l(x_l))))`` for each filter layer ``F_l``, then the
+    readout; ``N_l`` is the identity or a per-channel batch normalization.
 
     Args:
         layers: modules mapping ``(batch, nodes, c_l)`` to ``(batch, nodes, c_{l+1})``.
         readout: maps ``(batch, nodes, c_L)`` to ``(batch, classes)``.
         nonlinearity: name of ``sigma`` (``relu``, ``tanh``, ``leaky_relu``).
         dropout: probability of zeroing an activation during training.
+        normalization: ``none`` or ``batch``.
+        channels: the output width of each layer.
 
     Shapes:
         input ``(batch, nodes, features)`` -> logits ``(batch, classes)``.
     """
 
     def __init__(
-        self, layers: Sequence[nn.Module], readout: Readout, nonlinearity: str, dropout: float
+        self,
+        layers: Sequence[nn.Module],
+        readout: Readout,
+        nonlinearity: str,
+        dropout: float,
+        normalization: str,
+        channels: Sequence[int],
     ) -> None:
         super().__init__()
+        if normalization not in NORMALIZATIONS:
+            raise ValueError(f"unknown normalization {normalization!r}; accepted: {', '.join(NORMALIZATIONS)}")
         self.layers = nn.ModuleList(layers)
+        self.norms = nn.ModuleList(
+            ChannelBatchNorm(width) if normalization == "batch" else nn.Identity() for width in channels
+        )
         self.activation = make_nonlinearity(nonlinearity)
         self.dropout = nn.Dropout(dropout)
         self.readout = readout
 
     def features(self, x: torch.Tensor) -> torch.Tensor:
         """The node features before the readout: ``(batch, nodes, c_L)``."""
-        for layer in self.layers:
-            x = self.dropout(self.activation(layer(x)))
+        for layer, norm in zip(self.layers, self.norms):
+            x = self.dropout(self.activation(norm(layer(x))))
         return x
 
     def forward(self, x: torch.Tensor) -> torch.Tensor:
