@@ -34,6 +34,8 @@ def _fail(path: Path, problem: str) -> ConfigError:
 
 
 def read_npz(path: Path) -> dict[str, np.ndarray]:
+    if not zipfile.is_zipfile(path):
+        raise _fail(path, "cannot be read as .npz (not a zip archive); save it with numpy.savez")
     try:
         with np.load(path, allow_pickle=False) as archive:
             return {key: archive[key] for key in archive.files}
@@ -58,14 +60,16 @@ def read_csv(path: Path) -> dict[str, np.ndarray]:
     text = [column for column in nodes.columns if not pd.api.types.is_numeric_dtype(nodes[column])]
     if text:
         raise _fail(path, f"column {text[0]!r} is not numeric; every column but 'label' must hold node values")
-    return {"signals": nodes.to_numpy(dtype=np.float64), "labels": table["label"].to_numpy()}
+    label = table["label"]
+    labels = label.to_numpy() if pd.api.types.is_numeric_dtype(label) else label.astype(str).to_numpy(dtype=str)
+    return {"signals": nodes.to_numpy(dtype=np.float64), "labels": labels}
 
 
 def _check_signals(path: Path, signals: np.ndarray) -> np.ndarray:
+    if signals.ndim not in (2, 3):
+        raise _fail(path, f"signals has shape {signals.shape}; accepted: (samples, nodes) or (samples, nodes, features)")
     if signals.ndim == 2:
         signals = signals[:, :, None]
-    if signals.ndim != 3:
-        raise _fail(path, f"signals has shape {signals.shape}; accepted: (samples, nodes) or (samples, nodes, features)")
     if not np.issubdtype(signals.dtype, np.number) or np.issubdtype(signals.dtype, np.complexfloating):
         raise _fail(path, f"signals has dtype {signals.dtype}; accepted: real numbers")
     bad = ~np.isfinite(signals)
@@ -92,7 +96,7 @@ def _check_labels(path: Path, labels: np.ndarray, samples: int) -> np.ndarray:
         raise _fail(path, f"labels have dtype {labels.dtype}; accepted: integer or string class labels")
     codes, order = encode_labels(labels)
     if len(order) < 2:
-        raise _fail(path, f"labels hold a single class ({order[0]!r}); accepted: at least 2 classes")
+        raise _fail(path, f"labels hold a single class ({str(order[0])!r}); accepted: at least 2 classes")
     return codes
 
 

@@ -60,8 +60,8 @@ def read_edge_list(path: Path, nodes: int) -> Graph:
 def read_sparse_matrix(path: Path) -> Graph:
     try:
         matrix = sp.load_npz(path)
-    except (OSError, ValueError, KeyError) as error:
-        raise _fail(path, f"is not a matrix saved with scipy.sparse.save_npz ({error})") from None
+    except (OSError, ValueError, KeyError):
+        raise _fail(path, "is not a matrix saved with scipy.sparse.save_npz") from None
     if matrix.shape[0] != matrix.shape[1]:
         raise _fail(path, f"holds a {matrix.shape[0]}x{matrix.shape[1]} matrix; accepted: a square adjacency")
     if not np.isfinite(matrix.data).all():

@@ -1,0 +1,33 @@
+"""Users' signal files that are well formed load as they are."""
+
+import numpy as np
+
+from shiftbench.data.files import load_signal_file
+
+
+def test_npz_with_features_split_and_positions(tmp_path):
+    signals = np.random.default_rng(0).standard_normal((12, 4, 3))
+    split = np.array([0] * 6 + [1] * 3 + [2] * 3)
+    positions = np.random.default_rng(1).random((4, 2))
+    np.savez(tmp_path / "d.npz", signals=signals, labels=np.tile([5, 7], 6), split=split, positions=positions)
+    dataset = load_signal_file(str(tmp_path / "d.npz"))
+    assert dataset.signals.shape == (12, 4, 3) and dataset.signals.dtype == np.float32
+    assert dataset.labels.tolist() == [0, 1] * 6
+    assert dataset.splits.test.tolist() == [9, 10, 11]
+    np.testing.assert_allclose(dataset.native_graph.positions.numpy(), positions, rtol=1e-6)
+
+
+def test_csv_rows_are_samples_with_a_label_column(tmp_path):
+    path = tmp_path / "d.csv"
+    rows = [f"{label},{i},{i + 1},{i + 2}" for i, label in enumerate(["b", "a", "c"] * 5)]
+    path.write_text("label,n0,n1,n2\n" + "\n".join(rows))
+    dataset = load_signal_file(str(path))
+    assert dataset.signals.shape == (15, 3, 1) and dataset.classes == 3
+    assert dataset.labels[:3].tolist() == [1, 0, 2]  # 'a' < 'b' < 'c'
+    assert dataset.name == "d"
+
+
+def test_labels_that_read_as_numbers_sort_numerically(tmp_path):
+    np.savez(tmp_path / "d.npz", signals=np.zeros((30, 2)), labels=np.repeat(["2", "10", "1"], 10))
+    dataset = load_signal_file(str(tmp_path / "d.npz"))
+    assert dataset.labels[[0, 10, 20]].tolist() == [1, 2, 0]

@@ -1,0 +1,75 @@
+"""Users' graphs: files in four formats and Python objects, with what was fixed noted."""
+
+import networkx as nx
+import numpy as np
+import scipy.sparse as sp
+import torch
+
+from shiftbench.graphs.files import load_graph_file
+from shiftbench.graphs.graph import as_graph
+
+# A weighted directed graph on 5 nodes; node 4 is isolated.
+EDGES = [(0, 1, 2.0), (1, 2, 0.5), (2, 0, 1.5), (3, 1, 1.0)]
+
+
+def expected_adjacency():
+    matrix = np.zeros((5, 5))
+    for source, target, weight in EDGES:
+        matrix[target, source] = weight
+    return matrix
+
+
+def test_edge_list_csv_is_read_as_source_to_target(tmp_path):
+    path = tmp_path / "g.csv"
+    path.write_text("source,target,weight\n" + "".join(f"{s},{t},{w}\n" for s, t, w in EDGES))
+    graph = load_graph_file(str(path), nodes=5)
+    np.testing.assert_array_equal(graph.adjacency().toarray(), expected_adjacency())
+    assert graph.isolated_nodes() == [4]
+
+
+def test_unweighted_edge_list_gets_unit_weights(tmp_path):
+    path = tmp_path / "g.csv"
+    path.write_text("source,target\n0,1\n1,2\n")
+    assert load_graph_file(str(path), nodes=3).edge_weight.tolist() == [1.0, 1.0]
+
+
+def test_duplicate_edges_are_summed_and_self_loops_kept_with_notes(tmp_path):
+    path = tmp_path / "g.csv"
+    path.write_text("source,target,weight\n0,1,1\n0,1,2\n2,2,1\n")
+    graph = load_graph_file(str(path), nodes=3)
+    assert graph.adjacency()[1, 0] == 3.0 and graph.adjacency()[2, 2] == 1.0
+    assert graph.notes == ("1 duplicate edges summed", "1 self-loops kept")
+
+
+def test_scipy_npz_round_trips(tmp_path):
+    path = tmp_path / "g.npz"
+    sp.save_npz(path, sp.csr_matrix(expected_adjacency()))
+    np.testing.assert_array_equal(load_graph_file(str(path), nodes=5).adjacency().toarray(), expected_adjacency())
+
+
+def test_graphml_and_gml_are_read_through_networkx(tmp_path):
+    # Reference: networkx's own writers; nodes keep the file's order.
+    original = nx.DiGraph()
+    original.add_nodes_from(range(5))
+    original.add_weighted_edges_from(EDGES)
+    for suffix, writer in ((".graphml", nx.write_graphml), (".gml", nx.write_gml)):
+        path = tmp_path / f"g{suffix}"
+        writer(original, path)
+        graph = load_graph_file(str(path), nodes=5)
+        np.testing.assert_array_equal(graph.adjacency().toarray(), expected_adjacency())
+
+
+def test_python_objects_are_accepted_as_graphs():
+    networkx_graph = nx.DiGraph()
+    networkx_graph.add_nodes_from(range(5))
+    networkx_graph.add_weighted_edges_from(EDGES)
+    edge_index = torch.tensor([[s for s, _, _ in EDGES], [t for _, t, _ in EDGES]])
+    weights = torch.tensor([w for _, _, w in EDGES])
+    for value in (
+        networkx_graph,
+        sp.csr_matrix(expected_adjacency()),
+        (edge_index, weights),
+    ):
+        graph = as_graph(value)
+        np.testing.assert_array_equal(graph.adjacency().toarray()[:4, :4], expected_adjacency()[:4, :4])
+    assert as_graph(edge_index).edge_weight.tolist() == [1.0] * 4
