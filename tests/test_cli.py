@@ -5,6 +5,7 @@ import subprocess
 import sys
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 import pytest
 
@@ -36,7 +37,37 @@ def test_single_jobs_run_from_any_folder_and_write_a_record(tmp_path, arguments,
     assert result.returncode == 0, result.stderr
     (record,) = records_under(tmp_path / "results")
     assert (record["status"], record["family"], record["order"]) == ("completed", family, order)
-    assert f"{family} on graph" in result.stdout.splitlines()[-1]
+    assert result.stdout.splitlines()[-1].startswith(f"{family} on sensor_regimes, graph ")
+
+
+def test_real_and_user_data_run_from_any_folder(tmp_path):
+    rng = np.random.default_rng(0)
+    signals = rng.standard_normal((60, 10))
+    np.savez(tmp_path / "X.npz", signals=signals, labels=(signals[:, :5].sum(axis=1) > 0).astype(int))
+    edges = "".join(f"{i},{i + 1}\n{i + 1},{i}\n" for i in range(9))
+    (tmp_path / "G.csv").write_text("source,target\n" + edges)
+    commands = [
+        ["data=digits", "train.epochs=2"],
+        ["data=ucr", "data.name=GunPoint", "arch=line_conv", "train.epochs=2"],
+        ["data=file", "data.path=X.npz", "graph=file", "graph.path=G.csv", "train.epochs=2"],
+        ["data=ucr", "data.name=ItalyPowerDemand", "arch=nearest"],
+    ]
+    for arguments in commands:
+        result = run("shiftbench", *arguments, cwd=tmp_path)
+        assert result.returncode == 0, result.stderr
+    records = records_under(tmp_path / "results")
+    assert sorted(r["data"] for r in records) == ["GunPoint", "ItalyPowerDemand", "X", "digits"]
+    assert all(r["status"] == "completed" for r in records)
+    (nearest,) = [r for r in records if r["family"] == "nearest"]
+    assert nearest["parameters"] == 0 and round(1 - nearest["test_accuracy"], 4) == 0.0447
+
+
+def test_a_bad_data_file_stops_before_any_job(tmp_path):
+    np.savez(tmp_path / "X.npz", signals=np.zeros((30, 4)), labels=np.zeros(30, dtype=int))
+    result = run("shiftbench", "-m", "data=file", "data.path=X.npz", "seed=0,1", cwd=tmp_path)
+    assert result.returncode == 2
+    assert result.stderr == "shiftbench: error: data.path='X.npz': labels hold a single class ('0'); accepted: at least 2 classes\n"
+    assert not (tmp_path / "results").exists()
 
 
 def test_a_sweep_writes_one_record_per_job_and_the_report_tabulates_them(tmp_path):
@@ -52,13 +83,15 @@ def test_a_sweep_writes_one_record_per_job_and_the_report_tabulates_them(tmp_pat
     assert list(table["seeds"]) == [3, 3, 3]
 
 
-def test_the_families_study_runs_its_four_setups_over_three_seeds(tmp_path):
+def test_the_families_study_runs_its_five_setups_over_three_seeds(tmp_path):
     result = run("shiftbench", "-m", "+experiment=families", *FAST, cwd=tmp_path)
     assert result.returncode == 0, result.stderr
     records = records_under(tmp_path / "results" / "families")
     setups = {(r["family"], r["graph"]) for r in records}
-    assert len(records) == 12
-    assert setups == {("fc", "none"), ("line_conv", "line"), ("graph_conv", "native"), ("graph_conv", "line")}
+    assert len(records) == 15
+    assert setups == {
+        ("nearest", "none"), ("fc", "none"), ("line_conv", "line"), ("graph_conv", "native"), ("graph_conv", "line")
+    }
 
 
 @pytest.mark.parametrize(

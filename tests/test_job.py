@@ -83,3 +83,17 @@ def test_records_say_which_structure_each_family_used(small_config, tmp_path):
     assert (fc["graph"], fc["order"]) == ("none", None)
     assert line["graph"] == "cycle"
     assert (graph["graph"], graph["operator"]) == ("sbm", "laplacian")
+
+
+def test_graph_notes_report_isolated_nodes(small_config, tmp_path):
+    graph_file = tmp_path / "g.csv"
+    graph_file.write_text("source,target\n0,1\n1,0\n1,2\n2,1\n")
+    record = run_job(small_config("graph=file", f"graph.path={graph_file}"), tmp_path / "job", [], live=False)
+    assert record["status"] == "completed"
+    assert record["graph_notes"] == ["21 isolated nodes (3, 4, 5, 6, 7, 8, 9, 10, 11, 12, ...)"]
+
+
+def test_the_nearest_floor_is_recorded_like_any_run(small_config, tmp_path):
+    record = run_job(small_config("arch=nearest"), tmp_path, [], live=False)
+    assert (record["status"], record["parameters"], record["graph"]) == ("completed", 0, "none")
+    assert 0.0 <= record["test_accuracy"] <= 1.0 and record["epochs_run"] is None

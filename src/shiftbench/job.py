@@ -130,9 +130,9 @@ def run_job(config: DictConfig, output_dir: Path, overrides: list[str], live: bo
 
 
 def summary_line(record: dict[str, Any]) -> str:
-    """One line per job: family, graph, order, parameters, test accuracy (or the failure)."""
+    """One line per job: family, data, graph, order, parameters, test accuracy (or the failure)."""
     order = "-" if record["order"] is None else record["order"]
-    head = f"{record['family']} on graph {record['graph']}, order {order}"
+    head = f"{record['family']} on {record['data']}, graph {record['graph']}, order {order}"
     if record["status"] != "completed":
         return f"{head}: FAILED: {record['error']}"
     epochs = "" if record["epochs_run"] is None else f"best epoch {record['best_epoch']} of {record['epochs_run']}, "
