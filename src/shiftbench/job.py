@@ -94,6 +94,8 @@ def run_job(config: DictConfig, output_dir: Path, overrides: list[str], live: bo
             if run.arch.family == "graph_conv":
                 graph = build_graph(run.graph, dataset)
                 record["graph_notes"] = graph_notes(graph)
+                for note in record["graph_notes"]:
+                    print(f"note: graph {graph_name}: {note}", flush=True)
                 shift = shift_operator(graph, run.graph.operator, run.graph.scale)
             seed_everything(run.seed)
             model = build_model(run.arch, dataset.nodes, dataset.features, dataset.classes, shift)
