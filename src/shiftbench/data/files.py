@@ -19,6 +19,7 @@ import numpy as np
 import pandas as pd
 import torch
 
+from shiftbench.csv_input import read_user_csv
 from shiftbench.data.dataset import Dataset, Splits
 from shiftbench.data.labels import encode_labels
 from shiftbench.data.splits import stratified_splits
@@ -48,12 +49,7 @@ def read_npz(path: Path) -> dict[str, np.ndarray]:
 
 
 def read_csv(path: Path) -> dict[str, np.ndarray]:
-    try:
-        table = pd.read_csv(path)
-    except pd.errors.EmptyDataError:
-        raise _fail(path, "is empty; write a header row with a 'label' column and one column per node") from None
-    except (OSError, UnicodeDecodeError, pd.errors.ParserError) as error:
-        raise _fail(path, f"cannot be read as CSV ({str(error).splitlines()[0]})") from None
+    table = read_user_csv(path, _fail, "write a header row with a 'label' column and one column per node")
     if "label" not in table.columns:
         raise _fail(path, "has no 'label' column; write a header row with a 'label' column and one column per node")
     nodes = table.drop(columns="label")

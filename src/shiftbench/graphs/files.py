@@ -21,6 +21,7 @@ import numpy as np
 import pandas as pd
 import scipy.sparse as sp
 
+from shiftbench.csv_input import read_user_csv
 from shiftbench.errors import ConfigError
 from shiftbench.graphs.graph import Graph
 
@@ -32,12 +33,7 @@ def _fail(path: Path, problem: str) -> ConfigError:
 
 
 def read_edge_list(path: Path, nodes: int) -> Graph:
-    try:
-        table = pd.read_csv(path)
-    except pd.errors.EmptyDataError:
-        raise _fail(path, "is empty; write a header source,target[,weight] and one edge a row") from None
-    except (OSError, UnicodeDecodeError, pd.errors.ParserError) as error:
-        raise _fail(path, f"cannot be read as CSV ({str(error).splitlines()[0]})") from None
+    table = read_user_csv(path, _fail, "write a header source,target[,weight] and one edge a row")
     columns = [str(column).strip() for column in table.columns]
     if columns not in (["source", "target"], ["source", "target", "weight"]):
         raise _fail(path, f"has columns {columns}; accepted: a header source,target or source,target,weight")
