@@ -2,6 +2,7 @@
 
 import numpy as np
 import pandas as pd
+import pytest
 
 from shiftbench.records import SCHEMA_VERSION, write_record
 from shiftbench.report import format_markdown, format_terminal, summary_table, write_report
@@ -29,6 +30,22 @@ def test_mean_and_sample_std_over_seeds_match_numpy():
     assert table.loc["graph_conv", "test_accuracy_mean"] == np.mean([0.90, 0.94])
 
 
+def test_the_95_percent_interval_matches_scipy_t_interval():
+    # Source: scipy.stats.t.interval (Student's t distribution with n - 1 degrees of freedom).
+    from scipy import stats
+
+    sample = [0.70, 0.80, 0.75]
+    table = summary_table(pd.DataFrame(RECORDS)).set_index("family")
+    expected = stats.t.interval(0.95, df=2, loc=np.mean(sample), scale=stats.sem(sample))
+    assert (table.loc["fc", "test_accuracy_ci95_low"], table.loc["fc", "test_accuracy_ci95_high"]) == pytest.approx(expected)
+    assert table.loc["fc", "test_accuracy_ci95"] == pytest.approx((expected[1] - expected[0]) / 2)
+
+
+def test_the_interval_needs_two_seeds():
+    table = summary_table(pd.DataFrame(RECORDS[:1]))
+    assert table["test_accuracy_ci95"].isna().all()
+
+
 def test_failed_jobs_are_counted_not_averaged():
     table = summary_table(pd.DataFrame(RECORDS)).set_index("family")
     assert (table.loc["graph_conv", "seeds"], table.loc["graph_conv", "failed"]) == (2, 1)
@@ -48,12 +65,13 @@ def test_report_writes_csv_and_markdown_with_one_row_per_setting(tmp_path):
 def test_every_markdown_line_has_as_many_cells_as_the_header():
     # The pipe-table shape of GitHub Flavored Markdown (spec 0.29, section 4.10, "Tables").
     lines = format_markdown(summary_table(pd.DataFrame(RECORDS))).splitlines()
+    assert len(lines) == 4
     cells = [line.strip().strip("|").split("|") for line in lines]
     assert all(len(row) == len(cells[0]) for row in cells)
     assert all(cell.strip().strip(":").strip("-") == "" for cell in cells[1])
 
 
 def test_terminal_and_markdown_show_missing_values_as_dashes():
-    table = summary_table(pd.DataFrame(RECORDS[:1]))
+    table = summary_table(pd.DataFrame(RECORDS[:1]))[["family", "order", "test_accuracy_ci95"]]
     assert "-" in format_terminal(table).splitlines()[2]
     assert "| - |" in format_markdown(table)

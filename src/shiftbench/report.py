@@ -6,7 +6,9 @@ import io
 from collections.abc import Iterable
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
+from scipy import stats
 
 from shiftbench.records import load_records, write_atomic
 
@@ -16,10 +18,27 @@ COLUMNS = [
     "parameters",
     "test_accuracy_mean",
     "test_accuracy_std",
+    "test_accuracy_ci95",
+    "test_accuracy_ci95_low",
+    "test_accuracy_ci95_high",
     "seeds",
     "train_seconds_mean",
     "failed",
 ]
+# What the terminal and markdown tables show (the CSV holds every column).
+SHOWN = [*GROUP_KEYS, "parameters", "test_accuracy_mean", "test_accuracy_ci95", "seeds", "train_seconds_mean", "failed"]
+CONFIDENCE = 0.95
+
+
+def t_interval(mean: float, std: float, count: int, confidence: float = CONFIDENCE) -> tuple[float, float]:
+    """The Student t confidence interval of a mean over ``count`` seeds:
+    ``mean +- t_{(1+c)/2, count-1} * std / sqrt(count)``; NaN for fewer than two seeds."""
+    if count < 2 or not np.isfinite(std):
+        return float("nan"), float("nan")
+    if std == 0:
+        return mean, mean
+    low, high = stats.t.interval(confidence, df=count - 1, loc=mean, scale=std / np.sqrt(count))
+    return float(low), float(high)
 
 
 def summary_table(records: pd.DataFrame) -> pd.DataFrame:
@@ -27,7 +46,9 @@ def summary_table(records: pd.DataFrame) -> pd.DataFrame:
 
     Returns one row per (data, graph, family, order) with: ``parameters`` (median over completed
     jobs), ``test_accuracy_mean`` and ``test_accuracy_std`` (sample standard deviation, NaN for a
-    single seed), ``seeds`` (completed jobs), ``train_seconds_mean`` and ``failed`` (failed jobs).
+    single seed), the 95% Student t interval of the mean (``test_accuracy_ci95_low``/``_high``
+    and its half-width ``test_accuracy_ci95``), ``seeds`` (completed jobs),
+    ``train_seconds_mean`` and ``failed`` (failed jobs).
     """
     frame = records.copy()
     for column in ("parameters", "test_accuracy", "train_seconds", "order"):
@@ -53,6 +74,13 @@ def summary_table(records: pd.DataFrame) -> pd.DataFrame:
         .reset_index()
     )
     table["parameters"] = table["parameters"].astype("Int64")
+    intervals = [
+        t_interval(mean, std, int(count))
+        for mean, std, count in zip(table["test_accuracy_mean"], table["test_accuracy_std"], table["seeds"])
+    ]
+    table["test_accuracy_ci95_low"] = [low for low, _ in intervals]
+    table["test_accuracy_ci95_high"] = [high for _, high in intervals]
+    table["test_accuracy_ci95"] = (table["test_accuracy_ci95_high"] - table["test_accuracy_ci95_low"]) / 2
     return table[COLUMNS]
 
 
@@ -76,6 +104,7 @@ def _cells(table: pd.DataFrame) -> list[list[str]]:
 HEADERS = {
     "test_accuracy_mean": "test acc",
     "test_accuracy_std": "± std",
+    "test_accuracy_ci95": "± 95% CI",
     "train_seconds_mean": "train s",
 }
 
@@ -111,5 +140,5 @@ def write_report(paths: Iterable[Path], out: Path) -> str:
     buffer = io.StringIO()
     table.to_csv(buffer, index=False)
     write_atomic(out / "summary.csv", buffer.getvalue())
-    write_atomic(out / "summary.md", format_markdown(table))
-    return format_terminal(table)
+    write_atomic(out / "summary.md", format_markdown(table[SHOWN]))
+    return format_terminal(table[SHOWN])
