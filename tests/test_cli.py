@@ -83,9 +83,15 @@ def test_a_sweep_writes_one_record_per_job_and_the_report_tabulates_them(tmp_pat
     assert list(table["seeds"]) == [3, 3, 3]
 
 
-def test_the_families_study_runs_its_five_setups_over_three_seeds(tmp_path):
+def test_the_families_study_runs_its_five_setups_over_three_seeds_and_a_rerun_trains_nothing(tmp_path):
     result = run("shiftbench", "-m", "+experiment=families", *FAST, cwd=tmp_path)
     assert result.returncode == 0, result.stderr
+    files = sorted((tmp_path / "results" / "families").rglob("result.json"))
+    stamps = [path.stat().st_mtime_ns for path in files]
+    rerun = run("shiftbench", "-m", "+experiment=families", *FAST, cwd=tmp_path)
+    assert rerun.returncode == 0, rerun.stderr
+    assert rerun.stdout.count("skipped (already completed)") == 15
+    assert [path.stat().st_mtime_ns for path in files] == stamps
     records = records_under(tmp_path / "results" / "families")
     setups = {(r["family"], r["graph"]) for r in records}
     assert len(records) == 15

@@ -97,3 +97,34 @@ def test_the_nearest_floor_is_recorded_like_any_run(small_config, tmp_path):
     record = run_job(small_config("arch=nearest"), tmp_path, [], live=False)
     assert (record["status"], record["parameters"], record["graph"]) == ("completed", 0, "none")
     assert 0.0 <= record["test_accuracy"] <= 1.0 and record["epochs_run"] is None
+
+
+def test_a_rerun_of_a_completed_config_is_skipped_and_writes_nothing(small_config, tmp_path):
+    first = run_job(small_config("seed=3"), tmp_path / "job", [], live=False)
+    before = (tmp_path / "job" / RECORD_FILE).stat().st_mtime_ns
+    again = run_job(small_config("seed=3"), tmp_path / "job", [], live=False)
+    assert again["skipped"] is True and again["finished"] == first["finished"]
+    assert (tmp_path / "job" / RECORD_FILE).stat().st_mtime_ns == before
+
+
+def test_a_completed_record_elsewhere_in_the_sweep_folder_also_counts(small_config, tmp_path):
+    run_job(small_config("seed=4"), tmp_path / "sweep" / "0", [], live=False, search_root=tmp_path / "sweep")
+    again = run_job(small_config("seed=4"), tmp_path / "sweep" / "7", [], live=False, search_root=tmp_path / "sweep")
+    assert again["skipped"] is True and not (tmp_path / "sweep" / "7").exists()
+
+
+def test_force_recomputes_a_completed_config(small_config, tmp_path):
+    run_job(small_config("seed=3"), tmp_path / "job", [], live=False)
+    again = run_job(small_config("seed=3", "force=true"), tmp_path / "job", [], live=False)
+    assert "skipped" not in again and again["status"] == "completed"
+
+
+def test_a_failed_record_is_retried(small_config, tmp_path, monkeypatch):
+    def explode(*args, **kwargs):
+        raise RuntimeError("simulated failure")
+
+    with monkeypatch.context() as patch:
+        patch.setattr(shiftbench.job, "train", explode)
+        assert run_job(small_config("seed=6"), tmp_path / "job", [], live=False)["status"] == "failed"
+    retried = run_job(small_config("seed=6"), tmp_path / "job", [], live=False)
+    assert retried["status"] == "completed" and "skipped" not in retried

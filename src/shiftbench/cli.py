@@ -34,8 +34,13 @@ def _job(config: DictConfig) -> str:
     in_sweep = hydra_config.mode == RunMode.MULTIRUN
     overrides = list(OmegaConf.to_container(hydra_config.overrides.task))  # type: ignore[arg-type]
     try:
+        output_dir = Path(hydra_config.runtime.output_dir)
         record = run_job(
-            config, Path(hydra_config.runtime.output_dir), overrides, live=sys.stdout.isatty() and not in_sweep
+            config,
+            output_dir,
+            overrides,
+            live=sys.stdout.isatty() and not in_sweep,
+            search_root=Path(hydra_config.sweep.dir).resolve() if in_sweep else output_dir,
         )
     except ConfigError as error:
         fail(str(error))

@@ -361,13 +361,14 @@ class RunConfig:
     seed: int
     results_dir: str
     device: str
+    force: bool
     data: DataConfig
     graph: GraphConfig
     arch: FcConfig | GraphConvConfig | NearestConfig
     train: TrainConfig
 
 
-ROOT_KEYS = ("seed", "results_dir", "device", "data", "graph", "arch", "train")
+ROOT_KEYS = ("seed", "results_dir", "device", "force", "data", "graph", "arch", "train")
 GROUPS: dict[str, tuple[str, dict[str, type]]] = {
     "data": ("source", DATA_SCHEMAS),
     "graph": ("source", GRAPH_SCHEMAS),
@@ -389,8 +390,9 @@ def validate(config: DictConfig) -> RunConfig:
     require_choice("device", device, DEVICES)
     require("device", device, device != "cuda" or torch.cuda.is_available(), "cpu (no CUDA device is available here)")
     require("results_dir", results_dir, isinstance(results_dir, str) and results_dir != "", "a folder path")
+    require("force", config.force, isinstance(config.force, bool), "true or false")
     groups = {group: _validate_group(group, config[group]) for group in GROUPS}
-    run = RunConfig(seed=seed, results_dir=results_dir, device=device, **groups)
+    run = RunConfig(seed=seed, results_dir=results_dir, device=device, force=config.force, **groups)
     nodes = run.data.known_nodes()
     if nodes is not None:
         check_graph_fits(run.graph, run.arch.family, nodes)

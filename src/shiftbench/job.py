@@ -7,6 +7,7 @@ config raises :class:`ConfigError` before any work; any failure after that becom
 
 from __future__ import annotations
 
+import json
 import resource
 import traceback
 from datetime import datetime, timezone
@@ -21,7 +22,7 @@ from shiftbench.graphs import Graph, build_graph, operator_matrix, shift_operato
 from shiftbench.models import build_model, count_parameters
 from shiftbench.models.nearest import fit_nearest
 from shiftbench.progress import EpochProgress
-from shiftbench.records import SCHEMA_VERSION, config_hash, versions, write_curve, write_record
+from shiftbench.records import SCHEMA_VERSION, completed_index, config_hash, versions, write_curve, write_record
 from shiftbench.training import seed_everything, train
 
 
@@ -57,11 +58,24 @@ def structure(run: RunConfig) -> tuple[str, str]:
     return "none", "none"
 
 
-def run_job(config: DictConfig, output_dir: Path, overrides: list[str], live: bool) -> dict[str, Any]:
+def run_job(
+    config: DictConfig, output_dir: Path, overrides: list[str], live: bool, search_root: Path | None = None
+) -> dict[str, Any]:
     """Validate ``config``, run the job, write ``result.json`` and ``curve.csv`` into ``output_dir``,
-    print one summary line, and return the record."""
+    print one summary line, and return the record.
+
+    When a completed record with the same config hash lies under ``search_root`` (default
+    ``output_dir``: for a sweep, its folder), the job is skipped with a note and that record is
+    returned with ``skipped: true``, unless ``force`` is set. Failed records are retried.
+    """
     run = validate(config)
     plain = as_plain_dict(run)
+    index = completed_index(search_root or output_dir)
+    done = None if run.force else index.find(config_hash(plain))
+    if done is not None:
+        previous = json.loads(done.read_text(encoding="utf-8"))
+        print(f"skipped (already completed): {summary_line(previous)}", flush=True)
+        return {**previous, "skipped": True}
     graph_name, operator = structure(run)
     record: dict[str, Any] = {
         "schema_version": SCHEMA_VERSION,
@@ -126,7 +140,9 @@ def run_job(config: DictConfig, output_dir: Path, overrides: list[str], live: bo
     record["versions"] = versions()
     record["finished"] = datetime.now(timezone.utc).isoformat(timespec="seconds")
     write_curve(output_dir, curve)
-    write_record(output_dir, record)
+    path = write_record(output_dir, record)
+    if record["status"] == "completed":
+        index.add(record["config_hash"], path)
     print(summary_line(record), flush=True)
     return record
 

@@ -22,8 +22,8 @@ import shiftbench
 SCHEMA_VERSION = 1
 RECORD_FILE = "result.json"
 CURVE_FILE = "curve.csv"
-# Keys of the config that say where output goes, not what was computed.
-OUTPUT_KEYS = ("results_dir",)
+# Keys of the config that say where output goes or whether to recompute, not what is computed.
+OUTPUT_KEYS = ("results_dir", "force")
 
 
 def write_atomic(path: Path, text: str) -> Path:
@@ -113,3 +113,38 @@ def load_records(paths: Iterable[Path]) -> pd.DataFrame:
     frame = pd.DataFrame(rows)
     frame.attrs["skipped"] = skipped
     return frame
+
+
+class CompletedIndex:
+    """The completed records under a folder, by config hash: read once, then kept current by
+    :meth:`add`, so a sweep of many jobs in one process reads each record once."""
+
+    def __init__(self, root: Path) -> None:
+        self.root = root
+        self.by_hash: dict[str, Path] = {}
+        for path in find_records([root]) if root.is_dir() else []:
+            try:
+                record = json.loads(path.read_text(encoding="utf-8"))
+            except (OSError, ValueError):
+                continue
+            if isinstance(record, dict) and record.get("status") == "completed" and "config_hash" in record:
+                self.by_hash[record["config_hash"]] = path
+
+    def find(self, config_hash: str) -> Path | None:
+        """The record file of a completed job with this hash, if it is still there."""
+        path = self.by_hash.get(config_hash)
+        return path if path is not None and path.is_file() else None
+
+    def add(self, config_hash: str, path: Path) -> None:
+        self.by_hash[config_hash] = path
+
+
+_INDEXES: dict[Path, CompletedIndex] = {}
+
+
+def completed_index(root: Path) -> CompletedIndex:
+    """The (cached) index of completed records under ``root``."""
+    root = root.resolve()
+    if root not in _INDEXES:
+        _INDEXES[root] = CompletedIndex(root)
+    return _INDEXES[root]
