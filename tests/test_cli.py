@@ -75,6 +75,9 @@ def test_a_sweep_writes_one_record_per_job_and_the_report_tabulates_them(tmp_pat
     assert result.returncode == 0, result.stderr
     records = records_under(tmp_path / "results" / "multirun")
     assert len(records) == 9 and all(r["status"] == "completed" for r in records)
+    progress = [line for line in result.stdout.splitlines() if line.startswith("[")]
+    assert [line.split("]")[0] for line in progress] == [f"[{k}/9" for k in range(1, 10)]
+    assert "sweep done: 9 completed, 0 skipped, 0 failed" in result.stdout
 
     report = run("shiftbench-report", "results/multirun", "--out", "tables", cwd=tmp_path)
     assert report.returncode == 0, report.stderr
@@ -91,6 +94,7 @@ def test_the_families_study_runs_its_five_setups_over_three_seeds_and_a_rerun_tr
     rerun = run("shiftbench", "-m", "+experiment=families", *FAST, cwd=tmp_path)
     assert rerun.returncode == 0, rerun.stderr
     assert rerun.stdout.count("skipped (already completed)") == 15
+    assert "sweep done: 0 completed, 15 skipped, 0 failed" in rerun.stdout
     assert [path.stat().st_mtime_ns for path in files] == stamps
     records = records_under(tmp_path / "results" / "families")
     setups = {(r["family"], r["graph"]) for r in records}

@@ -29,7 +29,7 @@ def fail(message: str) -> None:
 
 
 @hydra.main(version_base="1.3", config_path=str(CONFIG_DIR), config_name="config")
-def _job(config: DictConfig) -> str:
+def _job(config: DictConfig) -> dict:
     hydra_config = HydraConfig.get()
     in_sweep = hydra_config.mode == RunMode.MULTIRUN
     overrides = list(OmegaConf.to_container(hydra_config.overrides.task))  # type: ignore[arg-type]
@@ -44,7 +44,8 @@ def _job(config: DictConfig) -> str:
         )
     except ConfigError as error:
         fail(str(error))
-    return record["status"]
+    # What the sweep progress callback shows for this job.
+    return {key: record.get(key) for key in ("status", "skipped", "family", "data", "test_accuracy")}
 
 
 def main() -> None:

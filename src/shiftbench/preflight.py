@@ -9,6 +9,7 @@ user's data and graph files are read and checked.
 
 from __future__ import annotations
 
+import math
 import re
 from pathlib import Path
 
@@ -45,6 +46,35 @@ def _line(key: str, value: str) -> str:
     return f"{key}={value}"
 
 
+def split_overrides(overrides: list[str]) -> tuple[dict[str, list[str]], list[str]]:
+    """Sweep axes (key -> its ``key=value`` lines) and the fixed overrides of a command line."""
+    axes: dict[str, list[str]] = {}
+    fixed: list[str] = []
+    for override in OverridesParser.create().parse_overrides(overrides):
+        key = override.get_key_element()
+        if override.is_sweep_override():
+            axes[key] = [_line(key, value) for value in override.sweep_string_iterator()]
+        else:
+            fixed.append(override.input_line)
+    return axes, fixed
+
+
+def add_study_axes(axes: dict[str, list[str]], fixed: list[str], study_params: dict) -> None:
+    """Add a study's ``hydra.sweeper.params`` axes that the command line does not override."""
+    given = {key.lstrip("+~") for key in axes} | {line.split("=", 1)[0].lstrip("+~") for line in fixed}
+    for key, values in study_params.items():
+        if key.lstrip("+~") not in given:
+            (override,) = OverridesParser.create().parse_overrides([_line(key, str(values))])
+            axes[key] = [_line(key, value) for value in override.sweep_string_iterator()]
+
+
+def count_jobs(task_overrides: list[str], study_params: dict) -> int:
+    """How many jobs a sweep launches: the product of its axes' lengths."""
+    axes, fixed = split_overrides(task_overrides)
+    add_study_axes(axes, fixed, study_params)
+    return math.prod(len(values) for values in axes.values())
+
+
 def preflight(arguments: list[str], config_dir: Path) -> int:
     """Validate every job a command line would launch; return how many configs were checked.
 
@@ -55,27 +85,14 @@ def preflight(arguments: list[str], config_dir: Path) -> int:
     if overrides is None:
         return 0
     try:
-        parsed = OverridesParser.create().parse_overrides(overrides)
+        axes, fixed = split_overrides(overrides)
     except HydraException as error:
         raise ConfigError(_one_line(str(error))) from None
-    axes: dict[str, list[str]] = {}
-    fixed: list[str] = []
-    for override in parsed:
-        key = override.get_key_element()
-        if override.is_sweep_override():
-            axes[key] = [_line(key, value) for value in override.sweep_string_iterator()]
-        else:
-            fixed.append(override.input_line)
 
     with initialize_config_dir(str(config_dir), version_base="1.3", job_name="shiftbench"):
         base = fixed + [values[0] for values in axes.values()]
         config = _compose(base)
-        study_axes = config.hydra.sweeper.get("params") or {}
-        given = {key.lstrip("+~") for key in axes} | {line.split("=", 1)[0].lstrip("+~") for line in fixed}
-        for key, values in study_axes.items():
-            if key.lstrip("+~") not in given:
-                (override,) = OverridesParser.create().parse_overrides([_line(key, str(values))])
-                axes[key] = [_line(key, value) for value in override.sweep_string_iterator()]
+        add_study_axes(axes, fixed, config.hydra.sweeper.get("params") or {})
         base = fixed + [values[0] for values in axes.values()]
         checked = 0
         _validate(_compose(base))
