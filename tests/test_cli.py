@@ -1,6 +1,7 @@
 """The command line, run as a user would: from a folder outside the project."""
 
 import json
+import re
 import subprocess
 import sys
 from pathlib import Path
@@ -75,7 +76,7 @@ def test_a_sweep_writes_one_record_per_job_and_the_report_tabulates_them(tmp_pat
     assert result.returncode == 0, result.stderr
     records = records_under(tmp_path / "results" / "multirun")
     assert len(records) == 9 and all(r["status"] == "completed" for r in records)
-    progress = [line for line in result.stdout.splitlines() if line.startswith("[")]
+    progress = [line for line in result.stdout.splitlines() if re.match(r"\[\d+/\d+\] ", line)]
     assert [line.split("]")[0] for line in progress] == [f"[{k}/9" for k in range(1, 10)]
     assert "sweep done: 9 completed, 0 skipped, 0 failed" in result.stdout
 
