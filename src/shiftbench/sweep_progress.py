@@ -31,7 +31,8 @@ class SweepProgress(Callback):
 
     def on_multirun_start(self, config: DictConfig, **kwargs: Any) -> None:
         task = list(OmegaConf.to_container(config.hydra.overrides.task))  # type: ignore[arg-type]
-        params = OmegaConf.to_container(config.hydra.sweeper.get("params") or {})
+        study = config.hydra.sweeper.get("params")
+        params = OmegaConf.to_container(study) if study else {}
         self.total = count_jobs(task, params)  # type: ignore[arg-type]
         self.started = time.perf_counter()
 
