@@ -120,3 +120,20 @@ def test_report_on_a_folder_without_records_is_a_one_line_error(tmp_path):
     result = run("shiftbench-report", str(tmp_path), cwd=tmp_path)
     assert result.returncode == 2
     assert result.stderr.strip() == f"shiftbench-report: error: no records (result.json) found under {tmp_path}"
+
+
+@pytest.mark.parametrize("launcher", ["joblib", "submitit_local"])
+def test_parallel_launchers_write_every_record_and_a_rerun_trains_nothing(tmp_path, launcher):
+    arguments = ["-m", "arch=fc,line_conv,graph_conv", "seed=0,1", *FAST, f"hydra/launcher={launcher}",
+                 "hydra.sweep.dir=results/sweep"]
+    if launcher == "joblib":
+        arguments.append("hydra.launcher.n_jobs=2")
+    result = run("shiftbench", *arguments, cwd=tmp_path)
+    assert result.returncode == 0, result.stderr
+    files = sorted((tmp_path / "results" / "sweep").rglob("result.json"))
+    assert len(files) == 6 and all(json.loads(path.read_text())["status"] == "completed" for path in files)
+    stamps = [path.stat().st_mtime_ns for path in files]
+    rerun = run("shiftbench", *arguments, cwd=tmp_path)
+    assert rerun.returncode == 0, rerun.stderr
+    assert "sweep done: 0 completed, 6 skipped, 0 failed" in rerun.stdout
+    assert [path.stat().st_mtime_ns for path in files] == stamps

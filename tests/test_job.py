@@ -128,3 +128,18 @@ def test_a_failed_record_is_retried(small_config, tmp_path, monkeypatch):
         assert run_job(small_config("seed=6"), tmp_path / "job", [], live=False)["status"] == "failed"
     retried = run_job(small_config("seed=6"), tmp_path / "job", [], live=False)
     assert retried["status"] == "completed" and "skipped" not in retried
+
+
+def test_parallel_jobs_share_the_cores_without_oversubscribing(monkeypatch):
+    import os
+
+    import torch
+
+    from shiftbench.job import share_cores
+
+    monkeypatch.setattr(os, "cpu_count", lambda: 8)
+    before = torch.get_num_threads()
+    try:
+        assert [share_cores(jobs) for jobs in (1, 2, 3, 8, 16, -1, None)] == [8, 4, 2, 1, 1, 1, 1]
+    finally:
+        torch.set_num_threads(before)

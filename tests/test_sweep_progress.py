@@ -1,9 +1,16 @@
-"""Sweep progress: job counting and the per-job and closing lines."""
+"""Sweep progress: job counting, the shared progress file, and the lines printed."""
 
-from types import SimpleNamespace
+import json
 
 from shiftbench.preflight import count_jobs
-from shiftbench.sweep_progress import SweepProgress
+from shiftbench.sweep_progress import append_line, job_line, read_progress, tally_line
+
+HEADER = {"total": 3, "started": 100.0}
+FINISHED = [
+    {"status": "completed", "family": "fc", "data": "digits", "test_accuracy": 0.9},
+    {"status": "skipped", "family": "fc", "data": "digits", "test_accuracy": 0.9},
+    {"status": "failed", "family": "graph_conv", "data": "digits", "test_accuracy": None},
+]
 
 
 def test_jobs_are_the_product_of_the_axes_with_command_line_axes_replacing_the_studys():
@@ -13,18 +20,20 @@ def test_jobs_are_the_product_of_the_axes_with_command_line_axes_replacing_the_s
     assert count_jobs(["seed=range(4)", "train.epochs=3"], {}) == 4
 
 
-def test_each_finished_job_prints_its_place_and_the_end_prints_the_tally(capsys):
-    progress = SweepProgress()
-    progress.total, progress.started = 3, 0.0
-    for outcome in (
-        {"status": "completed", "family": "fc", "data": "digits", "test_accuracy": 0.9},
-        {"status": "completed", "skipped": True, "family": "fc", "data": "digits", "test_accuracy": 0.9},
-        {"status": "failed", "family": "graph_conv", "data": "digits", "test_accuracy": None},
-    ):
-        progress.on_job_end(None, SimpleNamespace(return_value=outcome))
-    progress.on_multirun_end(None)
-    lines = capsys.readouterr().out.splitlines()
-    assert lines[0].startswith("[1/3] fc on digits: test accuracy 0.900 (completed)")
-    assert lines[1].startswith("[2/3] fc on digits: test accuracy 0.900 (skipped)")
-    assert lines[2].startswith("[3/3] graph_conv on digits: failed (failed)")
-    assert lines[3].startswith("sweep done: 1 completed, 1 skipped, 1 failed")
+def test_progress_file_keeps_the_header_and_every_appended_job(tmp_path):
+    path = tmp_path / "progress.jsonl"
+    path.write_text(json.dumps(HEADER) + "\n")
+    for entry in FINISHED:
+        append_line(path, entry)
+    assert read_progress(path) == (HEADER, FINISHED)
+
+
+def test_job_line_shows_place_result_elapsed_and_time_left():
+    assert job_line(HEADER, FINISHED[:1], now=110.0) == (
+        "[1/3] fc on digits: test accuracy 0.900 (completed), elapsed 10s, left ~20s"
+    )
+    assert job_line(HEADER, FINISHED, now=190.0).startswith("[3/3] graph_conv on digits: failed (failed)")
+
+
+def test_tally_counts_completed_skipped_and_failed():
+    assert tally_line(HEADER, FINISHED, now=230.0) == "sweep done: 1 completed, 1 skipped, 1 failed in 2m10s"

@@ -13,7 +13,7 @@ from hydra.types import RunMode
 from omegaconf import DictConfig, OmegaConf
 
 from shiftbench.config import ConfigError
-from shiftbench.job import run_job
+from shiftbench.job import run_job, share_cores
 from shiftbench.preflight import preflight
 from shiftbench.report import write_report
 
@@ -33,6 +33,8 @@ def _job(config: DictConfig) -> dict:
     hydra_config = HydraConfig.get()
     in_sweep = hydra_config.mode == RunMode.MULTIRUN
     overrides = list(OmegaConf.to_container(hydra_config.overrides.task))  # type: ignore[arg-type]
+    if "n_jobs" in hydra_config.launcher:
+        share_cores(hydra_config.launcher.n_jobs)
     try:
         output_dir = Path(hydra_config.runtime.output_dir)
         record = run_job(
@@ -55,7 +57,10 @@ def main() -> None:
         preflight(sys.argv[1:], CONFIG_DIR)
     except ConfigError as error:
         fail(str(error))
-    _job()
+    try:
+        _job()
+    except ValueError as error:  # Hydra's own refusals of a command line, e.g. two modes at once
+        fail(str(error))
 
 
 def report_main(arguments: list[str] | None = None) -> None:

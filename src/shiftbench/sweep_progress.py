@@ -1,18 +1,26 @@
 """Sweep progress: one line per finished job, and the tally at the end of a sweep.
 
-A Hydra callback (registered in ``configs/config.yaml``); it sees the jobs that run in its own
-process, which is every job under the basic launcher.
+A Hydra callback (registered in ``configs/config.yaml``). Jobs may finish in other processes
+(joblib workers, submitit jobs), so progress lives in a small append-only file in the sweep
+folder: its first line holds the job count and start time, and each finished job appends one
+line. Appends of one short line are atomic, so parallel jobs never garble each other's.
 """
 
 from __future__ import annotations
 
+import json
+import os
 import time
+from pathlib import Path
 from typing import Any
 
+from hydra.core.hydra_config import HydraConfig
 from hydra.experimental.callback import Callback
 from omegaconf import DictConfig, OmegaConf
 
 from shiftbench.preflight import count_jobs
+
+PROGRESS_FILE = ".progress.jsonl"
 
 
 def format_seconds(seconds: float) -> str:
@@ -20,43 +28,66 @@ def format_seconds(seconds: float) -> str:
     return f"{minutes}m{rest:02d}s" if minutes else f"{rest}s"
 
 
-class SweepProgress(Callback):
-    """Prints ``[k/n] family data: test accuracy, elapsed, left`` as each job ends."""
+def append_line(path: Path, entry: dict[str, Any]) -> None:
+    descriptor = os.open(path, os.O_WRONLY | os.O_APPEND | os.O_CREAT, 0o644)
+    try:
+        os.write(descriptor, (json.dumps(entry) + "\n").encode())
+    finally:
+        os.close(descriptor)
 
-    def __init__(self) -> None:
-        self.total = 0
-        self.started = 0.0
-        self.finished = 0
-        self.tally = {"completed": 0, "skipped": 0, "failed": 0}
+
+def read_progress(path: Path) -> tuple[dict[str, Any], list[dict[str, Any]]]:
+    """The sweep's header (``total``, ``started``) and the finished jobs' entries."""
+    lines = [json.loads(line) for line in path.read_text(encoding="utf-8").splitlines() if line.strip()]
+    return lines[0], lines[1:]
+
+
+def job_line(header: dict[str, Any], finished: list[dict[str, Any]], now: float) -> str:
+    """``[k/n] family on data: test accuracy (status), elapsed, left`` for the latest job."""
+    latest, count = finished[-1], len(finished)
+    elapsed = now - header["started"]
+    left = elapsed / count * max(header["total"] - count, 0)
+    accuracy = latest.get("test_accuracy")
+    result = f"test accuracy {accuracy:.3f}" if accuracy is not None else latest["status"]
+    return (
+        f"[{count}/{header['total']}] {latest.get('family')} on {latest.get('data')}: {result} "
+        f"({latest['status']}), elapsed {format_seconds(elapsed)}, left ~{format_seconds(left)}"
+    )
+
+
+def tally_line(header: dict[str, Any], finished: list[dict[str, Any]], now: float) -> str:
+    counts = {status: sum(entry["status"] == status for entry in finished) for status in ("completed", "skipped", "failed")}
+    return (
+        f"sweep done: {counts['completed']} completed, {counts['skipped']} skipped, {counts['failed']} failed "
+        f"in {format_seconds(now - header['started'])}"
+    )
+
+
+class SweepProgress(Callback):
+    """Prints a progress line as each job of a sweep ends, and the tally when the sweep ends."""
+
+    @staticmethod
+    def _path(config: DictConfig) -> Path:
+        return Path(config.hydra.sweep.dir).resolve() / PROGRESS_FILE
 
     def on_multirun_start(self, config: DictConfig, **kwargs: Any) -> None:
         task = list(OmegaConf.to_container(config.hydra.overrides.task))  # type: ignore[arg-type]
         study = config.hydra.sweeper.get("params")
         params = OmegaConf.to_container(study) if study else {}
-        self.total = count_jobs(task, params)  # type: ignore[arg-type]
-        self.started = time.perf_counter()
+        path = self._path(config)
+        path.parent.mkdir(parents=True, exist_ok=True)
+        path.write_text(json.dumps({"total": count_jobs(task, params), "started": time.time()}) + "\n")  # type: ignore[arg-type]
 
     def on_job_end(self, config: DictConfig, job_return: Any, **kwargs: Any) -> None:
-        if self.total == 0:  # a single run, not a sweep
+        if HydraConfig.get().mode.name != "MULTIRUN":
             return
-        self.finished += 1
         outcome = job_return.return_value if isinstance(job_return.return_value, dict) else {}
-        status = "skipped" if outcome.get("skipped") else outcome.get("status", "failed")
-        self.tally[status if status in self.tally else "failed"] += 1
-        elapsed = time.perf_counter() - self.started
-        left = elapsed / self.finished * (self.total - self.finished)
-        accuracy = outcome.get("test_accuracy")
-        result = f"test accuracy {accuracy:.3f}" if accuracy is not None else status
-        print(
-            f"[{self.finished}/{self.total}] {outcome.get('family', '?')} on {outcome.get('data', '?')}: "
-            f"{result} ({status}), elapsed {format_seconds(elapsed)}, left ~{format_seconds(left)}",
-            flush=True,
-        )
+        status = "skipped" if outcome.get("skipped") else outcome.get("status") or "failed"
+        path = self._path(config)
+        append_line(path, {**outcome, "status": status})
+        header, finished = read_progress(path)
+        print(job_line(header, finished, time.time()), flush=True)
 
     def on_multirun_end(self, config: DictConfig, **kwargs: Any) -> None:
-        tally = self.tally
-        print(
-            f"sweep done: {tally['completed']} completed, {tally['skipped']} skipped, {tally['failed']} failed "
-            f"in {format_seconds(time.perf_counter() - self.started)}",
-            flush=True,
-        )
+        header, finished = read_progress(self._path(config))
+        print(tally_line(header, finished, time.time()), flush=True)
