@@ -23,3 +23,13 @@ def composed(overrides: list[str]) -> DictConfig:
 @pytest.fixture
 def small_config():
     return lambda *overrides: composed([*SMALL, *overrides])
+
+
+@pytest.fixture(autouse=True)
+def fresh_cache():
+    """Each test builds its own datasets and graphs (the process-wide cache starts empty)."""
+    from shiftbench import cache
+
+    cache.clear()
+    yield
+    cache.clear()

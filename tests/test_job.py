@@ -143,3 +143,26 @@ def test_parallel_jobs_share_the_cores_without_oversubscribing(monkeypatch):
         assert [share_cores(jobs) for jobs in (1, 2, 3, 8, 16, -1, None)] == [8, 4, 2, 1, 1, 1, 1]
     finally:
         torch.set_num_threads(before)
+
+
+def test_jobs_in_one_process_build_a_shared_dataset_and_graph_once(small_config, tmp_path, monkeypatch):
+    from shiftbench import cache
+
+    cache.clear()
+    calls = {"data": 0, "graph": 0}
+    real_load, real_build = shiftbench.job.load_dataset, shiftbench.job.build_graph
+
+    def counting_load(config):
+        calls["data"] += 1
+        return real_load(config)
+
+    def counting_build(config, dataset):
+        calls["graph"] += 1
+        return real_build(config, dataset)
+
+    monkeypatch.setattr(shiftbench.job, "load_dataset", counting_load)
+    monkeypatch.setattr(shiftbench.job, "build_graph", counting_build)
+    for seed in range(3):
+        run_job(small_config(f"seed={seed}", "graph=sbm"), tmp_path / str(seed), [], live=False)
+    run_job(small_config("arch=fc"), tmp_path / "fc", [], live=False)
+    assert calls == {"data": 1, "graph": 1}

@@ -18,6 +18,7 @@ from typing import Any
 import torch
 from omegaconf import DictConfig
 
+from shiftbench.cache import shared
 from shiftbench.config import ConfigError, RunConfig, as_plain_dict, check_graph_fits, validate
 from shiftbench.data import load_dataset
 from shiftbench.graphs import Graph, build_graph, operator_matrix, shift_operator
@@ -45,7 +46,7 @@ def check_inputs(run: RunConfig) -> None:
     uses_graph_file = run.arch.family == "graph_conv" and run.graph.source == "file"
     if run.data.source != "file" and not uses_graph_file:
         return
-    dataset = load_dataset(run.data)
+    dataset = shared("dataset", (run.data,), lambda: load_dataset(run.data))
     check_graph_fits(run.graph, run.arch.family, dataset.nodes)
     if uses_graph_file:
         operator_matrix(build_graph(run.graph, dataset), run.graph.operator)
@@ -109,7 +110,7 @@ def run_job(
     }
     curve: list[dict[str, float]] = []
     try:
-        dataset = load_dataset(run.data)
+        dataset = shared("dataset", (run.data,), lambda: load_dataset(run.data))
         check_graph_fits(run.graph, run.arch.family, dataset.nodes)
         record["nodes"] = dataset.nodes
         record["data"] = dataset.name
@@ -119,11 +120,13 @@ def run_job(
         else:
             shift = None
             if run.arch.family == "graph_conv":
-                graph = build_graph(run.graph, dataset)
+                graph = shared("graph", (run.data, run.graph), lambda: build_graph(run.graph, dataset))
                 record["graph_notes"] = graph_notes(graph)
                 for note in record["graph_notes"]:
                     print(f"note: graph {graph_name}: {note}", flush=True)
-                shift = shift_operator(graph, run.graph.operator, run.graph.scale)
+                shift = shared(
+                    "shift", (run.data, run.graph), lambda: shift_operator(graph, run.graph.operator, run.graph.scale)
+                )
             seed_everything(run.seed)
             model = build_model(run.arch, dataset.nodes, dataset.features, dataset.classes, shift)
             record["parameters"] = count_parameters(model)
