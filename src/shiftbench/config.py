@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import typing
 from dataclasses import asdict, dataclass, field, fields
-from typing import Any
+from typing import Any, Optional
 
 import torch
 from omegaconf import DictConfig, OmegaConf
@@ -39,6 +39,10 @@ def require(key: str, value: Any, ok: bool, accepted: str) -> None:
 def require_choice(key: str, value: Any, choices: typing.Iterable[str]) -> None:
     choices = tuple(choices)
     require(key, value, value in choices, "one of " + ", ".join(choices))
+
+
+def require_budget(budget: int | None) -> None:
+    require("budget", budget, budget is None or budget >= 1, "null (widths as configured) or an integer >= 1")
 
 
 def require_fraction(key: str, value: float) -> None:
@@ -267,8 +271,10 @@ class FcConfig:
     hidden: list[int] = field(default_factory=lambda: [64])
     nonlinearity: str = "relu"
     dropout: float = 0.0
+    budget: Optional[int] = None
 
     def __post_init__(self) -> None:
+        require_budget(self.budget)
         require("hidden", self.hidden, all(w >= 1 for w in self.hidden), "a list of integers >= 1")
         require_choice("nonlinearity", self.nonlinearity, NONLINEARITIES)
         require("dropout", self.dropout, 0.0 <= self.dropout < 1.0, "a probability in [0, 1)")
@@ -285,8 +291,10 @@ class GraphConvConfig:
     readout: str = "mean"
     dropout: float = 0.0
     normalization: str = "none"
+    budget: Optional[int] = None
 
     def __post_init__(self) -> None:
+        require_budget(self.budget)
         require("order", self.order, self.order >= 0, "an integer >= 0")
         require(
             "channels",
@@ -448,6 +456,9 @@ def _type_name(annotation: Any) -> str:
     plural = {int: "integers", float: "numbers", str: "strings", bool: "booleans"}
     if annotation in singular:
         return singular[annotation]
+    if typing.get_origin(annotation) is typing.Union:
+        kinds = [item for item in typing.get_args(annotation) if item is not type(None)]
+        return "null or " + " or ".join(_type_name(item) for item in kinds)
     if typing.get_origin(annotation) is list:
         (item,) = typing.get_args(annotation)
         return f"a list of {plural.get(item, item)}"

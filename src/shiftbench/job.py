@@ -23,6 +23,7 @@ from shiftbench.config import ConfigError, RunConfig, as_plain_dict, check_graph
 from shiftbench.data import load_dataset
 from shiftbench.graphs import Graph, build_graph, operator_matrix, shift_operator
 from shiftbench.models import build_model, count_parameters
+from shiftbench.models.budget import WIDTH_KEY, fit_budget
 from shiftbench.models.nearest import fit_nearest
 from shiftbench.progress import EpochProgress
 from shiftbench.records import SCHEMA_VERSION, completed_index, config_hash, versions, write_curve, write_record
@@ -127,8 +128,13 @@ def run_job(
                 shift = shared(
                     "shift", (run.data, run.graph), lambda: shift_operator(graph, run.graph.operator, run.graph.scale)
                 )
+            arch = run.arch
+            if arch.budget is not None:
+                arch, _ = fit_budget(arch, arch.budget, dataset.nodes, dataset.features, dataset.classes)
+                record["budget"] = arch.budget
+                record["sized_widths"] = getattr(arch, WIDTH_KEY[arch.family])
             seed_everything(run.seed)
-            model = build_model(run.arch, dataset.nodes, dataset.features, dataset.classes, shift)
+            model = build_model(arch, dataset.nodes, dataset.features, dataset.classes, shift)
             record["parameters"] = count_parameters(model)
             progress = EpochProgress(run.train.epochs, live)
             try:

@@ -1,0 +1,71 @@
+"""Parameter budgets: size a family's widths so its trainable count lands near a target.
+
+The widths keep their configured shape (``hidden`` or ``channels``) and are scaled by one
+factor ``s``: ``width_i = max(1, round(s * base_i))``. The count never falls as ``s`` grows,
+so bisection on ``s`` finds the two sizes around the budget, and the closer one is kept.
+"""
+
+from __future__ import annotations
+
+from dataclasses import replace
+from typing import Any
+
+import torch
+
+from shiftbench.models import build_model
+from shiftbench.models.parameters import count_parameters
+
+# How far from the budget a sized network may land, as a share of the budget.
+TOLERANCE = 0.05
+WIDTH_KEY = {"fc": "hidden", "line_conv": "channels", "graph_conv": "channels"}
+
+
+class BudgetError(RuntimeError):
+    """No widths of this shape reach the budget within the tolerance."""
+
+
+def _scaled(arch: Any, scale: float) -> Any:
+    key = WIDTH_KEY[arch.family]
+    return replace(arch, **{key: [max(1, round(scale * width)) for width in getattr(arch, key)]})
+
+
+def _count(arch: Any, nodes: int, features: int, classes: int) -> int:
+    # The count does not depend on the graph, only on its size: an empty shift serves.
+    shift = torch.sparse_coo_tensor(
+        torch.zeros((2, 0), dtype=torch.int64), torch.zeros(0), (nodes, nodes), check_invariants=True
+    )
+    return count_parameters(build_model(arch, nodes, features, classes, shift))
+
+
+def fit_budget(arch: Any, budget: int, nodes: int, features: int, classes: int) -> tuple[Any, int]:
+    """The arch config with widths scaled to ``budget`` parameters, and the count it has.
+
+    Raises:
+        BudgetError: when even width 1 everywhere exceeds the budget, or the nearest size is more
+            than 5% away; the message says which and by how much.
+    """
+    key = WIDTH_KEY[arch.family]
+    smallest = _scaled(arch, 0.0)
+    least = _count(smallest, nodes, features, classes)
+    if least > budget * (1 + TOLERANCE):
+        raise BudgetError(
+            f"arch.budget={budget} cannot be met: {arch.family} with {key}={getattr(smallest, key)} already has "
+            f"{least:,} parameters at {nodes} nodes; accepted: a budget of at least {least:,}"
+        )
+    low, high = 0.0, 1.0
+    while _count(_scaled(arch, high), nodes, features, classes) < budget:
+        low, high = high, high * 2
+    for _ in range(40):
+        middle = (low + high) / 2
+        if _count(_scaled(arch, middle), nodes, features, classes) < budget:
+            low = middle
+        else:
+            high = middle
+    candidates = [(_count(_scaled(arch, scale), nodes, features, classes), scale) for scale in (low, high)]
+    count, scale = min(candidates, key=lambda pair: abs(pair[0] - budget))
+    if abs(count - budget) > TOLERANCE * budget:
+        raise BudgetError(
+            f"arch.budget={budget} cannot be met within 5%: the nearest {arch.family} with {key} shaped like "
+            f"{getattr(arch, key)} has {count:,} parameters"
+        )
+    return _scaled(arch, scale), count

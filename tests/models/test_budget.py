@@ -1,0 +1,33 @@
+"""Parameter budgets: sized networks land within 5% of the budget, or say why they cannot."""
+
+import pytest
+
+from shiftbench.config import FcConfig, GraphConvConfig, LineConvConfig
+from shiftbench.models.budget import BudgetError, _count, fit_budget
+from shiftbench.models.parameters import count_parameters
+
+
+@pytest.mark.parametrize("arch", [FcConfig(hidden=[64, 32]), LineConvConfig(), GraphConvConfig(order=5)], ids=lambda a: a.family)
+@pytest.mark.parametrize("budget", [2_000, 20_000, 200_000])
+def test_sized_network_lands_within_five_percent(arch, budget):
+    sized, count = fit_budget(arch, budget, nodes=64, features=2, classes=5)
+    assert abs(count - budget) <= 0.05 * budget
+    assert _count(sized, 64, 2, 5) == count
+
+
+def test_widths_keep_their_configured_shape():
+    sized, _ = fit_budget(FcConfig(hidden=[200, 100]), 50_000, nodes=64, features=1, classes=4)
+    first, second = sized.hidden
+    assert abs(first / second - 2.0) < 0.05
+
+
+def test_a_budget_below_the_smallest_network_names_its_size():
+X
+    with pytest.raises(BudgetError, match=r"arch.budget=1000 cannot be met: fc with hidden=\[1\] already has 4,105"):
+        fit_budget(FcConfig(), 1000, nodes=4096, features=1, classes=4)
+
+
+def test_the_count_function_is_torchs_own():
+    from shiftbench.models import FullyConnected
+
+    assert _count(FcConfig(hidden=[7]), 10, 1, 3) == count_parameters(FullyConnected(10, 1, [7], 3))
