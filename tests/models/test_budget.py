@@ -22,7 +22,7 @@ def test_widths_keep_their_configured_shape():
 
 
 def test_a_budget_below_the_smallest_network_names_its_size():
-X
+    # At width 1, fc has 4096 weights + 1 bias, then 1 * 4 weights + 4 biases for the classes.
     with pytest.raises(BudgetError, match=r"arch.budget=1000 cannot be met: fc with hidden=\[1\] already has 4,105"):
         fit_budget(FcConfig(), 1000, nodes=4096, features=1, classes=4)
 
