@@ -89,7 +89,7 @@ def preflight(arguments: list[str], config_dir: Path) -> int:
     except HydraException as error:
         raise ConfigError(_one_line(str(error))) from None
 
-    with initialize_config_dir(str(config_dir), version_base="1.3", job_name="shiftbench"):
+    with initialize_config_dir(str(config_dir.resolve()), version_base="1.3", job_name="shiftbench"):
         base = fixed + [values[0] for values in axes.values()]
         config = _compose(base)
         add_study_axes(axes, fixed, config.hydra.sweeper.get("params") or {})
