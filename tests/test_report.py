@@ -5,7 +5,7 @@ import pandas as pd
 import pytest
 
 from shiftbench.records import SCHEMA_VERSION, write_record
-from shiftbench.report import format_markdown, format_terminal, summary_table, write_report
+from shiftbench.report import filter_records, format_markdown, format_terminal, summary_table, write_report
 
 
 def record(family, graph, order, seed, accuracy, status="completed"):
@@ -57,14 +57,17 @@ def test_report_writes_csv_and_markdown_with_one_row_per_setting(tmp_path):
         write_record(tmp_path / str(number), entry)
     text = write_report([tmp_path], tmp_path)
     assert len(pd.read_csv(tmp_path / "summary.csv")) == 2
-    markdown = (tmp_path / "summary.md").read_text().splitlines()
-    assert len(markdown) == 4 and markdown[0].startswith("| data")
+    markdown = (tmp_path / "summary.md").read_text()
+    rows = [line for line in markdown.splitlines() if line.startswith("|")]
+    assert len(rows) == 4 and rows[0].startswith("| graph | family")
+    assert "All rows: `data=sensor_regimes`." in markdown
+    assert "![accuracy vs parameters](accuracy_vs_parameters.png)" in markdown
     assert max(len(line) for line in text.splitlines()) <= 100
 
 
 def test_every_markdown_line_has_as_many_cells_as_the_header():
     # The pipe-table shape of GitHub Flavored Markdown (spec 0.29, section 4.10, "Tables").
-    lines = format_markdown(summary_table(pd.DataFrame(RECORDS))).splitlines()
+    lines = format_markdown(summary_table(pd.DataFrame(RECORDS)).drop(columns="paths")).splitlines()
     assert len(lines) == 4
     cells = [line.strip().strip("|").split("|") for line in lines]
     assert all(len(row) == len(cells[0]) for row in cells)
@@ -75,3 +78,23 @@ def test_terminal_and_markdown_show_missing_values_as_dashes():
     table = summary_table(pd.DataFrame(RECORDS[:1]))[["family", "order", "test_accuracy_ci95"]]
     assert "-" in format_terminal(table).splitlines()[2]
     assert "| - |" in format_markdown(table)
+
+
+def test_filters_keep_matching_records_and_reject_unknown_columns():
+    frame = pd.DataFrame(RECORDS)
+    assert set(filter_records(frame, ["family=fc"])["seed"]) == {0, 1, 2}
+    assert filter_records(frame, ["family=fc", "seed=1"])["seed"].tolist() == [1]
+    with pytest.raises(ValueError, match="no column 'colour'"):
+        filter_records(frame, ["colour=red"])
+
+
+def test_rows_sort_by_the_requested_column():
+    table = summary_table(pd.DataFrame(RECORDS), by=["test_accuracy_mean"])
+    assert table["family"].tolist() == ["fc", "graph_conv"]
+    with pytest.raises(ValueError, match="--by 'speed'"):
+        summary_table(pd.DataFrame(RECORDS), by=["speed"])
+
+
+def test_records_that_differ_beyond_the_described_fields_are_separate_rows():
+    differing = [dict(entry, config={"train": {"lr": lr}, "seed": entry["seed"]}) for entry in RECORDS[:3] for lr in (0.1, 0.01)]
+    assert len(summary_table(pd.DataFrame(differing))) == 2

@@ -68,14 +68,19 @@ def report_main(arguments: list[str] | None = None) -> None:
         prog="shiftbench-report", description="Tabulate the records found under one or more folders."
     )
     parser.add_argument("paths", nargs="+", type=Path, help="folders (searched recursively) or result.json files")
-    parser.add_argument("--out", type=Path, help="where to write summary.csv and summary.md (default: the first path)")
+    parser.add_argument("--out", type=Path, help="where to write the tables and plots (default: the first path)")
+    parser.add_argument(
+        "--where", action="append", default=[], metavar="KEY=VALUE", help="keep records with this field value (repeatable)"
+    )
+    parser.add_argument("--by", action="append", default=[], metavar="COLUMN", help="sort rows by this column (repeatable)")
+    parser.add_argument("--curves", type=int, metavar="ROW", help="also plot the learning curves of this table row")
     options = parser.parse_args(arguments)
     missing = [str(path) for path in options.paths if not path.exists()]
     if missing:
         parser.exit(2, f"shiftbench-report: error: no such file or folder: {missing[0]}\n")
     out = options.out or (options.paths[0] if options.paths[0].is_dir() else options.paths[0].parent)
     try:
-        text = write_report(options.paths, out)
+        text = write_report(options.paths, out, options.where, options.by, options.curves)
     except ValueError as error:
         parser.exit(2, f"shiftbench-report: error: {error}\n")
     print(text)

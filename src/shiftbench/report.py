@@ -1,8 +1,9 @@
-"""Tables from records: one row per (data, graph, family, order), figures over seeds."""
+"""Tables from records: one row per setting (a config up to its seed), figures over seeds."""
 
 from __future__ import annotations
 
 import io
+import json
 from collections.abc import Iterable
 from pathlib import Path
 
@@ -10,11 +11,12 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from shiftbench.records import load_records, write_atomic
+from shiftbench import plots
+from shiftbench.records import OUTPUT_KEYS, load_records, write_atomic
 
-GROUP_KEYS = ["data", "graph", "family", "order"]
-COLUMNS = [
-    *GROUP_KEYS,
+# What tells settings apart, in the order tables show it.
+DESCRIBE = ["data", "nodes", "graph", "operator", "family", "order", "budget"]
+FIGURES = [
     "parameters",
     "test_accuracy_mean",
     "test_accuracy_std",
@@ -23,11 +25,20 @@ COLUMNS = [
     "test_accuracy_ci95_high",
     "seeds",
     "train_seconds_mean",
+    "epoch_seconds_mean",
     "failed",
 ]
 # What the terminal and markdown tables show (the CSV holds every column).
-SHOWN = [*GROUP_KEYS, "parameters", "test_accuracy_mean", "test_accuracy_ci95", "seeds", "train_seconds_mean", "failed"]
+SHOWN = ["parameters", "test_accuracy_mean", "test_accuracy_ci95", "seeds", "train_seconds_mean", "failed"]
+HEADERS = {
+    "test_accuracy_mean": "test acc",
+    "test_accuracy_std": "± std",
+    "test_accuracy_ci95": "± 95% CI",
+    "train_seconds_mean": "train s",
+    "epoch_seconds_mean": "s/epoch",
+}
 CONFIDENCE = 0.95
+INTEGER_COLUMNS = ("nodes", "order", "budget", "parameters")
 
 
 def t_interval(mean: float, std: float, count: int, confidence: float = CONFIDENCE) -> tuple[float, float]:
@@ -41,39 +52,67 @@ def t_interval(mean: float, std: float, count: int, confidence: float = CONFIDEN
     return float(low), float(high)
 
 
-def summary_table(records: pd.DataFrame) -> pd.DataFrame:
-    """Aggregate records over seeds.
+def setting_of(record: pd.Series) -> str:
+    """What a record computed, up to its seed: its config minus seed and output keys (or, for a
+    record without a config, its describing fields)."""
+    config = record.get("config")
+    if isinstance(config, dict):
+        content = {key: value for key, value in config.items() if key not in ("seed", *OUTPUT_KEYS)}
+    else:
+        content = {key: None if pd.isna(record.get(key)) else record.get(key) for key in DESCRIBE}
+    return json.dumps(content, sort_keys=True, default=str)
 
-    Returns one row per (data, graph, family, order) with: ``parameters`` (median over completed
-    jobs), ``test_accuracy_mean`` and ``test_accuracy_std`` (sample standard deviation, NaN for a
-    single seed), the 95% Student t interval of the mean (``test_accuracy_ci95_low``/``_high``
-    and its half-width ``test_accuracy_ci95``), ``seeds`` (completed jobs),
-    ``train_seconds_mean`` and ``failed`` (failed jobs).
+
+def filter_records(records: pd.DataFrame, where: Iterable[str]) -> pd.DataFrame:
+    """Keep the records whose ``key`` column reads ``value`` for every ``key=value`` given."""
+    for condition in where:
+        key, separator, value = condition.partition("=")
+        if not separator:
+            raise ValueError(f"--where {condition!r} is not accepted; accepted: key=value, e.g. family=graph_conv")
+        if key not in records.columns:
+            raise ValueError(f"--where {condition!r}: no column {key!r}; accepted: {', '.join(DESCRIBE)} or any record field")
+        records = records[records[key].map(lambda cell: str(cell) if not pd.isna(cell) else "-") == value]
+    return records
+
+
+def summary_table(records: pd.DataFrame, by: Iterable[str] = ()) -> pd.DataFrame:
+    """Aggregate records over seeds: one row per setting.
+
+    Columns: the describing fields (``data, nodes, graph, operator, family, order, budget``),
+    ``parameters`` (median over completed jobs), ``test_accuracy_mean`` and ``_std`` (sample
+    standard deviation), the 95% Student t interval of the mean (``_ci95_low``, ``_ci95_high``
+    and half-width ``_ci95``), ``seeds`` (completed jobs), ``train_seconds_mean``,
+    ``epoch_seconds_mean``, ``failed`` (failed jobs), and ``paths`` (the records' folders).
+    Rows are sorted by ``by`` (default: the describing fields).
     """
     frame = records.copy()
-    for column in ("parameters", "test_accuracy", "train_seconds", "order"):
+    for column in [*DESCRIBE, "parameters", "test_accuracy", "train_seconds", "epochs_run", "path"]:
         if column not in frame:
             frame[column] = float("nan")
-    frame["completed"] = frame["status"] == "completed"
-    frame["is_failed"] = ~frame["completed"]
-    done = frame.where(frame["completed"])
-    frame["parameters"] = done["parameters"]
-    frame["test_accuracy"] = done["test_accuracy"]
-    frame["train_seconds"] = done["train_seconds"]
-    frame["order"] = frame["order"].astype("Int64")
+    frame["setting"] = [setting_of(row) for _, row in frame.iterrows()]
+    completed = frame["status"] == "completed"
+    frame["completed"] = completed
+    frame["is_failed"] = ~completed
+    for column in ("parameters", "test_accuracy", "train_seconds"):
+        frame[column] = pd.to_numeric(frame[column].where(completed), errors="coerce")
+    frame["epoch_seconds"] = frame["train_seconds"] / pd.to_numeric(frame["epochs_run"], errors="coerce")
     table = (
-        frame.groupby(GROUP_KEYS, dropna=False, sort=True)
+        frame.groupby("setting", sort=False)
         .agg(
+            **{column: (column, "first") for column in DESCRIBE},
             parameters=("parameters", "median"),
             test_accuracy_mean=("test_accuracy", "mean"),
             test_accuracy_std=("test_accuracy", "std"),
             seeds=("completed", "sum"),
             train_seconds_mean=("train_seconds", "mean"),
+            epoch_seconds_mean=("epoch_seconds", "mean"),
             failed=("is_failed", "sum"),
+            paths=("path", lambda paths: [p for p in paths if isinstance(p, str)]),
         )
-        .reset_index()
+        .reset_index(drop=True)
     )
-    table["parameters"] = table["parameters"].astype("Int64")
+    for column in INTEGER_COLUMNS:
+        table[column] = pd.to_numeric(table[column], errors="coerce").round().astype("Int64")
     intervals = [
         t_interval(mean, std, int(count))
         for mean, std, count in zip(table["test_accuracy_mean"], table["test_accuracy_std"], table["seeds"])
@@ -81,47 +120,64 @@ def summary_table(records: pd.DataFrame) -> pd.DataFrame:
     table["test_accuracy_ci95_low"] = [low for low, _ in intervals]
     table["test_accuracy_ci95_high"] = [high for _, high in intervals]
     table["test_accuracy_ci95"] = (table["test_accuracy_ci95_high"] - table["test_accuracy_ci95_low"]) / 2
-    return table[COLUMNS]
+    order = list(by) or DESCRIBE
+    unknown = [column for column in order if column not in table.columns]
+    if unknown:
+        raise ValueError(f"--by {unknown[0]!r} is not accepted; accepted: {', '.join(DESCRIBE + FIGURES)}")
+    table = table.sort_values(order, na_position="last", kind="stable").reset_index(drop=True)
+    return table[[*DESCRIBE, *FIGURES, "paths"]]
+
+
+def split_constants(table: pd.DataFrame) -> tuple[dict[str, str], pd.DataFrame]:
+    """Describing columns that hold one value in every row (said once, above the table), and the
+    table of what is left to show."""
+    constants = {}
+    for column in DESCRIBE:
+        values = {"-" if pd.isna(value) else str(value) for value in table[column]}
+        if len(values) == 1 and column != "family" and len(table) > 1:
+            value = values.pop()
+            if value != "-":  # a field no row has is not worth a word
+                constants[column] = value
+    single = [column for column in DESCRIBE if column != "family" and len(table) > 1 and table[column].nunique(dropna=False) == 1]
+    shown = [column for column in DESCRIBE if column not in single] + SHOWN
+    return constants, table[shown]
 
 
 def _cells(table: pd.DataFrame) -> list[list[str]]:
     """Every value of ``table`` as display text (accuracies to 3 places, seconds to 1)."""
 
     def show(column: str, value: object) -> str:
+        if isinstance(value, (list, tuple)):
+            return ", ".join(map(str, value))
         if pd.isna(value):
             return "-"
         if column.startswith("test_accuracy"):
             return f"{value:.3f}"
-        if column == "train_seconds_mean":
-            return f"{value:.1f}"
-        if column == "parameters":
+        if column.endswith("seconds_mean"):
+            return f"{value:.1f}" if column.startswith("train") else f"{value:.3f}"
+        if column in ("parameters", "budget"):
             return f"{int(value):,}"
         return str(value)
 
     return [[show(column, value) for column, value in zip(table.columns, row)] for row in table.itertuples(index=False)]
 
 
-HEADERS = {
-    "test_accuracy_mean": "test acc",
-    "test_accuracy_std": "± std",
-    "test_accuracy_ci95": "± 95% CI",
-    "train_seconds_mean": "train s",
-}
+def _numeric(table: pd.DataFrame) -> list[bool]:
+    return [pd.api.types.is_numeric_dtype(table[column]) for column in table.columns]
 
 
 def format_markdown(table: pd.DataFrame) -> str:
     headers = [HEADERS.get(column, column) for column in table.columns]
-    numeric = [pd.api.types.is_numeric_dtype(table[column]) for column in table.columns]
-    lines = ["| " + " | ".join(headers) + " |", "|" + "".join(" ---: |" if n else " --- |" for n in numeric)]
+    lines = ["| " + " | ".join(headers) + " |", "|" + "".join(" ---: |" if n else " --- |" for n in _numeric(table))]
     lines += ["| " + " | ".join(row) + " |" for row in _cells(table)]
     return "\n".join(lines) + "\n"
 
 
 def format_terminal(table: pd.DataFrame) -> str:
-    headers = [HEADERS.get(column, column) for column in table.columns]
-    rows = _cells(table)
+    headers = ["row", *(HEADERS.get(column, column) for column in table.columns)]
+    rows = [[str(number), *cells] for number, cells in enumerate(_cells(table))]
     widths = [max(len(text) for text in column) for column in zip(headers, *rows)]
-    numeric = [pd.api.types.is_numeric_dtype(table[column]) for column in table.columns]
+    numeric = [True, *_numeric(table)]
 
     def line(texts: list[str]) -> str:
         return "  ".join(t.rjust(w) if n else t.ljust(w) for t, w, n in zip(texts, widths, numeric)).rstrip()
@@ -129,16 +185,42 @@ def format_terminal(table: pd.DataFrame) -> str:
     return "\n".join([line(headers), line(["-" * w for w in widths]), *map(line, rows)])
 
 
-def write_report(paths: Iterable[Path], out: Path) -> str:
-    """Load the records under ``paths``, write ``summary.csv`` and ``summary.md`` into ``out``,
-    and return the table as terminal text."""
+def _constants_line(constants: dict[str, str]) -> str:
+    return "  ".join(f"{key}={value}" for key, value in constants.items())
+
+
+def write_report(
+    paths: Iterable[Path], out: Path, where: Iterable[str] = (), by: Iterable[str] = (), curves: int | None = None
+) -> str:
+    """Load the records under ``paths``, write ``summary.csv``, ``summary.md`` and the plots that
+    the records support into ``out``, and return the table as terminal text.
+
+    Args:
+        where: ``key=value`` filters on record fields.
+        by: columns to sort the rows by.
+        curves: a row number whose learning curves to plot (``curves_row<N>.png``).
+    """
     paths = list(paths)
-    records = load_records(paths)
+    records = filter_records(load_records(paths), where)
     if records.empty:
         raise ValueError(f"no records (result.json) found under {', '.join(map(str, paths))}")
-    table = summary_table(records)
+    table = summary_table(records, by)
+    if curves is not None and not 0 <= curves < len(table):
+        raise ValueError(f"--curves {curves} is not accepted; accepted: a row number 0..{len(table) - 1}")
     buffer = io.StringIO()
-    table.to_csv(buffer, index=False)
+    table.drop(columns="paths").to_csv(buffer, index=False)
     write_atomic(out / "summary.csv", buffer.getvalue())
-    write_atomic(out / "summary.md", format_markdown(table[SHOWN]))
-    return format_terminal(table[SHOWN])
+    figures = plots.standard_plots(table, out)
+    if curves is not None:
+        figures.append(plots.learning_curves(table.loc[curves, "paths"], out / f"curves_row{curves}.png")[0])
+    constants, shown = split_constants(table)
+    markdown = ["# Summary", ""]
+    if constants:
+        markdown += [f"All rows: {', '.join(f'`{k}={v}`' for k, v in constants.items())}.", ""]
+    markdown += [format_markdown(shown)]
+    markdown += [f"![{figure.stem.replace('_', ' ')}]({figure.name})\n" for figure in figures]
+    write_atomic(out / "summary.md", "\n".join(markdown))
+    text = format_terminal(shown)
+    head = _constants_line(constants)
+    written = ", ".join(figure.name for figure in figures)
+    return "\n".join(filter(None, [head, text, f"plots: {written}" if written else ""]))

@@ -1,0 +1,132 @@
+"""Plots of a summary table, written as PNG. Each function returns the points it drew, so
+tests can check them against the table without reading pixels."""
+
+from __future__ import annotations
+
+import io
+from pathlib import Path
+
+import matplotlib
+
+matplotlib.use("Agg")  # files only: no display is needed or assumed
+
+import matplotlib.pyplot as plt  # noqa: E402
+import pandas as pd  # noqa: E402
+
+from shiftbench.records import CURVE_FILE  # noqa: E402
+
+MARKERS = {"fc": "s", "line_conv": "^", "graph_conv": "o", "nearest": "x"}
+
+
+def _save(figure: plt.Figure, path: Path) -> Path:
+    """Render to PNG in memory, then write it atomically (temporary file, then rename)."""
+    buffer = io.BytesIO()
+    figure.savefig(buffer, format="png", dpi=110, bbox_inches="tight")
+    plt.close(figure)
+    temporary = path.with_name(f".{path.name}.tmp")
+    temporary.write_bytes(buffer.getvalue())
+    temporary.replace(path)
+    return path
+
+
+def _label(row: pd.Series, keys: list[str]) -> str:
+    return " ".join(str(row[key]) for key in keys if not pd.isna(row[key]))
+
+
+def accuracy_vs_parameters(table: pd.DataFrame, path: Path) -> tuple[Path, pd.DataFrame]:
+    """Mean test accuracy (with its 95% interval) against trainable parameters, log x, one marker
+    per family. Rows without parameters (the 0-parameter floor) are drawn at x = 1."""
+    points = table[["family", "parameters", "test_accuracy_mean", "test_accuracy_ci95"]].dropna(subset=["test_accuracy_mean"])
+    points = points.assign(x=points["parameters"].fillna(0).clip(lower=1).astype(float))
+    figure, axis = plt.subplots(figsize=(6, 4))
+    for family, group in points.groupby("family", sort=True):
+        axis.errorbar(
+            group["x"], group["test_accuracy_mean"], yerr=group["test_accuracy_ci95"].fillna(0).to_numpy(),
+            marker=MARKERS.get(family, "d"), linestyle="none", capsize=3, label=family,
+        )
+    axis.set_xscale("log")
+    axis.set_xlabel("trainable parameters (log)")
+    axis.set_ylabel("test accuracy (mean, 95% CI)")
+    axis.legend()
+    axis.grid(alpha=0.3)
+    return _save(figure, path), points.reset_index(drop=True)
+
+
+def accuracy_vs_order(table: pd.DataFrame, path: Path) -> tuple[Path, pd.DataFrame]:
+    """Mean test accuracy against filter order, one line per (family, graph, operator)."""
+    points = table.dropna(subset=["order", "test_accuracy_mean"])[
+        ["family", "graph", "operator", "order", "test_accuracy_mean", "test_accuracy_ci95"]
+    ]
+    figure, axis = plt.subplots(figsize=(6, 4))
+    for _, group in points.groupby(["family", "graph", "operator"], sort=True):
+        group = group.sort_values("order")
+        axis.errorbar(
+            group["order"].astype(float), group["test_accuracy_mean"], yerr=group["test_accuracy_ci95"].fillna(0).to_numpy(),
+            marker=MARKERS.get(group["family"].iloc[0], "d"), capsize=3,
+            label=_label(group.iloc[0], ["family", "graph", "operator"]),
+        )
+    axis.set_xlabel("filter order K")
+    axis.set_ylabel("test accuracy (mean, 95% CI)")
+    axis.legend(fontsize=8)
+    axis.grid(alpha=0.3)
+    return _save(figure, path), points.reset_index(drop=True)
+
+
+def scaling(table: pd.DataFrame, path: Path) -> tuple[Path, pd.DataFrame]:
+    """Test accuracy and trainable parameters against nodes, one line per family (log x)."""
+    points = table.dropna(subset=["nodes", "test_accuracy_mean"])[
+        ["family", "nodes", "parameters", "test_accuracy_mean", "test_accuracy_ci95", "epoch_seconds_mean"]
+    ]
+    figure, (accuracy, parameters) = plt.subplots(1, 2, figsize=(10, 4))
+    for family, group in points.groupby("family", sort=True):
+        group = group.sort_values("nodes")
+        marker = MARKERS.get(family, "d")
+        accuracy.errorbar(
+            group["nodes"].astype(float), group["test_accuracy_mean"], yerr=group["test_accuracy_ci95"].fillna(0).to_numpy(),
+            marker=marker, capsize=3, label=family,
+        )
+        parameters.plot(group["nodes"].astype(float), group["parameters"].astype(float).clip(lower=1), marker=marker, label=family)
+    for axis in (accuracy, parameters):
+        axis.set_xscale("log")
+        axis.set_xlabel("nodes (log)")
+        axis.grid(alpha=0.3)
+        axis.legend()
+    parameters.set_yscale("log")
+    accuracy.set_ylabel("test accuracy (mean, 95% CI)")
+    parameters.set_ylabel("trainable parameters (log)")
+    return _save(figure, path), points.reset_index(drop=True)
+
+
+def learning_curves(folders: list[str], path: Path) -> tuple[Path, pd.DataFrame]:
+    """Training loss and validation accuracy per epoch, one line per seed of a table row."""
+    curves = []
+    for folder in folders:
+        file = Path(folder) / CURVE_FILE
+        if file.is_file():
+            curve = pd.read_csv(file)
+            if not curve.empty:
+                curves.append(curve.assign(folder=folder))
+    points = pd.concat(curves, ignore_index=True) if curves else pd.DataFrame(columns=["epoch", "folder"])
+    figure, (loss, accuracy) = plt.subplots(1, 2, figsize=(10, 4))
+    for folder, curve in points.groupby("folder", sort=True):
+        name = Path(folder).name
+        loss.plot(curve["epoch"], curve["train_loss"], label=name)
+        accuracy.plot(curve["epoch"], curve["val_accuracy"], label=name)
+    loss.set_ylabel("training loss")
+    accuracy.set_ylabel("validation accuracy")
+    for axis in (loss, accuracy):
+        axis.set_xlabel("epoch")
+        axis.grid(alpha=0.3)
+    return _save(figure, path), points
+
+
+def standard_plots(table: pd.DataFrame, out: Path) -> list[Path]:
+    """The plots a table supports: accuracy against parameters always; against order when rows
+    differ in order; the scaling plot when they differ in nodes."""
+    written = [accuracy_vs_parameters(table, out / "accuracy_vs_parameters.png")[0]]
+    if table["order"].dropna().nunique() > 1:
+        written.append(accuracy_vs_order(table, out / "accuracy_vs_order.png")[0])
+    if table["nodes"].dropna().nunique() > 1:
+        written.append(scaling(table, out / "scaling.png")[0])
+    return written
+
