@@ -114,6 +114,8 @@ def learning_curves(folders: list[str], path: Path) -> tuple[Path, pd.DataFrame]
         accuracy.plot(curve["epoch"], curve["val_accuracy"], label=name)
     loss.set_ylabel("training loss")
     accuracy.set_ylabel("validation accuracy")
+    if len(points):
+        accuracy.legend(fontsize=7)
     for axis in (loss, accuracy):
         axis.set_xlabel("epoch")
         axis.grid(alpha=0.3)
