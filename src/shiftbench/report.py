@@ -128,19 +128,24 @@ def summary_table(records: pd.DataFrame, by: Iterable[str] = ()) -> pd.DataFrame
     return table[[*DESCRIBE, *FIGURES, "paths"]]
 
 
+# Figures that, when equal in every row (all seeds done, none failed), are said once instead.
+SAID_ONCE = ("seeds", "failed")
+
+
 def split_constants(table: pd.DataFrame) -> tuple[dict[str, str], pd.DataFrame]:
-    """Describing columns that hold one value in every row (said once, above the table), and the
-    table of what is left to show."""
-    constants = {}
-    for column in DESCRIBE:
-        values = {"-" if pd.isna(value) else str(value) for value in table[column]}
-        if len(values) == 1 and column != "family" and len(table) > 1:
-            value = values.pop()
-            if value != "-":  # a field no row has is not worth a word
-                constants[column] = value
-    single = [column for column in DESCRIBE if column != "family" and len(table) > 1 and table[column].nunique(dropna=False) == 1]
-    shown = [column for column in DESCRIBE if column not in single] + SHOWN
-    return constants, table[shown]
+    """Columns that hold one value in every row (said once, above the table: describing fields,
+    seed and failure counts), and the table of what is left to show."""
+    constants: dict[str, str] = {}
+    single: list[str] = []
+    if len(table) > 1:
+        for column in [*DESCRIBE, *SAID_ONCE]:
+            if column == "family" or table[column].nunique(dropna=False) != 1:
+                continue
+            single.append(column)
+            value = table[column].iloc[0]
+            if not pd.isna(value):  # a field no row has is not worth a word
+                constants[column] = str(value)
+    return constants, table[[column for column in [*DESCRIBE, *SHOWN] if column not in single]]
 
 
 def _cells(table: pd.DataFrame) -> list[list[str]]:
