@@ -166,3 +166,9 @@ def test_jobs_in_one_process_build_a_shared_dataset_and_graph_once(small_config,
         run_job(small_config(f"seed={seed}", "graph=sbm"), tmp_path / str(seed), [], live=False)
     run_job(small_config("arch=fc"), tmp_path / "fc", [], live=False)
     assert calls == {"data": 1, "graph": 1}
+
+
+def test_a_budget_that_cannot_be_met_fails_the_job_with_the_reason_and_keeps_the_budget(small_config, tmp_path):
+    record = run_job(small_config("arch=fc", "arch.budget=10"), tmp_path, [], live=False)
+    assert record["status"] == "failed" and record["budget"] == 10
+    assert record["error"].startswith("BudgetError: arch.budget=10 cannot be met")

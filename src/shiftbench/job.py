@@ -130,8 +130,8 @@ def run_job(
                 )
             arch = run.arch
             if arch.budget is not None:
-                arch, _ = fit_budget(arch, arch.budget, dataset.nodes, dataset.features, dataset.classes)
                 record["budget"] = arch.budget
+                arch, _ = fit_budget(arch, arch.budget, dataset.nodes, dataset.features, dataset.classes)
                 record["sized_widths"] = getattr(arch, WIDTH_KEY[arch.family])
             seed_everything(run.seed)
             model = build_model(arch, dataset.nodes, dataset.features, dataset.classes, shift)
