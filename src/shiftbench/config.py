@@ -220,6 +220,20 @@ class GeometricGraphConfig(GraphConfig):
 
 
 @dataclass
+class RewiredGraphConfig(GraphConfig):
+    """The native graph with its edges scrambled, every node keeping its degree."""
+
+    source: str = "rewired"
+    swaps_per_edge: float = 5.0
+    seed: int = 0
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        require("swaps_per_edge", self.swaps_per_edge, self.swaps_per_edge >= 0, "a number >= 0")
+        require("seed", self.seed, self.seed >= 0, "an integer >= 0")
+
+
+@dataclass
 class FileGraphConfig(GraphConfig):
     """The user's graph file (edge-list .csv, scipy .npz, .graphml, .gml)."""
 
@@ -257,6 +271,7 @@ GRAPH_SCHEMAS: dict[str, type] = {
     "sbm": SbmGraphConfig,
     "correlation": CorrelationGraphConfig,
     "geometric": GeometricGraphConfig,
+    "rewired": RewiredGraphConfig,
     "file": FileGraphConfig,
 }
 

@@ -69,3 +69,15 @@ def test_geometric_graph_needs_positions(tmp_path):
     np.savez(tmp_path / "data.npz", signals=np.zeros((30, 4)), labels=np.repeat([0, 1, 2], 10))
     with pytest.raises(ValueError, match="needs node positions"):
         build_graph(GeometricGraphConfig(), load_signal_file(str(tmp_path / "data.npz")))
+
+
+def test_rewiring_keeps_every_degree_and_changes_the_edges():
+    # Reference: networkx.double_edge_swap preserves the degree sequence (its documentation).
+    from shiftbench.graphs.sources import rewired_graph
+
+    native = sensor_regimes(nodes=80, samples_per_class=20).native_graph
+    rewired = rewired_graph(native, swaps_per_edge=5, seed=1)
+    degrees = lambda graph: sorted(dict(nx.Graph(graph.to_networkx().to_undirected()).degree()).items())
+    assert degrees(rewired) == degrees(native)
+    assert rewired.is_symmetric()
+    assert len(edge_set(rewired) & edge_set(native)) < 0.5 * len(edge_set(native))

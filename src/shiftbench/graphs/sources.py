@@ -69,6 +69,22 @@ def geometric_graph(positions: np.ndarray, radius: float) -> Graph:
     return Graph.from_adjacency(linked.maximum(linked.T), name="geometric", positions=positions)
 
 
+def rewired_graph(graph: Graph, swaps_per_edge: float, seed: int) -> Graph:
+    """The undirected ``graph`` randomly rewired by degree-preserving double edge swaps
+    (networkx's ``double_edge_swap``: ``u-v, x-y -> u-x, v-y``), ``swaps_per_edge`` per edge;
+    every node keeps its degree, the structure is scrambled. Weights become 1."""
+    if not graph.is_symmetric():
+        raise ConfigError(f"graph=rewired needs an undirected native graph, and {graph.name!r} is directed; accepted: data with an undirected native graph")
+    simple = nx.Graph(graph.to_networkx().to_undirected())
+    simple.remove_edges_from(nx.selfloop_edges(simple))
+    swaps = int(swaps_per_edge * simple.number_of_edges())
+    if swaps:
+        nx.double_edge_swap(simple, nswap=swaps, max_tries=swaps * 100, seed=seed)
+    matrix = nx.to_scipy_sparse_array(simple, nodelist=range(graph.nodes), weight=None, format="csr")
+    positions = None if graph.positions is None else graph.positions.numpy()
+    return Graph.from_adjacency(sp.csr_matrix(matrix), name="rewired", positions=positions)
+
+
 def sbm_graph(nodes: int, blocks: int, p_in: float, p_out: float, seed: int) -> Graph:
     """An undirected stochastic block model: ``blocks`` near-equal blocks of consecutive nodes,
     edge probability ``p_in`` inside a block and ``p_out`` between blocks."""
@@ -94,6 +110,8 @@ def build_graph(config: GraphConfig, dataset: Dataset) -> Graph:
         return path_graph(nodes)
     if source == "grid":
         return grid_graph(config.rows, config.cols)
+    if source == "rewired":
+        return rewired_graph(dataset.native_graph, config.swaps_per_edge, config.seed)
     if source == "sbm":
         return sbm_graph(nodes, config.blocks, config.p_in, config.p_out, config.seed)
     if source == "file":

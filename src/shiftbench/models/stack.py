@@ -56,6 +56,8 @@ class FilterStack(nn.Module):
         if normalization not in NORMALIZATIONS:
             raise ValueError(f"unknown normalization {normalization!r}; accepted: {', '.join(NORMALIZATIONS)}")
         self.layers = nn.ModuleList(layers)
+        self.nonlinearity = nonlinearity
+        self.normalization = normalization
         self.norms = nn.ModuleList(
             ChannelBatchNorm(width) if normalization == "batch" else nn.Identity() for width in channels
         )
