@@ -12,6 +12,7 @@ from hydra.core.hydra_config import HydraConfig
 from hydra.types import RunMode
 from omegaconf import DictConfig, OmegaConf
 
+from shiftbench.claims_report import write_claims
 from shiftbench.config import ConfigError
 from shiftbench.job import run_job, share_cores
 from shiftbench.preflight import preflight
@@ -84,3 +85,18 @@ def report_main(arguments: list[str] | None = None) -> None:
     except ValueError as error:
         parser.exit(2, f"shiftbench-report: error: {error}\n")
     print(text)
+
+
+def claims_main(arguments: list[str] | None = None) -> None:
+    parser = argparse.ArgumentParser(
+        prog="shiftbench-claims", description="Check the textbook claims on the records under a folder."
+    )
+    parser.add_argument("path", type=Path, help="a study folder (the claims study writes what every claim needs)")
+    parser.add_argument("--out", type=Path, help="where to write claims.json and claims.md (default: PATH)")
+    parser.add_argument("--seeds", type=int, default=3, help="seeds for the claims computed here (default 3)")
+    options = parser.parse_args(arguments)
+    if not options.path.is_dir():
+        parser.exit(2, f"shiftbench-claims: error: no such folder: {options.path}\n")
+    if options.seeds < 1:
+        parser.exit(2, f"shiftbench-claims: error: --seeds {options.seeds} is not accepted; accepted: an integer >= 1\n")
+    print(write_claims([options.path], options.out or options.path, tuple(range(options.seeds))))
