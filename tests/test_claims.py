@@ -78,6 +78,7 @@ def test_accuracy_against_nodes_is_reported_honestly_either_way():
 def test_graph_matters_compares_native_with_rewired_and_line_by_seed():
     rows = [
         {"status": "completed", "family": "graph_conv", "graph": graph, "nodes": 64, "seed": seed,
+         "data": "sensor_regimes", "operator": "adjacency",
          "test_accuracy": accuracy + 0.01 * seed, "path": f"{graph}/{seed}"}
         for seed in range(3) for graph, accuracy in (("native", 0.95), ("rewired", 0.3), ("line", 0.32))
     ]
@@ -90,6 +91,8 @@ def test_graph_matters_compares_native_with_rewired_and_line_by_seed():
 def test_claims_files_carry_every_id_in_order(tmp_path):
     text = write_claims([tmp_path], tmp_path, seeds=(0,))
     written = json.loads((tmp_path / "claims.json").read_text())
-    assert [claim["id"] for claim in written] == CLAIM_IDS
-    assert all(claim["verdict"] in claims.VERDICTS for claim in written)
+    assert [claim["id"] for claim in written["claims"]] == CLAIM_IDS
+    assert all(claim["verdict"] in claims.VERDICTS for claim in written["claims"])
     assert "## graph_matters: not_enough_evidence" in text
+    assert [row["nodes"] for row in written["analyses"]["transfer"]] == [64, 128, 256]
+    assert (tmp_path / "frequency_responses.png").stat().st_size > 1000

@@ -11,6 +11,7 @@ import matplotlib
 matplotlib.use("Agg")  # files only: no display is needed or assumed
 
 import matplotlib.pyplot as plt  # noqa: E402
+import numpy as np  # noqa: E402
 import pandas as pd  # noqa: E402
 
 from shiftbench.records import CURVE_FILE  # noqa: E402
@@ -132,3 +133,48 @@ def standard_plots(table: pd.DataFrame, out: Path) -> list[Path]:
         written.append(scaling(table, out / "scaling.png")[0])
     return written
 
+
+
+def frequency_responses(
+    eigenvalues: np.ndarray, summaries: list[dict], path: Path, true_responses: tuple | None = None
+) -> tuple[Path, pd.DataFrame]:
+    """Per layer, the median and 10-90% band of ``|h(lambda)|`` over channel pairs against the
+    (real) eigenvalues; beside them, the data's true responses when known
+    (``(grid, {name: response})``)."""
+    panels = len(summaries) + (1 if true_responses else 0)
+    figure, axes = plt.subplots(1, panels, figsize=(4.2 * panels, 3.6), squeeze=False)
+    x = eigenvalues.real
+    rows = []
+    for index, (axis, summary) in enumerate(zip(axes[0], summaries)):
+        axis.fill_between(x, summary["low"], summary["high"], alpha=0.3, label="10-90% of channel pairs")
+        axis.plot(x, summary["median"], label="median")
+        axis.set_title(f"layer {index + 1} (learned)")
+        axis.set_xlabel("eigenvalue of S")
+        axis.set_ylabel("|h(lambda)|")
+        axis.legend(fontsize=7)
+        rows += [{"layer": index + 1, "eigenvalue": value, "median": m} for value, m in zip(x, summary["median"])]
+    if true_responses:
+        grid, responses = true_responses
+        axis = axes[0][-1]
+        for name, response in responses.items():
+            axis.plot(grid, response, label=name)
+        axis.set_title("the regimes' true responses")
+        axis.set_xlabel("eigenvalue of S")
+        axis.legend(fontsize=7)
+    return _save(figure, path), pd.DataFrame(rows)
+
+
+def perturbation(table: pd.DataFrame, path: Path) -> tuple[Path, pd.DataFrame]:
+    """Mean test accuracy (and the range over draws) against the fraction of edges perturbed."""
+    points = table.groupby(["mode", "fraction"], as_index=False)["test_accuracy"].agg(["mean", "min", "max"])
+    figure, axis = plt.subplots(figsize=(6, 4))
+    for mode, group in points.groupby("mode", sort=True):
+        axis.errorbar(
+            group["fraction"] * 100, group["mean"],
+            yerr=[group["mean"] - group["min"], group["max"] - group["mean"]], marker="o", capsize=3, label=mode,
+        )
+    axis.set_xlabel("edges perturbed (%)")
+    axis.set_ylabel("test accuracy (mean, range over draws)")
+    axis.legend()
+    axis.grid(alpha=0.3)
+    return _save(figure, path), points

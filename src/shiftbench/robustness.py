@@ -1,0 +1,87 @@
+"""A trained graph_conv under a changed graph: perturbed edges, and networks of other sizes.
+
+A graph_conv's weights do not depend on the graph, so the same model runs on any shift
+operator: swapping in a perturbed or larger graph tests what its filters learned.
+"""
+
+from __future__ import annotations
+
+import copy
+
+import networkx as nx
+import numpy as np
+import pandas as pd
+import scipy.sparse as sp
+import torch
+
+from shiftbench.data.dataset import Dataset
+from shiftbench.graphs.graph import Graph
+from shiftbench.graphs.operators import shift_operator
+from shiftbench.models.graph_conv import GraphConv
+
+FRACTIONS = (0.0, 0.01, 0.05, 0.10, 0.20)
+MODES = ("drop", "rewire")
+
+
+def perturbed_graph(graph: Graph, fraction: float, mode: str, seed: int) -> Graph:
+    """``graph`` (undirected) with ``fraction`` of its edges dropped at random, or moved by
+    degree-preserving double edge swaps (each swap moves two edges)."""
+    simple = nx.Graph(graph.to_networkx().to_undirected())
+    edges = list(simple.edges)
+    rng = np.random.default_rng(seed)
+    if mode == "drop":
+        count = int(round(fraction * len(edges)))
+        chosen = rng.choice(len(edges), size=count, replace=False) if count else []
+        simple.remove_edges_from([edges[index] for index in chosen])
+    else:
+        swaps = int(round(fraction * len(edges) / 2))
+        if swaps:
+            nx.double_edge_swap(simple, nswap=swaps, max_tries=swaps * 100, seed=int(rng.integers(2**31)))
+    matrix = nx.to_scipy_sparse_array(simple, nodelist=range(graph.nodes), weight=None, format="csr")
+    return Graph.from_adjacency(sp.csr_matrix(matrix), name=f"{graph.name}_{mode}")
+
+
+def on_shift(model: GraphConv, shift: torch.Tensor) -> GraphConv:
+    """A copy of ``model`` whose every layer filters with ``shift`` (any node count)."""
+    # Sparse tensors cannot be deep-copied: hand the copy the new shift in place of the old one.
+    return copy.deepcopy(model, memo={id(layer.shift): shift for layer in model.layers})
+
+
+def accuracy_on_test(model: torch.nn.Module, dataset: Dataset) -> float:
+    model.eval()
+    test = dataset.splits.test
+    with torch.no_grad():
+        predicted = model(torch.from_numpy(dataset.signals[test])).argmax(dim=1).numpy()
+    return float((predicted == dataset.labels[test]).mean())
+
+
+def perturbation_table(
+    model: GraphConv, dataset: Dataset, graph: Graph, operator: str, scale: str,
+    fractions: tuple[float, ...] = FRACTIONS, draws: int = 5,
+) -> pd.DataFrame:
+    """Test accuracy with each fraction of edges dropped or rewired, ``draws`` random draws each.
+
+    Returns:
+        Rows ``mode, fraction, draw, test_accuracy``.
+    """
+    rows = []
+    for mode in MODES:
+        for fraction in fractions:
+            for draw in range(draws if fraction else 1):
+                changed = perturbed_graph(graph, fraction, mode, seed=draw)
+                accuracy = accuracy_on_test(on_shift(model, shift_operator(changed, operator, scale)), dataset)
+                rows.append({"mode": mode, "fraction": fraction, "draw": draw, "test_accuracy": accuracy})
+    return pd.DataFrame(rows)
+
+
+def transfer_table(model: GraphConv, datasets: list[Dataset], operator: str, scale: str) -> pd.DataFrame:
+    """Test accuracy of the unchanged ``model`` on each dataset's own native graph.
+
+    Returns:
+        Rows ``nodes, test_accuracy``.
+    """
+    rows = []
+    for dataset in datasets:
+        shift = shift_operator(dataset.native_graph, operator, scale)
+        rows.append({"nodes": dataset.nodes, "test_accuracy": accuracy_on_test(on_shift(model, shift), dataset)})
+    return pd.DataFrame(rows)
