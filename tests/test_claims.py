@@ -88,11 +88,11 @@ def test_graph_matters_compares_native_with_rewired_and_line_by_seed():
     assert claims.graph_matters(pd.DataFrame()).verdict == "not_enough_evidence"
 
 
-def test_claims_files_carry_every_id_in_order(tmp_path):
-    text = write_claims([tmp_path], tmp_path, seeds=(0,))
+def test_claims_files_carry_every_id_in_order(tmp_path, small_demo):
+    text = write_claims([tmp_path], tmp_path, seeds=(0,), demo=small_demo, epochs=3)
     written = json.loads((tmp_path / "claims.json").read_text())
     assert [claim["id"] for claim in written["claims"]] == CLAIM_IDS
     assert all(claim["verdict"] in claims.VERDICTS for claim in written["claims"])
     assert "## graph_matters: not_enough_evidence" in text
-    assert [row["nodes"] for row in written["analyses"]["transfer"]] == [64, 128, 256]
+    assert [row["nodes"] for row in written["analyses"]["transfer"]] == [24, 48, 96]
     assert (tmp_path / "frequency_responses.png").stat().st_size > 1000

@@ -9,7 +9,7 @@ from pathlib import Path
 import numpy as np
 from shiftbench import claims, plots
 from shiftbench.config import TrainConfig
-from shiftbench.data import sensor_regimes
+from shiftbench.data import Dataset, sensor_regimes
 from shiftbench.data.sensor_regimes import regime_responses
 from shiftbench.graphs.operators import shift_operator
 from shiftbench.models import GraphConv
@@ -24,11 +24,10 @@ OPERATOR, SCALE = "normalized_adjacency", "none"
 SIZE_FACTORS = (1, 2, 4)
 
 
-def evaluate(paths: Iterable[Path], seeds: tuple[int, ...] = (0, 1, 2)) -> list[claims.Claim]:
-    """The claims in a stable order: computed ones on the demo scenario, the rest from the records
-    under ``paths``."""
+def evaluate(paths: Iterable[Path], seeds: tuple[int, ...], demo: Dataset) -> list[claims.Claim]:
+    """The claims in a stable order: computed ones on ``demo``, the rest from the records under
+    ``paths``."""
     records = load_records(list(paths))
-    demo = sensor_regimes()
     return [
         claims.line_graph_equivalence(demo, seeds),
         claims.undirected_path_symmetry(),
@@ -39,14 +38,14 @@ def evaluate(paths: Iterable[Path], seeds: tuple[int, ...] = (0, 1, 2)) -> list[
     ]
 
 
-def learned_filters(out: Path, seed: int = 0) -> dict:
-    """Train a graph_conv on the demo, plot its frequency responses beside the regimes' true ones,
-    and test it on perturbed graphs and on larger networks of the same regimes."""
-    demo = sensor_regimes()
+def learned_filters(out: Path, demo: Dataset, epochs: int = 60, seed: int = 0) -> dict:
+    """Train a graph_conv on ``demo`` (a sensor_regimes dataset), plot its frequency responses
+    beside the regimes' true ones, and test it on perturbed graphs and on larger networks of the
+    same regimes."""
     shift = shift_operator(demo.native_graph, OPERATOR, SCALE)
     seed_everything(seed)
     model = GraphConv(shift, demo.features, [16, 16], demo.classes, order=3)
-    train(model, demo, TrainConfig(epochs=60), seed)
+    train(model, demo, TrainConfig(epochs=epochs), seed)
     eigenvalues = frequencies(shift)
     summaries = [summarize(responses) for responses in layer_responses(model, eigenvalues)]
     grid = np.linspace(eigenvalues.real.min(), eigenvalues.real.max(), 201)  # the spectrum this graph has
@@ -54,7 +53,8 @@ def learned_filters(out: Path, seed: int = 0) -> dict:
     plots.frequency_responses(eigenvalues, summaries, out / "frequency_responses.png", (grid, true))
     perturbation = perturbation_table(model, demo, demo.native_graph, OPERATOR, SCALE)
     plots.perturbation(perturbation, out / "perturbation.png")
-    larger = [sensor_regimes(nodes=demo.nodes * factor) for factor in SIZE_FACTORS]
+    larger = [sensor_regimes(nodes=demo.nodes * factor, samples_per_class=len(demo.labels) // demo.classes)
+              for factor in SIZE_FACTORS]
     transfer = transfer_table(model, larger, OPERATOR, SCALE)
     summary = perturbation.groupby(["mode", "fraction"])["test_accuracy"].agg(["mean", "min", "max"]).reset_index()
     return {
@@ -115,11 +115,15 @@ def format_claims(checked: list[claims.Claim]) -> str:
     return "\n".join(lines)
 
 
-def write_claims(paths: Iterable[Path], out: Path, seeds: tuple[int, ...] = (0, 1, 2)) -> str:
+def write_claims(
+    paths: Iterable[Path], out: Path, seeds: tuple[int, ...] = (0, 1, 2), demo: Dataset | None = None, epochs: int = 60
+) -> str:
     """Check every claim, run the analyses, write ``claims.json`` (``claims`` and ``analyses``),
-    ``claims.md`` and the plots into ``out``; return the claims as text."""
-    checked = evaluate(paths, seeds)
-    analyses = learned_filters(out)
+    ``claims.md`` and the plots into ``out``; return the claims as text. ``demo`` defaults to the
+    demo scenario at its defaults."""
+    demo = demo if demo is not None else sensor_regimes()
+    checked = evaluate(paths, seeds, demo)
+    analyses = learned_filters(out, demo, epochs)
     content = {"claims": [claim.as_dict() for claim in checked], "analyses": analyses}
     write_atomic(out / "claims.json", json.dumps(content, indent=2, default=float) + "\n")
     text = format_claims(checked)
