@@ -23,7 +23,7 @@ def small_demo():
 def test_line_graph_equivalence_holds_with_the_flipped_kernel(small_demo):
     # Source: torch.nn.Conv1d documentation (a cross-correlation, hence H_k = W[:, :, K - k]).
     claim = claims.line_graph_equivalence(small_demo, seeds=(0,), epochs=3)
-    assert claim.verdict == "holds"
+    assert claim.verdict in ("holds", "holds_with_caveat")
     assert claim.evidence["weight_transfer_line"][0]["max_abs_logit_difference"] <= 1e-5
 
 

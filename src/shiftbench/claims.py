@@ -99,20 +99,30 @@ def line_graph_equivalence(
             for run in runs
         )
 
-    # Float32 rounding differs between Conv1d and sparse products and training amplifies it, so
-    # parity asks for loss curves equal to 1e-3 and identical validation accuracies.
-    parity_holds = all(
-        run["max_train_loss_difference"] <= 1e-3 and run["max_val_accuracy_difference"] == 0 for run in parity
-    )
-    holds = agrees(transfer) and agrees(cycle) and parity_holds
+    # Conv1d and sparse products round differently in float32, and training amplifies the
+    # difference; parity asks for loss curves equal to 1e-3 and says when accuracies still flip.
+    transfer_holds = agrees(transfer) and agrees(cycle)
+    loss_parity = all(run["max_train_loss_difference"] <= 1e-3 for run in parity)
+    exact_parity = all(run["max_val_accuracy_difference"] == 0 for run in parity)
+    if not (transfer_holds and loss_parity):
+        verdict, why = "does_not_hold", "the mapped networks disagree beyond float32 rounding"
+    elif exact_parity:
+        verdict, why = "holds", ""
+    else:
+        worst = max(run["max_train_loss_difference"] for run in parity)
+        verdict, why = "holds_with_caveat", (
+            f"mapped weights give the same logits to float32 rounding; trained side by side, the two "
+            f"accumulate rounding differently (loss curves within {worst:.1g}), enough to flip a "
+            "validation sample at some epoch"
+        )
     return Claim(
         id="line_graph_equivalence",
         statement="A graph_conv on the directed line graph (cycle) computes exactly what a causal (circular) "
         "line_conv computes, once its taps are the CNN's flipped kernels.",
-        verdict="holds" if holds else "does_not_hold",
+        verdict=verdict,
         evidence={"seeds": list(seeds), "weight_transfer_line": transfer, "training_parity": parity,
                   "weight_transfer_cycle": cycle, "tolerance": TOLERANCE},
-        explanation="" if holds else "the mapped networks disagree beyond float32 rounding",
+        explanation=why,
     )
 
 
@@ -224,6 +234,8 @@ def parameters_vs_nodes(records: pd.DataFrame) -> Claim:
 def accuracy_vs_nodes(records: pd.DataFrame) -> Claim:
     """The slope of test accuracy against log2(nodes), per seed, then its interval over seeds."""
     frame = _completed(records)
+    if not frame.empty:  # graph_conv on the graph the data carries, not on the control graphs
+        frame = frame[(frame["family"] != "graph_conv") | (frame["graph"] == "native")]
     statement = "At a fixed training size, fc's test accuracy degrades faster with the number of nodes than graph_conv's."
     slopes: dict[str, dict[str, float]] = {}
     for family, group in (frame.groupby("family") if not frame.empty else []):
