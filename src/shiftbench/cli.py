@@ -4,6 +4,7 @@ and ``shiftbench-report``. Wiring only: the work lives in :mod:`job` and :mod:`r
 from __future__ import annotations
 
 import argparse
+import signal
 import sys
 from pathlib import Path
 
@@ -64,7 +65,13 @@ def main() -> None:
         fail(str(error))
 
 
+def quiet_on_closed_pipe() -> None:
+    """Exit silently when the reader of our output goes away (``shiftbench-report ... | head``)."""
+    signal.signal(signal.SIGPIPE, signal.SIG_DFL)
+
+
 def report_main(arguments: list[str] | None = None) -> None:
+    quiet_on_closed_pipe()
     parser = argparse.ArgumentParser(
         prog="shiftbench-report", description="Tabulate the records found under one or more folders."
     )
@@ -88,6 +95,7 @@ def report_main(arguments: list[str] | None = None) -> None:
 
 
 def claims_main(arguments: list[str] | None = None) -> None:
+    quiet_on_closed_pipe()
     parser = argparse.ArgumentParser(
         prog="shiftbench-claims", description="Check the textbook claims on the records under a folder."
     )
