@@ -53,6 +53,8 @@ def test_bad_command_line_is_one_line_naming_key_and_value(arguments, named):
         ["-m", "arch=fc,line_conv,graph_conv", "seed=0,1,2"],
         ["-m", "+experiment=families"],
         ["graph=grid", "graph.rows=8", "graph.cols=8"],
+        ["-m", "+experiment=families", "hydra/launcher=slurm_cpu", "hydra.launcher.partition=cpu"],
+        ["-m", "+experiment=claims"],
     ],
 )
 def test_documented_command_lines_pass(arguments):

@@ -81,3 +81,11 @@ def test_rewiring_keeps_every_degree_and_changes_the_edges():
     assert degrees(rewired) == degrees(native)
     assert rewired.is_symmetric()
     assert len(edge_set(rewired) & edge_set(native)) < 0.5 * len(edge_set(native))
+
+
+def test_rewiring_a_directed_graph_is_refused_with_the_reason():
+    from shiftbench.errors import ConfigError
+    from shiftbench.graphs.sources import line_graph, rewired_graph
+
+    with pytest.raises(ConfigError, match="graph=rewired needs an undirected native graph"):
+        rewired_graph(line_graph(10), swaps_per_edge=1, seed=0)
