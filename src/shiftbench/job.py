@@ -20,14 +20,14 @@ from omegaconf import DictConfig
 
 from shiftbench.cache import shared
 from shiftbench.config import ConfigError, RunConfig, as_plain_dict, check_graph_fits, validate
-from shiftbench.data import load_dataset
+from shiftbench.data import Dataset, load_dataset
 from shiftbench.graphs import Graph, build_graph, operator_matrix, shift_operator
 from shiftbench.models import build_model, count_parameters
 from shiftbench.models.budget import WIDTH_KEY, fit_budget
 from shiftbench.models.nearest import fit_nearest
 from shiftbench.progress import EpochProgress
 from shiftbench.records import SCHEMA_VERSION, completed_index, config_hash, versions, write_curve, write_record
-from shiftbench.training import seed_everything, train
+from shiftbench.training import TrainingResult, seed_everything, train
 
 
 def share_cores(parallel_jobs: int | None) -> int:
@@ -73,6 +73,34 @@ def structure(run: RunConfig) -> tuple[str, str]:
     return "none", "none"
 
 
+def fit_family(run: RunConfig, dataset: Dataset, record: dict[str, Any], live: bool) -> TrainingResult:
+    """Build and train the family ``run`` names on ``dataset`` (or fit the 1-NN floor), noting in
+    ``record`` what the record reports about the model: parameters, budget, graph notes."""
+    if run.arch.family == "nearest":
+        record["parameters"] = 0
+        return fit_nearest(dataset)
+    shift = None
+    if run.arch.family == "graph_conv":
+        graph = shared("graph", (run.data, run.graph), lambda: build_graph(run.graph, dataset))
+        record["graph_notes"] = graph_notes(graph)
+        for note in record["graph_notes"]:
+            print(f"note: graph {record['graph']}: {note}", flush=True)
+        shift = shared("shift", (run.data, run.graph), lambda: shift_operator(graph, run.graph.operator, run.graph.scale))
+    arch = run.arch
+    if arch.budget is not None:
+        record["budget"] = arch.budget
+        arch, _ = fit_budget(arch, arch.budget, dataset.nodes, dataset.features, dataset.classes)
+        record["sized_widths"] = getattr(arch, WIDTH_KEY[arch.family])
+    seed_everything(run.seed)
+    model = build_model(arch, dataset.nodes, dataset.features, dataset.classes, shift)
+    record["parameters"] = count_parameters(model)
+    progress = EpochProgress(run.train.epochs, live)
+    try:
+        return train(model, dataset, run.train, run.seed, run.device, on_epoch=progress)
+    finally:
+        progress.close()
+
+
 def run_job(
     config: DictConfig, output_dir: Path, overrides: list[str], live: bool, search_root: Path | None = None
 ) -> dict[str, Any]:
@@ -115,32 +143,7 @@ def run_job(
         check_graph_fits(run.graph, run.arch.family, dataset.nodes)
         record["nodes"] = dataset.nodes
         record["data"] = dataset.name
-        if run.arch.family == "nearest":
-            record["parameters"] = 0
-            result = fit_nearest(dataset)
-        else:
-            shift = None
-            if run.arch.family == "graph_conv":
-                graph = shared("graph", (run.data, run.graph), lambda: build_graph(run.graph, dataset))
-                record["graph_notes"] = graph_notes(graph)
-                for note in record["graph_notes"]:
-                    print(f"note: graph {graph_name}: {note}", flush=True)
-                shift = shared(
-                    "shift", (run.data, run.graph), lambda: shift_operator(graph, run.graph.operator, run.graph.scale)
-                )
-            arch = run.arch
-            if arch.budget is not None:
-                record["budget"] = arch.budget
-                arch, _ = fit_budget(arch, arch.budget, dataset.nodes, dataset.features, dataset.classes)
-                record["sized_widths"] = getattr(arch, WIDTH_KEY[arch.family])
-            seed_everything(run.seed)
-            model = build_model(arch, dataset.nodes, dataset.features, dataset.classes, shift)
-            record["parameters"] = count_parameters(model)
-            progress = EpochProgress(run.train.epochs, live)
-            try:
-                result = train(model, dataset, run.train, run.seed, run.device, on_epoch=progress)
-            finally:
-                progress.close()
+        result = fit_family(run, dataset, record, live)
         curve = result.curve
         record.update(
             status="completed",
