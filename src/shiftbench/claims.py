@@ -171,10 +171,8 @@ def permutation_equivariance(dataset: Dataset, seed: int = 0) -> Claim:
     """Relabel the nodes of graph and signals; compare the three families' logits."""
     seed_everything(seed)
     permutation = torch.randperm(dataset.nodes)
-    inverse = torch.empty_like(permutation)
-    inverse[permutation] = torch.arange(dataset.nodes)
     graph = dataset.native_graph
-    relabelled = type(graph)(graph.nodes, inverse[graph.edge_index], graph.edge_weight, name=graph.name)
+    relabelled = graph.permuted(permutation)
     x = torch.from_numpy(dataset.signals[dataset.splits.test])
     gnn = GraphConv(shift_operator(graph), dataset.features, CHANNELS, dataset.classes, ORDER)
     moved = GraphConv(shift_operator(relabelled), dataset.features, CHANNELS, dataset.classes, ORDER)

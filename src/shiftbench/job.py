@@ -113,8 +113,9 @@ def run_job(
     """
     run = validate(config)
     plain = as_plain_dict(run)
+    digest = config_hash(plain)
     index = completed_index(search_root or output_dir)
-    done = None if run.force else index.find(config_hash(plain))
+    done = None if run.force else index.find(digest)
     if done is not None:
         previous = json.loads(done.read_text(encoding="utf-8"))
         print(f"skipped (already completed): {summary_line(previous)}", flush=True)
@@ -126,7 +127,7 @@ def run_job(
         "error": None,
         "config": plain,
         "overrides": overrides,
-        "config_hash": config_hash(plain),
+        "config_hash": digest,
         "family": run.arch.family,
         "graph": graph_name,
         "operator": operator,

@@ -14,20 +14,17 @@ import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 import pandas as pd  # noqa: E402
 
-from shiftbench.records import CURVE_FILE  # noqa: E402
+from shiftbench.records import CURVE_FILE, write_atomic  # noqa: E402
 
 MARKERS = {"fc": "s", "line_conv": "^", "graph_conv": "o", "nearest": "x"}
 
 
 def _save(figure: plt.Figure, path: Path) -> Path:
-    """Render to PNG in memory, then write it atomically (temporary file, then rename)."""
+    """Render to PNG in memory, then write it atomically."""
     buffer = io.BytesIO()
     figure.savefig(buffer, format="png", dpi=110, bbox_inches="tight")
     plt.close(figure)
-    temporary = path.with_name(f".{path.name}.tmp")
-    temporary.write_bytes(buffer.getvalue())
-    temporary.replace(path)
-    return path
+    return write_atomic(path, buffer.getvalue())
 
 
 def _label(row: pd.Series, keys: list[str]) -> str:

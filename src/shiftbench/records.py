@@ -26,14 +26,16 @@ CURVE_FILE = "curve.csv"
 OUTPUT_KEYS = ("results_dir", "force")
 
 
-def write_atomic(path: Path, text: str) -> Path:
-    """Write ``text`` to ``path`` so that a reader sees the old file or the whole new one:
-    write a temporary file in the same folder, flush it to disk, then rename it over ``path``."""
+def write_atomic(path: Path, content: str | bytes) -> Path:
+    """Write ``content`` (text as UTF-8, or bytes) to ``path`` so that a reader sees the old file
+    or the whole new one: write a temporary file in the same folder, flush it to disk, then
+    rename it over ``path``."""
     path.parent.mkdir(parents=True, exist_ok=True)
     handle, temporary = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
+    data = content.encode("utf-8") if isinstance(content, str) else content
     try:
-        with os.fdopen(handle, "w", encoding="utf-8") as stream:
-            stream.write(text)
+        with os.fdopen(handle, "wb") as stream:
+            stream.write(data)
             stream.flush()
             os.fsync(stream.fileno())
         os.replace(temporary, path)

@@ -8,15 +8,14 @@ from __future__ import annotations
 
 import copy
 
-import networkx as nx
 import numpy as np
 import pandas as pd
-import scipy.sparse as sp
 import torch
 
 from shiftbench.data.dataset import Dataset
 from shiftbench.graphs.graph import Graph
 from shiftbench.graphs.operators import shift_operator
+from shiftbench.graphs.sources import swap_edges
 from shiftbench.models.graph_conv import GraphConv
 
 FRACTIONS = (0.0, 0.01, 0.05, 0.10, 0.20)
@@ -26,7 +25,7 @@ MODES = ("drop", "rewire")
 def perturbed_graph(graph: Graph, fraction: float, mode: str, seed: int) -> Graph:
     """``graph`` (undirected) with ``fraction`` of its edges dropped at random, or moved by
     degree-preserving double edge swaps (each swap moves two edges)."""
-    simple = nx.Graph(graph.to_networkx().to_undirected())
+    simple = graph.to_undirected_simple()
     edges = list(simple.edges)
     rng = np.random.default_rng(seed)
     if mode == "drop":
@@ -36,9 +35,8 @@ def perturbed_graph(graph: Graph, fraction: float, mode: str, seed: int) -> Grap
     else:
         swaps = int(round(fraction * len(edges) / 2))
         if swaps:
-            nx.double_edge_swap(simple, nswap=swaps, max_tries=swaps * 100, seed=int(rng.integers(2**31)))
-    matrix = nx.to_scipy_sparse_array(simple, nodelist=range(graph.nodes), weight=None, format="csr")
-    return Graph.from_adjacency(sp.csr_matrix(matrix), name=f"{graph.name}_{mode}")
+            swap_edges(simple, swaps, seed=int(rng.integers(2**31)))
+    return Graph.from_undirected_simple(simple, graph.nodes, f"{graph.name}_{mode}")
 
 
 def on_shift(model: GraphConv, shift: torch.Tensor) -> GraphConv:

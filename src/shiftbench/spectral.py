@@ -12,6 +12,7 @@ import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 import torch
 
+from shiftbench.graphs.operators import is_symmetric
 from shiftbench.models.graph_conv import GraphConv
 
 # Up to this many nodes the eigenvalues are computed exactly; beyond, a grid spans the extremes.
@@ -34,7 +35,7 @@ def frequencies(shift: torch.Tensor) -> np.ndarray:
     up to 2,000 nodes; beyond, ``GRID_POINTS`` values between the extreme eigenvalues of a
     symmetric operator from scipy's sparse eigensolver."""
     matrix = _to_scipy(shift)
-    symmetric = abs(matrix - matrix.T).max() < 1e-12 if matrix.nnz else True
+    symmetric = is_symmetric(matrix)
     if matrix.shape[0] <= EXACT_LIMIT:
         if symmetric:
             return np.linalg.eigvalsh(matrix.toarray())

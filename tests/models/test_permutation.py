@@ -17,10 +17,7 @@ NODES = 25
 
 
 def relabel(graph: Graph, permutation: torch.Tensor) -> Graph:
-    """Node ``permutation[n]`` of the new graph is node ``n`` of the old one."""
-    new_label = torch.empty_like(permutation)
-    new_label[permutation] = torch.arange(len(permutation))
-    return Graph(graph.nodes, new_label[graph.edge_index], graph.edge_weight, name=graph.name)
+    return graph.permuted(permutation)
 
 
 @pytest.fixture

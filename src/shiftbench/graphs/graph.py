@@ -85,6 +85,26 @@ class Graph:
         graph.add_weighted_edges_from(zip(source, target, self.edge_weight.tolist()))
         return graph
 
+    def to_undirected_simple(self) -> nx.Graph:
+        """The graph as an undirected networkx graph, one unweighted edge per linked pair."""
+        return nx.Graph(self.to_networkx().to_undirected())
+
+    @classmethod
+    def from_undirected_simple(
+        cls, graph: nx.Graph, nodes: int, name: str, positions: np.ndarray | None = None
+    ) -> Graph:
+        """The inverse of :meth:`to_undirected_simple` on nodes ``0..nodes-1``: unit weights,
+        each edge both ways."""
+        matrix = nx.to_scipy_sparse_array(graph, nodelist=range(nodes), weight=None, format="csr")
+        return cls.from_adjacency(sp.csr_matrix(matrix), name=name, positions=positions)
+
+    def permuted(self, permutation: torch.Tensor) -> Graph:
+        """The same graph with node ``n`` relabelled ``p`` where ``permutation[p] = n`` (so
+        signals reordered as ``x[:, permutation]`` live on it)."""
+        new_label = torch.empty_like(permutation)
+        new_label[permutation] = torch.arange(len(permutation))
+        return Graph(self.nodes, new_label[self.edge_index], self.edge_weight, name=self.name)
+
     def to_torch_sparse(self) -> torch.Tensor:
         """The adjacency as a ``(nodes, nodes)`` torch sparse COO tensor, ``A[target, source]``."""
         indices = torch.stack([self.edge_index[1], self.edge_index[0]])

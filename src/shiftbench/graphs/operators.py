@@ -57,6 +57,11 @@ def operator_matrix(graph: Graph, operator: str) -> sp.csr_matrix:
     raise ValueError(f"unknown shift operator {operator!r}; accepted: {', '.join(OPERATORS)}")
 
 
+def is_symmetric(matrix: sp.spmatrix, tolerance: float = 1e-12) -> bool:
+    """Whether a square sparse matrix equals its transpose to ``tolerance``."""
+    return matrix.nnz == 0 or abs(matrix - matrix.T).max() < tolerance
+
+
 def spectral_radius(matrix: sp.spmatrix) -> float:
     """``max |lambda|`` over the eigenvalues of a square sparse matrix.
 
@@ -69,9 +74,8 @@ def spectral_radius(matrix: sp.spmatrix) -> float:
         return 0.0
     if nodes <= DENSE_EIGEN_LIMIT:
         return float(np.abs(np.linalg.eigvals(matrix.toarray())).max())
-    symmetric = abs(matrix - matrix.T).max() < 1e-12
     try:
-        if symmetric:
+        if is_symmetric(matrix):
             values = spla.eigsh(matrix, k=1, which="LM", return_eigenvectors=False)
         else:
             values = spla.eigs(matrix, k=1, which="LM", return_eigenvectors=False, maxiter=nodes * 10)

@@ -75,14 +75,17 @@ def rewired_graph(graph: Graph, swaps_per_edge: float, seed: int) -> Graph:
     every node keeps its degree, the structure is scrambled. Weights become 1."""
     if not graph.is_symmetric():
         raise ConfigError(f"graph=rewired needs an undirected native graph, and {graph.name!r} is directed; accepted: data with an undirected native graph")
-    simple = nx.Graph(graph.to_networkx().to_undirected())
+    simple = graph.to_undirected_simple()
     simple.remove_edges_from(nx.selfloop_edges(simple))
-    swaps = int(swaps_per_edge * simple.number_of_edges())
-    if swaps:
-        nx.double_edge_swap(simple, nswap=swaps, max_tries=swaps * 100, seed=seed)
-    matrix = nx.to_scipy_sparse_array(simple, nodelist=range(graph.nodes), weight=None, format="csr")
+    swap_edges(simple, int(swaps_per_edge * simple.number_of_edges()), seed)
     positions = None if graph.positions is None else graph.positions.numpy()
-    return Graph.from_adjacency(sp.csr_matrix(matrix), name="rewired", positions=positions)
+    return Graph.from_undirected_simple(simple, graph.nodes, "rewired", positions)
+
+
+def swap_edges(graph: nx.Graph, swaps: int, seed: int) -> None:
+    """``swaps`` degree-preserving double edge swaps in place (``u-v, x-y -> u-x, v-y``)."""
+    if swaps:
+        nx.double_edge_swap(graph, nswap=swaps, max_tries=swaps * 100, seed=seed)
 
 
 def sbm_graph(nodes: int, blocks: int, p_in: float, p_out: float, seed: int) -> Graph:
