@@ -131,16 +131,14 @@ def test_a_failed_record_is_retried(small_config, tmp_path, monkeypatch):
 
 
 def test_parallel_jobs_share_the_cores_without_oversubscribing(monkeypatch):
-    import os
-
     import torch
 
-    from shiftbench.job import share_cores
+    from shiftbench import runtime
 
-    monkeypatch.setattr(os, "cpu_count", lambda: 8)
+    monkeypatch.setattr(runtime, "available_cores", lambda: 8)
     before = torch.get_num_threads()
     try:
-        assert [share_cores(jobs) for jobs in (1, 2, 3, 8, 16, -1, None)] == [8, 4, 2, 1, 1, 1, 1]
+        assert [runtime.share_cores(jobs) for jobs in (1, 2, 3, 8, 16, -1, None)] == [8, 4, 2, 1, 1, 1, 1]
     finally:
         torch.set_num_threads(before)
 

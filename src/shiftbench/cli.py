@@ -15,9 +15,10 @@ from omegaconf import DictConfig, OmegaConf
 
 from shiftbench.claims_report import write_claims
 from shiftbench.config import ConfigError
-from shiftbench.job import run_job, share_cores
+from shiftbench.job import run_job
 from shiftbench.preflight import preflight
 from shiftbench.report import write_report
+from shiftbench.runtime import keep_freed_memory, share_cores
 
 # The config tree lives beside the source (``configs/`` at the project root), so the app finds
 # it from any working directory.
@@ -35,8 +36,8 @@ def _job(config: DictConfig) -> dict:
     hydra_config = HydraConfig.get()
     in_sweep = hydra_config.mode == RunMode.MULTIRUN
     overrides = list(OmegaConf.to_container(hydra_config.overrides.task))  # type: ignore[arg-type]
-    if "n_jobs" in hydra_config.launcher:
-        share_cores(hydra_config.launcher.n_jobs)
+    keep_freed_memory()
+    share_cores(hydra_config.launcher.get("n_jobs", 1))
     try:
         output_dir = Path(hydra_config.runtime.output_dir)
         record = run_job(

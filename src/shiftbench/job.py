@@ -8,7 +8,6 @@ config raises :class:`ConfigError` before any work; any failure after that becom
 from __future__ import annotations
 
 import json
-import os
 import resource
 import traceback
 from datetime import datetime, timezone
@@ -28,17 +27,6 @@ from shiftbench.models.nearest import fit_nearest
 from shiftbench.progress import EpochProgress
 from shiftbench.records import SCHEMA_VERSION, completed_index, config_hash, versions, write_curve, write_record
 from shiftbench.training import TrainingResult, seed_everything, train
-
-
-def share_cores(parallel_jobs: int | None) -> int:
-    """Give this job ``cores // parallel_jobs`` torch threads (at least 1), so parallel jobs
-    together use no more threads than the machine has cores; ``None`` or ``-1`` mean one job per
-    core (joblib's convention). Returns the thread count set."""
-    cores = os.cpu_count() or 1
-    jobs = cores if parallel_jobs in (None, -1) else max(1, parallel_jobs)
-    threads = max(1, cores // jobs)
-    torch.set_num_threads(threads)
-    return threads
 
 
 def check_inputs(run: RunConfig) -> None:

@@ -111,8 +111,8 @@ def shift_operator(graph: Graph, operator: str = "adjacency", scale: str = "spec
     return scipy_to_torch_csr(sp.csr_matrix(matrix))
 
 
-def scipy_to_torch_csr(matrix: sp.csr_matrix) -> torch.Tensor:
-    """A scipy CSR matrix as a float32 torch sparse CSR tensor of the same shape."""
+def scipy_to_torch_csr(matrix: sp.csr_matrix, dtype: torch.dtype = torch.float32) -> torch.Tensor:
+    """A scipy CSR matrix as a torch sparse CSR tensor of the same shape and ``dtype``."""
     matrix = sp.csr_matrix(matrix)
     matrix.sort_indices()
     with warnings.catch_warnings():
@@ -121,7 +121,7 @@ def scipy_to_torch_csr(matrix: sp.csr_matrix) -> torch.Tensor:
         return torch.sparse_csr_tensor(
             torch.from_numpy(matrix.indptr.astype(np.int64)),
             torch.from_numpy(matrix.indices.astype(np.int64)),
-            torch.from_numpy(matrix.data.astype(np.float32)),
+            torch.from_numpy(matrix.data).to(dtype),
             size=matrix.shape,
             check_invariants=False,
         )

@@ -1,4 +1,4 @@
-"""The line-graph convolution family (1-D CNN) built on torch's Conv1d."""
+"""The line-graph convolution family (1-D CNN): causal convolutions along the node axis."""
 
 from __future__ import annotations
 
@@ -13,12 +13,31 @@ from shiftbench.models.stack import FilterStack, widths
 BOUNDARIES = ("zero", "circular")
 
 
-class CausalConv1d(nn.Module):
-    """A causal convolution along the node axis:
-    ``y_n = sum_{j=0..K} W[:, :, j] x_{n-K+j} + b``, kernel size ``K + 1``.
+def causal_convolution(x: torch.Tensor, weight: torch.Tensor, bias: torch.Tensor | None, boundary: str) -> torch.Tensor:
+    """``y_n = sum_{j=0..K} W[:, :, j] x_{n-K+j} + b`` along the node axis, kernel size ``K + 1``.
 
-    ``boundary: zero`` pads ``K`` zeros on the left (samples before the first node are zero);
-    ``circular`` wraps around (``x_{-m} = x_{N-m}``), for any ``K`` and ``N``.
+    ``boundary: zero`` takes samples before the first node as zero; ``circular`` wraps around
+    (``x_{-m} = x_{N-m}``), for any ``K`` and ``N``. Runs as a channels-last Conv2d over the
+    ``(batch, channels, 1, nodes)`` view of the input, which is the input's own memory layout and
+    measured faster on CPU than Conv1d on ``(batch, channels, nodes)`` (``make bench``).
+
+    Shapes:
+        x ``(batch, nodes, in_channels)``, weight ``(out_channels, in_channels, K + 1)``,
+        bias ``(out_channels,)`` -> ``(batch, nodes, out_channels)``.
+    """
+    order = weight.shape[-1] - 1
+    if boundary == "zero":
+        x = nn.functional.pad(x, (0, 0, order, 0))
+    else:
+        nodes = x.shape[1]
+        x = x.index_select(1, torch.arange(-order, nodes, device=x.device) % nodes)
+    view = x.contiguous().transpose(1, 2).unsqueeze(2)
+    return nn.functional.conv2d(view, weight.unsqueeze(2), bias).squeeze(2).transpose(1, 2)
+
+
+class CausalConv1d(nn.Module):
+    """A causal convolution along the node axis with a Conv1d's parameters (``self.conv``):
+    ``y_n = sum_{j=0..K} W[:, :, j] x_{n-K+j} + b``, see :func:`causal_convolution`.
 
     Shapes:
         input ``(batch, nodes, in_channels)`` -> output ``(batch, nodes, out_channels)``.
@@ -33,14 +52,7 @@ class CausalConv1d(nn.Module):
         self.conv = nn.Conv1d(in_channels, out_channels, kernel_size=order + 1)
 
     def forward(self, x: torch.Tensor) -> torch.Tensor:
-        x = x.transpose(1, 2)
-        if self.boundary == "zero":
-            x = nn.functional.pad(x, (self.order, 0))
-        else:
-            nodes = x.shape[-1]
-            wrapped = torch.arange(-self.order, nodes, device=x.device) % nodes
-            x = x.index_select(-1, wrapped)
-        return self.conv(x).transpose(1, 2)
+        return causal_convolution(x, self.conv.weight, self.conv.bias, self.boundary)
 
 
 class LineConv(FilterStack):

@@ -1,0 +1,120 @@
+"""How a graph filter multiplies by its shift operator ``S``: the plan chosen once per layer.
+
+Two plans, chosen by the structure of ``S``:
+
+- :class:`Delay`: ``S = w P`` with ``P`` the one-sample delay of the directed line graph
+  (``(P x)_n = x_{n-1}``, zero before node 0) or of the directed cycle (``x_{-1} = x_{N-1}``).
+  Then ``sum_k S^k X H_k = sum_k w^k P^k X H_k`` is a causal (circular) convolution, and the
+  layer runs as one.
+- :class:`SparseShift`: any other ``S``, as torch CSR with its transpose stored for the backward
+  pass, on the nodes renumbered by reverse Cuthill-McKee so that neighbours lie close in memory.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.sparse as sp
+import torch
+from scipy.sparse.csgraph import reverse_cuthill_mckee
+
+from shiftbench.graphs.operators import scipy_to_torch_csr
+
+BOUNDARY_OF_DELAY = {"line": "zero", "cycle": "circular"}
+
+
+@dataclass(frozen=True)
+class Delay:
+    """``S = weight * P``, ``P`` the delay of the directed ``line`` or ``cycle``."""
+
+    kind: str
+    weight: float
+
+    @property
+    def boundary(self) -> str:
+        """The padding of the equivalent causal convolution: ``zero`` or ``circular``."""
+        return BOUNDARY_OF_DELAY[self.kind]
+
+
+class SparseShift:
+    """``S`` on renumbered nodes: ``S' = Q S Q^T`` with ``Q`` the reverse Cuthill-McKee order.
+
+    :meth:`gather` moves a chunk of samples into the node-major, renumbered layout the products
+    work in, :meth:`scatter` moves results back; :meth:`apply` and :meth:`apply_transpose`
+    multiply ``(nodes, columns)`` matrices by ``S'`` and ``S'^T``.
+    """
+
+    def __init__(self, matrix: sp.csr_matrix) -> None:
+        self.nodes = matrix.shape[0]
+        order = reverse_cuthill_mckee((abs(matrix) + abs(matrix.T)).tocsr(), symmetric_mode=True)
+        renumbered = matrix[order][:, order].tocsr()
+        self.order = torch.from_numpy(order.astype(np.int64))
+        self.inverse = torch.argsort(self.order)
+        self._renumbered = {"forward": renumbered, "transpose": renumbered.T.tocsr()}
+        self._matrices: dict[tuple[str, torch.dtype], torch.Tensor] = {}
+
+    def _matrix(self, which: str, dtype: torch.dtype) -> torch.Tensor:
+        """``S'`` (``forward``) or ``S'^T`` (``transpose``) as torch CSR of ``dtype``, built once."""
+        key = (which, dtype)
+        if key not in self._matrices:
+            self._matrices[key] = scipy_to_torch_csr(self._renumbered[which], dtype)
+        return self._matrices[key]
+
+    def gather(self, samples: torch.Tensor) -> torch.Tensor:
+        """``(chunk, nodes, channels)`` -> ``(nodes * chunk, channels)``, renumbered, node-major."""
+        chunk, nodes, channels = samples.shape
+        # Copy first, then permute rows: the copy streams from memory, the permutation's
+        # scattered reads then hit the cache.
+        node_major = samples.transpose(0, 1).contiguous()
+        return node_major.index_select(0, self.order).view(nodes * chunk, channels)
+
+    def scatter(self, local: torch.Tensor, into: torch.Tensor) -> None:
+        """Write ``(nodes * chunk, channels)`` (renumbered, node-major) into ``into``
+        ``(chunk, nodes, channels)`` in the original numbering."""
+        chunk, nodes, channels = into.shape
+        into.transpose(0, 1).copy_(local.view(nodes, chunk, channels).index_select(0, self.inverse))
+
+    def apply(self, local: torch.Tensor) -> torch.Tensor:
+        """``S' Z`` for ``Z`` of shape ``(nodes * chunk, channels)``; same shape out."""
+        return (self._matrix("forward", local.dtype) @ local.view(self.nodes, -1)).view(local.shape)
+
+    def apply_transpose(self, local: torch.Tensor) -> torch.Tensor:
+        """``S'^T Z`` for ``Z`` of shape ``(nodes * chunk, channels)``; same shape out."""
+        return (self._matrix("transpose", local.dtype) @ local.view(self.nodes, -1)).view(local.shape)
+
+
+def as_scipy(shift: torch.Tensor) -> sp.csr_matrix:
+    """A torch shift operator (dense, COO or CSR) as a float64 scipy CSR matrix."""
+    if shift.layout == torch.strided:
+        return sp.csr_matrix(shift.detach().double().numpy())
+    csr = shift.detach().to_sparse_csr() if shift.layout != torch.sparse_csr else shift.detach()
+    return sp.csr_matrix(
+        (csr.values().double().numpy(), csr.col_indices().numpy(), csr.crow_indices().numpy()), shape=tuple(csr.shape)
+    )
+
+
+def find_delay(matrix: sp.csr_matrix) -> Delay | None:
+    """The :class:`Delay` that ``matrix`` is, or None: every stored entry ``(n, n-1)`` (and
+    ``(0, N-1)`` for the cycle) with one common nonzero weight, nothing else."""
+    nodes = matrix.shape[0]
+    matrix = matrix.copy()
+    matrix.eliminate_zeros()
+    if nodes < 2 or matrix.nnz not in (nodes - 1, nodes) or np.ptp(matrix.data) != 0:
+        return None
+    coordinates = matrix.tocoo()
+    kind = "line" if matrix.nnz == nodes - 1 else "cycle"
+    expected_columns = (coordinates.row - 1) % nodes
+    if kind == "line" and coordinates.row.min() == 0:
+        return None
+    if not np.array_equal(coordinates.col, expected_columns):
+        return None
+    return Delay(kind, float(matrix.data[0]))
+
+
+def plan(shift: torch.Tensor, structured: bool = True) -> Delay | SparseShift:
+    """The plan for multiplying by ``shift`` ``(nodes, nodes)``; ``structured=False`` always
+    takes the generic sparse plan (for checking the structured ones against it)."""
+    matrix = as_scipy(shift)
+    delay = find_delay(matrix) if structured else None
+    return delay if delay is not None else SparseShift(matrix)

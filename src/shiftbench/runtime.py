@@ -1,0 +1,53 @@
+"""Process-wide settings that training speed depends on: torch's thread count and the C
+allocator's treatment of large blocks."""
+
+from __future__ import annotations
+
+import ctypes
+import ctypes.util
+import os
+
+import torch
+
+# glibc mallopt parameters (malloc.h).
+M_TRIM_THRESHOLD = -1
+M_MMAP_MAX = -4
+# Keep up to this much freed memory in the heap rather than returning it to the system.
+TRIM_THRESHOLD_BYTES = 1 << 30
+
+
+def keep_freed_memory() -> bool:
+    """Serve large tensors from the heap and keep freed memory for reuse (glibc only).
+
+    glibc hands each block over 128 KiB to its own ``mmap`` and unmaps it on free, so every
+    training step faults in its activations afresh; measured here, a tensor copy ran at 5 GB/s
+    that way and 25 GB/s from reused memory, and a Conv2d step 1.5x faster. Returns whether the
+    setting took effect (False on a C library without ``mallopt``).
+    """
+    name = ctypes.util.find_library("c")
+    if name is None:
+        return False
+    try:
+        libc = ctypes.CDLL(name)
+        mallopt = libc.mallopt
+    except (OSError, AttributeError):
+        return False
+    return bool(mallopt(M_MMAP_MAX, 0)) and bool(mallopt(M_TRIM_THRESHOLD, TRIM_THRESHOLD_BYTES))
+
+
+def available_cores() -> int:
+    """Cores this process may run on (its affinity mask where the system has one)."""
+    if hasattr(os, "sched_getaffinity"):
+        return len(os.sched_getaffinity(0))
+    return os.cpu_count() or 1
+
+
+def share_cores(parallel_jobs: int | None) -> int:
+    """Give this job ``cores // parallel_jobs`` torch threads (at least 1), so parallel jobs
+    together use no more threads than the machine has cores; ``None`` or ``-1`` mean one job
+    per core. Returns the thread count set."""
+    cores = available_cores()
+    jobs = cores if parallel_jobs in (None, -1) else max(1, parallel_jobs)
+    threads = max(1, cores // jobs)
+    torch.set_num_threads(threads)
+    return threads
