@@ -17,6 +17,7 @@ from shiftbench.graphs.graph import Graph
 from shiftbench.graphs.operators import shift_operator
 from shiftbench.graphs.sources import swap_edges
 from shiftbench.models.graph_conv import GraphConv
+from shiftbench.models.shift_products import plan
 
 FRACTIONS = (0.0, 0.01, 0.05, 0.10, 0.20)
 MODES = ("drop", "rewire")
@@ -41,8 +42,14 @@ def perturbed_graph(graph: Graph, fraction: float, mode: str, seed: int) -> Grap
 
 def on_shift(model: GraphConv, shift: torch.Tensor) -> GraphConv:
     """A copy of ``model`` whose every layer filters with ``shift`` (any node count)."""
-    # Sparse tensors cannot be deep-copied: hand the copy the new shift in place of the old one.
-    return copy.deepcopy(model, memo={id(layer.shift): shift for layer in model.layers})
+    # Sparse tensors cannot be deep-copied: hand the copy the new shift, and a plan for it, in
+    # place of the old ones.
+    memo: dict[int, object] = {}
+    for layer in model.layers:
+        memo[id(layer.shift)] = shift
+        if id(layer.plan) not in memo:
+            memo[id(layer.plan)] = plan(shift, layer.structured)
+    return copy.deepcopy(model, memo=memo)
 
 
 def accuracy_on_test(model: torch.nn.Module, dataset: Dataset) -> float:

@@ -7,6 +7,7 @@ so on CPU the same model, data, config and seed give identical figures.
 from __future__ import annotations
 
 import copy
+import math
 import random
 import time
 from collections.abc import Callable
@@ -103,23 +104,26 @@ def train(
     for epoch in range(1, config.epochs + 1):
         model.train()
         epoch_started = time.perf_counter()
-        loss_sum, correct = 0.0, 0
+        # Sums stay on the device during the epoch: one read at its end, not one per step.
+        loss_sum = torch.zeros((), dtype=torch.float64, device=device)
+        correct = torch.zeros((), dtype=torch.long, device=device)
         for batch in torch.randperm(len(train_y), generator=order_generator).split(config.batch_size):
             batch = batch.to(device)
             logits = model(train_x[batch])
             loss = nn.functional.cross_entropy(logits, train_y[batch])
-            if not torch.isfinite(loss):
-                raise TrainingDiverged(f"the training loss became {loss.item()} in epoch {epoch}")
             optimizer.zero_grad(set_to_none=True)
             loss.backward()
             optimizer.step()
-            loss_sum += loss.item() * len(batch)
-            correct += int((logits.argmax(dim=1) == train_y[batch]).sum())
+            loss_sum += loss.detach().double() * len(batch)
+            correct += (logits.argmax(dim=1) == train_y[batch]).sum()
+        train_loss = loss_sum.item() / len(train_y)
+        if not math.isfinite(train_loss):
+            raise TrainingDiverged(f"the training loss became {train_loss} in epoch {epoch}")
         val_loss, val_accuracy = evaluate(model, val_x, val_y, config.batch_size)
         row = {
             "epoch": epoch,
-            "train_loss": loss_sum / len(train_y),
-            "train_accuracy": correct / len(train_y),
+            "train_loss": train_loss,
+            "train_accuracy": correct.item() / len(train_y),
             "val_loss": val_loss,
             "val_accuracy": val_accuracy,
             "seconds": time.perf_counter() - epoch_started,

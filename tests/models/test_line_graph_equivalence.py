@@ -1,4 +1,5 @@
-"""A graph filter on the directed line graph (cycle) is a causal (circular) Conv1d.
+"""A graph filter on the directed line graph (cycle) is a causal (circular) Conv1d, both in its
+structured plan (a delay run as a convolution) and in the generic sparse plan.
 
 Source: PyTorch's torch.nn.Conv1d documentation: Conv1d computes a cross-correlation,
 ``out[o, n] = b[o] + sum_i sum_j W[o, i, j] x[i, n + j]``, so a causal filter with taps
@@ -6,6 +7,7 @@ Source: PyTorch's torch.nn.Conv1d documentation: Conv1d computes a cross-correla
 """
 
 import numpy as np
+import pytest
 import torch
 from hypothesis import given, settings
 from hypothesis import strategies as st
@@ -33,26 +35,29 @@ def conv1d_with_mapped_taps(layer: GraphFilter) -> torch.nn.Conv1d:
     return conv
 
 
-def random_filter_and_input(shape, make_graph) -> tuple[GraphFilter, torch.Tensor]:
+def random_filter_and_input(shape, make_graph, structured) -> tuple[GraphFilter, torch.Tensor]:
     in_channels, out_channels, order, nodes, batch, seed = shape
     torch.manual_seed(seed)
-    layer = GraphFilter(shift_operator(make_graph(nodes), "adjacency", "none"), in_channels, out_channels, order)
+    shift = shift_operator(make_graph(nodes), "adjacency", "none")
+    layer = GraphFilter(shift, in_channels, out_channels, order, structured=structured)
     return layer, torch.randn(batch, nodes, in_channels)
 
 
-@settings(max_examples=60, deadline=None)
-@given(shapes)
-def test_graph_filter_on_the_line_graph_equals_causal_conv1d(shape):
-    layer, x = random_filter_and_input(shape, line_graph)
+@pytest.mark.parametrize("structured", [True, False], ids=["delay_plan", "sparse_plan"])
+@settings(max_examples=40, deadline=None)
+@given(shape=shapes)
+def test_graph_filter_on_the_line_graph_equals_causal_conv1d(shape, structured):
+    layer, x = random_filter_and_input(shape, line_graph, structured)
     order = layer.order
     reference = conv1d_with_mapped_taps(layer)(torch.nn.functional.pad(x.transpose(1, 2), (order, 0)))
     torch.testing.assert_close(layer(x), reference.transpose(1, 2), atol=1e-5, rtol=1e-5)
 
 
-@settings(max_examples=60, deadline=None)
-@given(shapes)
-def test_graph_filter_on_the_directed_cycle_equals_circular_causal_conv1d(shape):
-    layer, x = random_filter_and_input(shape, cycle_graph)
+@pytest.mark.parametrize("structured", [True, False], ids=["delay_plan", "sparse_plan"])
+@settings(max_examples=40, deadline=None)
+@given(shape=shapes)
+def test_graph_filter_on_the_directed_cycle_equals_circular_causal_conv1d(shape, structured):
+    layer, x = random_filter_and_input(shape, cycle_graph, structured)
     order = layer.order
     # numpy's "wrap" padding repeats the signal periodically, also for pads longer than it.
     wrapped = torch.from_numpy(np.pad(x.transpose(1, 2).numpy(), ((0, 0), (0, 0), (order, 0)), mode="wrap"))
@@ -69,3 +74,29 @@ def test_line_conv_family_layer_equals_graph_filter_on_the_line_graph():
     causal.conv.load_state_dict(conv1d_with_mapped_taps(layer).state_dict())
     x = torch.randn(2, 20, 3)
     torch.testing.assert_close(causal(x), layer(x), atol=1e-5, rtol=1e-5)
+
+
+@pytest.mark.parametrize("boundary", ["zero", "circular"])
+def test_causal_convolution_equals_torch_conv1d_on_the_padded_signal(boundary):
+    # Reference: torch.nn.Conv1d on the explicitly padded (batch, channels, nodes) signal; the
+    # layer itself runs a channels-last Conv2d.
+    from shiftbench.models.line_conv import CausalConv1d
+
+    torch.manual_seed(3)
+    layer = CausalConv1d(4, 6, 5, boundary=boundary)
+    x = torch.randn(7, 33, 4)
+    mode = "constant" if boundary == "zero" else "wrap"
+    padded = torch.from_numpy(np.pad(x.transpose(1, 2).numpy(), ((0, 0), (0, 0), (5, 0)), mode=mode))
+    torch.testing.assert_close(layer(x), layer.conv(padded).transpose(1, 2), atol=1e-5, rtol=1e-5)
+
+
+def test_delay_plan_gradients_equal_the_sparse_plan_gradients():
+    torch.manual_seed(4)
+    shift = shift_operator(line_graph(40), "adjacency", "none")
+    fast = GraphFilter(shift, 3, 4, 3)
+    generic = GraphFilter(shift, 3, 4, 3, structured=False)
+    generic.load_state_dict(fast.state_dict())
+    x = torch.randn(6, 40, 3, requires_grad=True)
+    grads = [torch.autograd.grad(layer(x).square().sum(), (x, layer.taps, layer.bias)) for layer in (fast, generic)]
+    for fast_grad, generic_grad in zip(*grads):
+        torch.testing.assert_close(fast_grad, generic_grad, atol=1e-5, rtol=1e-5)

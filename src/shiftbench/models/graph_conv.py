@@ -18,6 +18,8 @@ class GraphConv(FilterStack):
 
     Args:
         shift: ``(nodes, nodes)`` sparse shift operator ``S``, shared by every layer.
+        structured: let the layers use a structured plan where ``S`` has one (see
+            :class:`GraphFilter`).
 
     Shapes:
         input ``(batch, nodes, features)`` -> logits ``(batch, classes)``.
@@ -34,8 +36,9 @@ class GraphConv(FilterStack):
         readout: str = "mean",
         dropout: float = 0.0,
         normalization: str = "none",
+        structured: bool = True,
     ) -> None:
         nodes = shift.shape[0]
-        layers = [GraphFilter(shift, i, o, order) for i, o in widths(features, channels)]
+        layers = [GraphFilter(shift, i, o, order, structured=structured) for i, o in widths(features, channels)]
         readout_layer = Readout(readout, nodes, channels[-1], classes)
         super().__init__(layers, readout_layer, nonlinearity, dropout, normalization, channels)

@@ -119,6 +119,7 @@ class GraphFilter(nn.Module):
         self.order = order
         # The graph is data, not a learned weight: keep it out of the state dict.
         self.register_buffer("shift", shift, persistent=False)
+        self.structured = structured
         self.plan = plan(shift, structured)
         self.taps = nn.Parameter(torch.empty(order + 1, in_channels, out_channels))
         self.bias = nn.Parameter(torch.empty(out_channels)) if bias else None

@@ -20,7 +20,9 @@ def conv_weight_to_taps(weight: torch.Tensor) -> torch.Tensor:
 
 def line_conv_to_graph_conv(model: LineConv, shift: torch.Tensor, taps_from=conv_weight_to_taps) -> GraphConv:
     """A GraphConv on ``shift`` (the line graph's or cycle's adjacency) carrying ``model``'s
-    weights: the taps from each Conv1d kernel, and the same biases, norms and readout.
+    weights: the taps from each Conv1d kernel, and the same biases, norms and readout. The
+    graph_conv runs the generic sparse plan, so that comparing the two checks the algebra, not
+    a convolution against itself.
 
     Args:
         taps_from: the kernel-to-taps map (replaceable, so a test can plant a broken one).
@@ -30,7 +32,7 @@ def line_conv_to_graph_conv(model: LineConv, shift: torch.Tensor, taps_from=conv
     graph_model = GraphConv(
         shift, first.in_channels, channels, model.readout.linear.out_features, model.layers[0].order,
         nonlinearity=model.nonlinearity, readout=model.readout.kind, dropout=model.dropout.p,
-        normalization=model.normalization,
+        normalization=model.normalization, structured=False,
     )
     with torch.no_grad():
         for conv_layer, graph_layer in zip(model.layers, graph_model.layers):

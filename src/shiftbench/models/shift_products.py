@@ -88,9 +88,13 @@ def as_scipy(shift: torch.Tensor) -> sp.csr_matrix:
     """A torch shift operator (dense, COO or CSR) as a float64 scipy CSR matrix."""
     if shift.layout == torch.strided:
         return sp.csr_matrix(shift.detach().double().numpy())
-    csr = shift.detach().to_sparse_csr() if shift.layout != torch.sparse_csr else shift.detach()
+    if shift.layout != torch.sparse_csr:
+        shift = shift.coalesce()
+        indices = shift.indices().numpy()
+        return sp.csr_matrix((shift.values().detach().double().numpy(), (indices[0], indices[1])), shape=tuple(shift.shape))
     return sp.csr_matrix(
-        (csr.values().double().numpy(), csr.col_indices().numpy(), csr.crow_indices().numpy()), shape=tuple(csr.shape)
+        (shift.values().detach().double().numpy(), shift.col_indices().numpy(), shift.crow_indices().numpy()),
+        shape=tuple(shift.shape),
     )
 
 
