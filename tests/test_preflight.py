@@ -64,3 +64,14 @@ def test_documented_command_lines_pass(arguments):
 def test_every_value_of_a_study_axis_is_checked():
     # The families study sweeps 5 setups and 3 seeds: the base config plus 4 + 2 variants.
     assert preflight(["-m", "+experiment=families"], CONFIG_DIR) == 7
+
+
+def test_a_model_too_large_to_train_is_refused_with_the_count_it_would_need():
+    # An fc with one hidden layer as wide as the signal (100,000 nodes): 100,000 * 100,000
+    # weights and 100,000 biases, then (100,000 + 1) * 4 weights and biases for the classes.
+    with pytest.raises(ConfigError, match=r"arch=fc at 100,000 nodes needs 10,000,500,004 parameters, 160\.0 GB"):
+        preflight(["arch=fc", "arch.hidden=[100000]", "data.nodes=100000"], CONFIG_DIR)
+
+
+def test_fc_at_default_width_on_a_large_signal_is_not_refused():
+    preflight(["arch=fc", "data.nodes=100000"], CONFIG_DIR)

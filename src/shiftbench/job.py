@@ -24,14 +24,22 @@ from shiftbench.graphs import Graph, build_graph, operator_matrix, shift_operato
 from shiftbench.models import build_model, count_parameters
 from shiftbench.models.budget import WIDTH_KEY, fit_budget
 from shiftbench.models.nearest import fit_nearest
+from shiftbench.models.parameters import require_memory_for
 from shiftbench.progress import EpochProgress
 from shiftbench.records import SCHEMA_VERSION, completed_index, config_hash, versions, write_curve, write_record
+from shiftbench.runtime import available_memory_bytes
 from shiftbench.training import TrainingResult, seed_everything, train
 
 
 def check_inputs(run: RunConfig) -> None:
     """Read and check the user's files a job would use (a data file, a graph file), so a bad file
-    stops a sweep before its first job. Other sources are checked by the config alone."""
+    stops a sweep before its first job. Other sources are checked by the config alone. Where
+    the config tells the node count, a model too large to train is refused here too."""
+    nodes = run.data.known_nodes()
+    if nodes is not None and getattr(run.arch, "budget", None) is None:
+        # One feature and the configured classes: the least the model could need.
+        classes = getattr(run.data, "classes", 2)
+        require_memory_for(run.arch, nodes, 1, classes, available_memory_bytes())
     uses_graph_file = run.arch.family == "graph_conv" and run.graph.source == "file"
     if run.data.source != "file" and not uses_graph_file:
         return
@@ -79,6 +87,7 @@ def fit_family(run: RunConfig, dataset: Dataset, record: dict[str, Any], live: b
         record["budget"] = arch.budget
         arch, _ = fit_budget(arch, arch.budget, dataset.nodes, dataset.features, dataset.classes)
         record["sized_widths"] = getattr(arch, WIDTH_KEY[arch.family])
+    require_memory_for(arch, dataset.nodes, dataset.features, dataset.classes, available_memory_bytes())
     seed_everything(run.seed)
     model = build_model(arch, dataset.nodes, dataset.features, dataset.classes, shift)
     record["parameters"] = count_parameters(model)

@@ -6,6 +6,7 @@ from __future__ import annotations
 import ctypes
 import ctypes.util
 import os
+from pathlib import Path
 
 import torch
 
@@ -51,3 +52,15 @@ def share_cores(parallel_jobs: int | None) -> int:
     threads = max(1, cores // jobs)
     torch.set_num_threads(threads)
     return threads
+
+
+def available_memory_bytes() -> int:
+    """Memory the system can give this process now: ``MemAvailable`` from ``/proc/meminfo``
+    where there is one, else the physical memory."""
+    try:
+        for line in Path("/proc/meminfo").read_text().splitlines():
+            if line.startswith("MemAvailable:"):
+                return int(line.split()[1]) * 1024
+    except OSError:
+        pass
+    return os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")

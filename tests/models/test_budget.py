@@ -1,9 +1,13 @@
 """Parameter budgets: sized networks land within 5% of the budget, or say why they cannot."""
 
+import numpy as np
 import pytest
 
 from shiftbench.config import FcConfig, GraphConvConfig, LineConvConfig
-from shiftbench.models.budget import BudgetError, _count, fit_budget
+from shiftbench.graphs.operators import shift_operator
+from shiftbench.graphs.sources import knn_graph
+from shiftbench.models import build_model
+from shiftbench.models.budget import BudgetError, fit_budget
 from shiftbench.models.parameters import count_parameters
 
 
@@ -12,7 +16,8 @@ from shiftbench.models.parameters import count_parameters
 def test_sized_network_lands_within_five_percent(arch, budget):
     sized, count = fit_budget(arch, budget, nodes=64, features=2, classes=5)
     assert abs(count - budget) <= 0.05 * budget
-    assert _count(sized, 64, 2, 5) == count
+    shift = shift_operator(knn_graph(np.random.default_rng(0).random((64, 2)), 4))
+    assert count_parameters(build_model(sized, 64, 2, 5, shift)) == count
 
 
 def test_widths_keep_their_configured_shape():
@@ -25,9 +30,3 @@ def test_a_budget_below_the_smallest_network_names_its_size():
     # At width 1, fc has 4096 weights + 1 bias, then 1 * 4 weights + 4 biases for the classes.
     with pytest.raises(BudgetError, match=r"arch.budget=1000 cannot be met: fc with hidden=\[1\] already has 4,105"):
         fit_budget(FcConfig(), 1000, nodes=4096, features=1, classes=4)
-
-
-def test_the_count_function_is_torchs_own():
-    from shiftbench.models import FullyConnected
-
-    assert _count(FcConfig(hidden=[7]), 10, 1, 3) == count_parameters(FullyConnected(10, 1, [7], 3))

@@ -45,3 +45,26 @@ def test_convolutional_counts_do_not_grow_with_nodes_while_fc_does():
     small, large = counts(20), counts(200)
     assert large[0] - small[0] == 180 * 16
     assert large[1:] == small[1:]
+
+
+@pytest.mark.parametrize("arch", [
+    "fc", "fc hidden=[7,3]", "line_conv", "line_conv readout=flatten normalization=batch",
+    "graph_conv", "graph_conv order=0 channels=[4] readout=max normalization=batch",
+])
+def test_planned_count_equals_the_count_of_the_built_model(arch):
+    # Reference: torch's own parameter list (count_parameters sums Parameter.numel()).
+    from dataclasses import replace
+
+    from shiftbench.config import FcConfig, GraphConvConfig, LineConvConfig
+    from shiftbench.models import build_model
+    from shiftbench.models.parameters import planned_parameters
+
+    family, *options = arch.split()
+    config = {"fc": FcConfig, "line_conv": LineConvConfig, "graph_conv": GraphConvConfig}[family]()
+    for option in options:
+        key, value = option.split("=")
+        config = replace(config, **{key: eval(value) if value[0] in "[0123456789" else value})
+    nodes, features, classes = 25, 2, 3
+    shift = shift_operator(knn_graph(np.random.default_rng(0).random((nodes, 2)), 4))
+    model = build_model(config, nodes, features, classes, shift)
+    assert planned_parameters(config, nodes, features, classes) == count_parameters(model)

@@ -10,10 +10,7 @@ from __future__ import annotations
 from dataclasses import replace
 from typing import Any
 
-import torch
-
-from shiftbench.models import build_model
-from shiftbench.models.parameters import count_parameters
+from shiftbench.models.parameters import planned_parameters
 
 # How far from the budget a sized network may land, as a share of the budget.
 TOLERANCE = 0.05
@@ -29,14 +26,6 @@ def _scaled(arch: Any, scale: float) -> Any:
     return replace(arch, **{key: [max(1, round(scale * width)) for width in getattr(arch, key)]})
 
 
-def _count(arch: Any, nodes: int, features: int, classes: int) -> int:
-    # The count does not depend on the graph, only on its size: an empty shift serves.
-    shift = torch.sparse_coo_tensor(
-        torch.zeros((2, 0), dtype=torch.int64), torch.zeros(0), (nodes, nodes), check_invariants=True
-    )
-    return count_parameters(build_model(arch, nodes, features, classes, shift))
-
-
 def fit_budget(arch: Any, budget: int, nodes: int, features: int, classes: int) -> tuple[Any, int]:
     """The arch config with widths scaled to ``budget`` parameters, and the count it has.
 
@@ -46,22 +35,22 @@ def fit_budget(arch: Any, budget: int, nodes: int, features: int, classes: int) 
     """
     key = WIDTH_KEY[arch.family]
     smallest = _scaled(arch, 0.0)
-    least = _count(smallest, nodes, features, classes)
+    least = planned_parameters(smallest, nodes, features, classes)
     if least > budget * (1 + TOLERANCE):
         raise BudgetError(
             f"arch.budget={budget} cannot be met: {arch.family} with {key}={getattr(smallest, key)} already has "
             f"{least:,} parameters at {nodes} nodes; accepted: a budget of at least {least:,}"
         )
     low, high = 0.0, 1.0
-    while _count(_scaled(arch, high), nodes, features, classes) < budget:
+    while planned_parameters(_scaled(arch, high), nodes, features, classes) < budget:
         low, high = high, high * 2
     for _ in range(40):
         middle = (low + high) / 2
-        if _count(_scaled(arch, middle), nodes, features, classes) < budget:
+        if planned_parameters(_scaled(arch, middle), nodes, features, classes) < budget:
             low = middle
         else:
             high = middle
-    candidates = [(_count(_scaled(arch, scale), nodes, features, classes), scale) for scale in (low, high)]
+    candidates = [(planned_parameters(_scaled(arch, scale), nodes, features, classes), scale) for scale in (low, high)]
     count, scale = min(candidates, key=lambda pair: abs(pair[0] - budget))
     if abs(count - budget) > TOLERANCE * budget:
         raise BudgetError(
