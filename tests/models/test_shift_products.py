@@ -64,3 +64,16 @@ def test_batches_of_many_chunks_equal_dense_powers_in_values_and_gradients():
     want = torch.autograd.grad((expected * weights).sum(), (x, layer.taps, layer.bias))
     for got_grad, want_grad in zip(got, want):
         torch.testing.assert_close(got_grad, want_grad)
+
+
+def test_renumbered_filter_equals_torchs_csr_product_on_the_original_numbering():
+    # Reference: torch's own CSR product, Horner's rule on the original node numbers.
+    nodes = 300
+    shift = shift_operator(knn_graph(np.random.default_rng(2).random((nodes, 2)), 5))
+    torch.manual_seed(6)
+    layer = GraphFilter(shift, 2, 3, 3)
+    x = torch.randn(5, nodes, 2)
+    expected = x @ layer.taps[3]
+    for k in range(2, -1, -1):
+        expected = torch.stack([shift @ sample for sample in expected]) + x @ layer.taps[k]
+    torch.testing.assert_close(layer(x), expected + layer.bias, atol=1e-5, rtol=1e-5)
