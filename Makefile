@@ -1,4 +1,5 @@
-# Two commands: `make run` (the families study and its table) and `make test`.
+# Three commands: `make run` (the families study and its table), `make test`, and `make bench`
+# (layer and end-to-end benchmarks, written to results/benchmarks/).
 # Both create .venv when it is missing and install the CPU build of torch before the package,
 # so that no dependency pulls a CUDA build.
 PYTHON ?= python3
@@ -25,6 +26,10 @@ run: setup
 
 test: setup
 	$(BIN)/python -m pytest -q
+
+bench: setup
+	$(BIN)/python -m benchmarks.layers
+	$(BIN)/python -m benchmarks.end_to_end
 
 clean:
 	rm -rf $(VENV) results/runs results/multirun results/families

@@ -26,7 +26,7 @@ IMPLEMENTATIONS = ("shiftbench", "conv1d", "conv2d_channels_last", "tagconv", "d
 DENSE_NODES_LIMIT = 1024
 # TAGConv keeps one (edges * batch, channels) message tensor a hop for its backward pass;
 # cases that would need more than this are left out (and the table says so).
-TAGCONV_MESSAGE_LIMIT_BYTES = 6 << 30
+TAGCONV_MESSAGE_LIMIT_BYTES = 4 << 30
 KNN_NEIGHBORS = 8
 
 

@@ -1,0 +1,1 @@
+"""Benchmarks run by `make bench`; results go to results/benchmarks/."""

@@ -1,0 +1,29 @@
+"""The benchmark compares like with like: every implementation computes the same layer.
+
+References: torch.nn.Conv1d and a channels-last torch Conv2d (line graph), PyG's TAGConv with
+``normalize=False`` on disjoint copies, and Horner's rule with a dense ``S``.
+"""
+
+import json
+
+import pytest
+
+from benchmarks.layers import RESULT_KEYS, main, measure_group
+
+
+@pytest.mark.parametrize("graph", ["line", "knn"])
+def test_every_implementation_agrees_with_shiftbench_on_a_small_case(graph):
+    rows = measure_group(graph, 64, 2, (2,))
+    measured = [row for row in rows if "median_ms" in row]
+    expected = {"shiftbench", "tagconv", "dense"} | ({"conv1d", "conv2d_channels_last"} if graph == "line" else set())
+    assert {row["implementation"] for row in measured} == expected
+    assert {row["pass"] for row in measured} == {"forward", "forward_backward"}
+    assert all(row["relative_difference_to_shiftbench"] < 1e-5 for row in measured)
+    assert all(row["median_ms"] > 0 and row["peak_rss_mb"] > 0 for row in measured)
+
+
+def test_the_result_file_holds_exactly_the_documented_keys(tmp_path):
+    main(["--graphs", "grid", "--nodes", "36", "--batches", "2", "--orders", "1", "--out", str(tmp_path)])
+    entries = json.loads((tmp_path / "layers.json").read_text())
+    assert entries and all(tuple(entry) == RESULT_KEYS for entry in entries)
+    assert "| grid | 36 | 2 | 1 | forward |" in (tmp_path / "layers.md").read_text()
