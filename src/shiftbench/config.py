@@ -363,6 +363,8 @@ class TrainConfig:
     batch_size: int = 64
     epochs: int = 100
     patience: int = 15
+    checkpoint_every: int = 10
+    max_seconds: float | None = None
 
     def __post_init__(self) -> None:
         require_choice("optimizer", self.optimizer, OPTIMIZERS)
@@ -372,6 +374,9 @@ class TrainConfig:
         require("batch_size", self.batch_size, self.batch_size >= 1, "an integer >= 1")
         require("epochs", self.epochs, self.epochs >= 1, "an integer >= 1")
         require("patience", self.patience, self.patience >= 1, "an integer >= 1")
+        require("checkpoint_every", self.checkpoint_every, self.checkpoint_every >= 0, "an integer >= 0 (0: never)")
+        if self.max_seconds is not None:
+            require("max_seconds", self.max_seconds, self.max_seconds > 0, "a number of seconds > 0, or null")
 
 
 # ----------------------------------------------------------------------------------------- root

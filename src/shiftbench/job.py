@@ -18,6 +18,7 @@ import torch
 from omegaconf import DictConfig
 
 from shiftbench.cache import shared
+from shiftbench.checkpoints import remove_checkpoint
 from shiftbench.config import ConfigError, RunConfig, as_plain_dict, check_graph_fits, validate
 from shiftbench.data import Dataset, load_dataset
 from shiftbench.graphs import Graph, build_graph, operator_matrix, shift_operator
@@ -26,9 +27,9 @@ from shiftbench.models.budget import WIDTH_KEY, fit_budget
 from shiftbench.models.nearest import fit_nearest
 from shiftbench.models.parameters import require_memory_for
 from shiftbench.progress import EpochProgress
-from shiftbench.records import SCHEMA_VERSION, completed_index, config_hash, versions, write_curve, write_record
+from shiftbench.records import FINAL_STATUSES, SCHEMA_VERSION, completed_index, config_hash, versions, write_curve, write_record
 from shiftbench.runtime import available_memory_bytes
-from shiftbench.training import TrainingResult, seed_everything, train
+from shiftbench.training import Checkpointing, TrainingDiverged, TrainingResult, seed_everything, train
 
 
 def check_inputs(run: RunConfig) -> None:
@@ -69,7 +70,9 @@ def structure(run: RunConfig) -> tuple[str, str]:
     return "none", "none"
 
 
-def fit_family(run: RunConfig, dataset: Dataset, record: dict[str, Any], live: bool) -> TrainingResult:
+def fit_family(
+    run: RunConfig, dataset: Dataset, record: dict[str, Any], live: bool, checkpointing: Checkpointing | None = None
+) -> TrainingResult:
     """Build and train the family ``run`` names on ``dataset`` (or fit the 1-NN floor), noting in
     ``record`` what the record reports about the model: parameters, budget, graph notes."""
     if run.arch.family == "nearest":
@@ -93,7 +96,7 @@ def fit_family(run: RunConfig, dataset: Dataset, record: dict[str, Any], live: b
     record["parameters"] = count_parameters(model)
     progress = EpochProgress(run.train.epochs, live)
     try:
-        return train(model, dataset, run.train, run.seed, run.device, on_epoch=progress)
+        return train(model, dataset, run.train, run.seed, run.device, on_epoch=progress, checkpointing=checkpointing)
     finally:
         progress.close()
 
@@ -141,10 +144,14 @@ def run_job(
         check_graph_fits(run.graph, run.arch.family, dataset.nodes)
         record["nodes"] = dataset.nodes
         record["data"] = dataset.name
-        result = fit_family(run, dataset, record, live)
+        checkpointing = Checkpointing(output_dir, run.train.checkpoint_every, digest)
+        result = fit_family(run, dataset, record, live, checkpointing)
         curve = result.curve
+        if result.resumed_from_epoch is not None:
+            record["resumed_from_epoch"] = result.resumed_from_epoch
+            print(f"resumed from the checkpoint of epoch {result.resumed_from_epoch - 1}", flush=True)
         record.update(
-            status="completed",
+            status=result.status,
             train_accuracy=result.train_accuracy,
             val_accuracy=result.val_accuracy,
             test_accuracy=result.test_accuracy,
@@ -156,6 +163,9 @@ def run_job(
         )
     except ConfigError:
         raise
+    except TrainingDiverged as error:
+        record["error"] = f"{type(error).__name__}: {error}"
+        record["failed_epoch"] = error.epoch
     except Exception as error:  # a failed job is recorded, never lost, and the sweep goes on
         record["error"] = f"{type(error).__name__}: {error}"
         record["traceback"] = traceback.format_exc()
@@ -164,8 +174,9 @@ def run_job(
     record["finished"] = datetime.now(timezone.utc).isoformat(timespec="seconds")
     write_curve(output_dir, curve)
     path = write_record(output_dir, record)
-    if record["status"] == "completed":
+    if record["status"] in FINAL_STATUSES:
         index.add(record["config_hash"], path)
+        remove_checkpoint(output_dir)
     print(summary_line(record), flush=True)
     return record
 
@@ -174,9 +185,11 @@ def summary_line(record: dict[str, Any]) -> str:
     """One line per job: family, data, graph, order, parameters, test accuracy (or the failure)."""
     order = "-" if record["order"] is None else record["order"]
     head = f"{record['family']} on {record['data']}, graph {record['graph']}, order {order}"
-    if record["status"] != "completed":
+    if record["status"] not in FINAL_STATUSES:
         return f"{head}: FAILED: {record['error']}"
     epochs = "" if record["epochs_run"] is None else f"best epoch {record['best_epoch']} of {record['epochs_run']}, "
+    if record["status"] == "timed_out":
+        epochs = f"timed out (train.max_seconds), {epochs}"
     return (
         f"{head}: {record['parameters']:,} parameters, test accuracy {record['test_accuracy']:.3f} "
         f"({epochs}{record['train_seconds']:.1f} s)"

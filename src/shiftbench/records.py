@@ -22,8 +22,12 @@ import shiftbench
 SCHEMA_VERSION = 1
 RECORD_FILE = "result.json"
 CURVE_FILE = "curve.csv"
-# Keys of the config that say where output goes or whether to recompute, not what is computed.
+# Keys of the config that say where output goes, whether to recompute, or how often to save
+# progress, not what is computed.
 OUTPUT_KEYS = ("results_dir", "force")
+TRAIN_RUN_KEYS = ("checkpoint_every",)
+# A job in one of these states is done: a rerun skips it.
+FINAL_STATUSES = ("completed", "timed_out")
 
 
 def write_atomic(path: Path, content: str | bytes) -> Path:
@@ -57,10 +61,17 @@ def write_curve(folder: Path, curve: list[dict[str, float]]) -> Path:
     return write_atomic(folder / CURVE_FILE, buffer.getvalue())
 
 
-def config_hash(config: dict[str, Any]) -> str:
-    """A stable hash of what a job computes: its resolved config minus output locations."""
+def computed_content(config: dict[str, Any]) -> dict[str, Any]:
+    """What a job computes: its resolved config minus output locations and run settings."""
     content = {key: value for key, value in config.items() if key not in OUTPUT_KEYS}
-    return hashlib.sha256(json.dumps(content, sort_keys=True).encode()).hexdigest()[:16]
+    if isinstance(content.get("train"), dict):
+        content["train"] = {key: value for key, value in content["train"].items() if key not in TRAIN_RUN_KEYS}
+    return content
+
+
+def config_hash(config: dict[str, Any]) -> str:
+    """A stable hash of :func:`computed_content`."""
+    return hashlib.sha256(json.dumps(computed_content(config), sort_keys=True).encode()).hexdigest()[:16]
 
 
 def versions() -> dict[str, str | None]:
@@ -106,8 +117,14 @@ def load_records(paths: Iterable[Path]) -> pd.DataFrame:
         except (OSError, ValueError) as error:
             skipped.append(f"{path}: {error}")
             continue
-        if not isinstance(record, dict) or record.get("schema_version") != SCHEMA_VERSION:
-            skipped.append(f"{path}: not a shiftbench record of schema version {SCHEMA_VERSION}")
+        if not isinstance(record, dict) or "schema_version" not in record:
+            skipped.append(f"{path}: not a shiftbench record (no schema_version)")
+            continue
+        if record["schema_version"] != SCHEMA_VERSION:
+            skipped.append(
+                f"{path}: record schema version {record['schema_version']!r} is not known; "
+                f"this shiftbench reads version {SCHEMA_VERSION}"
+            )
             continue
         rows.append({**record, "path": str(path.parent)})
     for problem in skipped:
@@ -129,7 +146,7 @@ class CompletedIndex:
                 record = json.loads(path.read_text(encoding="utf-8"))
             except (OSError, ValueError):
                 continue
-            if isinstance(record, dict) and record.get("status") == "completed" and "config_hash" in record:
+            if isinstance(record, dict) and record.get("status") in FINAL_STATUSES and "config_hash" in record:
                 self.by_hash[record["config_hash"]] = path
 
     def find(self, config_hash: str) -> Path | None:

@@ -12,7 +12,7 @@ import pandas as pd
 from scipy import stats
 
 from shiftbench import plots
-from shiftbench.records import OUTPUT_KEYS, load_records, write_atomic
+from shiftbench.records import FINAL_STATUSES, computed_content, load_records, write_atomic
 
 # What tells settings apart, in the order tables show it.
 DESCRIBE = ["data", "nodes", "graph", "operator", "family", "order", "budget"]
@@ -57,7 +57,7 @@ def setting_of(record: pd.Series) -> str:
     record without a config, its describing fields)."""
     config = record.get("config")
     if isinstance(config, dict):
-        content = {key: value for key, value in config.items() if key not in ("seed", *OUTPUT_KEYS)}
+        content = {key: value for key, value in computed_content(config).items() if key != "seed"}
     else:
         content = {key: None if pd.isna(record.get(key)) else record.get(key) for key in DESCRIBE}
     return json.dumps(content, sort_keys=True, default=str)
@@ -90,7 +90,7 @@ def summary_table(records: pd.DataFrame, by: Iterable[str] = ()) -> pd.DataFrame
         if column not in frame:
             frame[column] = float("nan")
     frame["setting"] = [setting_of(row) for _, row in frame.iterrows()]
-    completed = frame["status"] == "completed"
+    completed = frame["status"].isin(FINAL_STATUSES)
     frame["completed"] = completed
     frame["is_failed"] = ~completed
     for column in ("parameters", "test_accuracy", "train_seconds"):

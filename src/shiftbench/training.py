@@ -12,17 +12,33 @@ import random
 import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from pathlib import Path
 
 import numpy as np
 import torch
 from torch import nn
 
 from shiftbench.config import TrainConfig
+from shiftbench.checkpoints import load_checkpoint, random_states, restore_random_states, save_checkpoint
 from shiftbench.data.dataset import Dataset
 
 
 class TrainingDiverged(RuntimeError):
-    """The loss became NaN or infinite."""
+    """The loss became NaN or infinite; ``epoch`` is the epoch it happened in."""
+
+    def __init__(self, message: str, epoch: int) -> None:
+        super().__init__(message)
+        self.epoch = epoch
+
+
+@dataclass(frozen=True)
+class Checkpointing:
+    """Where and how often :func:`train` saves checkpoints, and the config hash that a
+    checkpoint must carry to be resumed from."""
+
+    folder: Path
+    every: int
+    config_hash: str
 
 
 @dataclass
@@ -40,6 +56,8 @@ class TrainingResult:
     train_seconds: float
     samples_per_second: float
     curve: list[dict[str, float]] = field(default_factory=list)
+    status: str = "completed"
+    resumed_from_epoch: int | None = None
 
 
 def seed_everything(seed: int) -> None:
@@ -81,12 +99,21 @@ def train(
     seed: int,
     device: str = "cpu",
     on_epoch: Callable[[dict[str, float]], None] | None = None,
+    checkpointing: Checkpointing | None = None,
 ) -> TrainingResult:
     """Train ``model`` on ``dataset``'s training split with cross-entropy, stop when validation
     accuracy has not improved for ``config.patience`` epochs (a tie in accuracy with a lower
-    validation loss counts as an improvement), restore the best weights and measure every split.
+    validation loss counts as an improvement) or when ``config.max_seconds`` have passed,
+    restore the best weights and measure every split.
+
+    With ``checkpointing``, the whole state is saved every ``every`` epochs, and a checkpoint of
+    the same config found in its folder is resumed from: the run then ends with the figures an
+    uninterrupted run would have (bit for bit on CPU).
 
     ``model`` must be freshly built after ``seed_everything(seed)`` for runs to be reproducible.
+
+    Raises:
+        TrainingDiverged: the training loss of an epoch was NaN or infinite.
     """
     signals = torch.from_numpy(dataset.signals).to(device)
     labels = torch.from_numpy(dataset.labels).to(device)
@@ -100,8 +127,24 @@ def train(
     best = (-1.0, float("inf"))
     best_state, best_epoch = copy.deepcopy(model.state_dict()), 0
     curve: list[dict[str, float]] = []
+    first_epoch, resumed_from, spent_before = 1, None, 0.0
+    saved = load_checkpoint(checkpointing.folder, checkpointing.config_hash) if checkpointing else None
+    if saved is not None:
+        model.load_state_dict(saved["model"])
+        optimizer.load_state_dict(saved["optimizer"])
+        restore_random_states(saved["random"], order_generator)
+        best, best_state, best_epoch = tuple(saved["best"]), saved["best_state"], saved["best_epoch"]
+        curve, spent_before = saved["curve"], saved["train_seconds"]
+        first_epoch = resumed_from = saved["epoch"] + 1
+        if saved["epoch"] - best_epoch >= config.patience:  # it had stopped early at that epoch
+            first_epoch = config.epochs + 1
     started = time.perf_counter()
-    for epoch in range(1, config.epochs + 1):
+    status = "completed"
+
+    def elapsed() -> float:
+        return spent_before + time.perf_counter() - started
+
+    for epoch in range(first_epoch, config.epochs + 1):
         model.train()
         epoch_started = time.perf_counter()
         # Sums stay on the device during the epoch: one read at its end, not one per step.
@@ -116,9 +159,14 @@ def train(
             optimizer.step()
             loss_sum += loss.detach().double() * len(batch)
             correct += (logits.argmax(dim=1) == train_y[batch]).sum()
+            if config.max_seconds is not None and elapsed() > config.max_seconds:
+                status = "timed_out"
+                break
+        if status == "timed_out":
+            break
         train_loss = loss_sum.item() / len(train_y)
         if not math.isfinite(train_loss):
-            raise TrainingDiverged(f"the training loss became {train_loss} in epoch {epoch}")
+            raise TrainingDiverged(f"the training loss became {train_loss} in epoch {epoch}", epoch)
         val_loss, val_accuracy = evaluate(model, val_x, val_y, config.batch_size)
         row = {
             "epoch": epoch,
@@ -129,20 +177,28 @@ def train(
             "seconds": time.perf_counter() - epoch_started,
         }
         curve.append(row)
+        improved = (val_accuracy, -val_loss) > (best[0], -best[1])
+        if improved:
+            best, best_state, best_epoch = (val_accuracy, val_loss), copy.deepcopy(model.state_dict()), epoch
+        if checkpointing is not None and checkpointing.every and epoch % checkpointing.every == 0:
+            save_checkpoint(checkpointing.folder, {
+                "config_hash": checkpointing.config_hash, "epoch": epoch, "model": model.state_dict(),
+                "optimizer": optimizer.state_dict(), "random": random_states(order_generator),
+                "best": list(best), "best_state": best_state, "best_epoch": best_epoch, "curve": curve,
+                "train_seconds": elapsed(),
+            })
         if on_epoch is not None:
             on_epoch(row)
-        if (val_accuracy, -val_loss) > (best[0], -best[1]):
-            best, best_state, best_epoch = (val_accuracy, val_loss), copy.deepcopy(model.state_dict()), epoch
-        elif epoch - best_epoch >= config.patience:
+        if not improved and epoch - best_epoch >= config.patience:
             break
-    train_seconds = time.perf_counter() - started
+    train_seconds = elapsed()
 
     model.load_state_dict(best_state)
     _, train_accuracy = evaluate(model, train_x, train_y, config.batch_size)
     test_loss, test_accuracy = evaluate(model, signals[split["test"]], labels[split["test"]], config.batch_size)
     return TrainingResult(
         train_accuracy=train_accuracy,
-        val_accuracy=best[0],
+        val_accuracy=best[0] if curve else evaluate(model, val_x, val_y, config.batch_size)[1],
         test_accuracy=test_accuracy,
         test_loss=test_loss,
         best_epoch=best_epoch,
@@ -150,4 +206,6 @@ def train(
         train_seconds=train_seconds,
         samples_per_second=len(train_y) * len(curve) / max(train_seconds, 1e-9),
         curve=curve,
+        status=status,
+        resumed_from_epoch=resumed_from,
     )
