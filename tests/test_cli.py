@@ -137,3 +137,40 @@ def test_parallel_launchers_write_every_record_and_a_rerun_trains_nothing(tmp_pa
     assert rerun.returncode == 0, rerun.stderr
     assert "sweep done: 0 completed, 6 skipped, 0 failed" in rerun.stdout
     assert [path.stat().st_mtime_ns for path in files] == stamps
+
+
+@pytest.mark.parametrize("launcher", ["basic", "joblib"])
+def test_a_sweep_killed_mid_job_finishes_on_rerun_without_retraining_what_was_done(tmp_path, launcher):
+    import os
+    import signal
+    import time
+
+    sweep = tmp_path / "results" / "sweep"
+    arguments = ["-m", "arch=fc,line_conv,graph_conv", "data.samples_per_class=40", "data.nodes=24",
+                 "train.epochs=150", "train.patience=150", "train.checkpoint_every=1",
+                 "hydra.sweep.dir=results/sweep", "hydra.sweep.subdir=${hydra.job.override_dirname}"]
+    if launcher == "joblib":
+        arguments += ["hydra/launcher=joblib", "hydra.launcher.n_jobs=2"]
+    process = subprocess.Popen([str(BIN / "shiftbench"), *arguments], cwd=tmp_path, start_new_session=True,
+                               stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    deadline = time.monotonic() + 120
+    while True:
+        done = [path.parent for path in sweep.rglob("result.json")]
+        started = [path.parent for path in sweep.rglob("checkpoint.pt") if path.parent not in done]
+        if done and started:
+            break
+        assert process.poll() is None, "the sweep ended before it could be killed mid-job"
+        assert time.monotonic() < deadline
+        time.sleep(0.01)
+    os.killpg(process.pid, signal.SIGKILL)
+    process.wait()
+    finished = {path: path.read_bytes() for path in sweep.rglob("result.json")}
+
+    rerun = run("shiftbench", *arguments, cwd=tmp_path)
+    assert rerun.returncode == 0, rerun.stderr
+    records = {path: json.loads(path.read_text()) for path in sweep.rglob("result.json")}
+    assert len(records) == 3 and all(record["status"] == "completed" for record in records.values())
+    assert {path: path.read_bytes() for path in finished} == finished  # not retrained, not rewritten
+    resumed = [record for path, record in records.items() if path not in finished and "resumed_from_epoch" in record]
+    assert resumed and all(record["resumed_from_epoch"] >= 2 for record in resumed)
+    assert not list(sweep.rglob("checkpoint.pt"))

@@ -37,3 +37,12 @@ def test_job_line_shows_place_result_elapsed_and_time_left():
 
 def test_tally_counts_completed_skipped_and_failed():
     assert tally_line(HEADER, FINISHED, now=230.0) == "sweep done: 1 completed, 1 skipped, 1 failed in 2m10s"
+
+
+def test_a_line_cut_short_by_a_kill_is_passed_over(tmp_path):
+    from shiftbench.sweep_progress import read_progress
+
+    path = tmp_path / ".progress.jsonl"
+    path.write_text('{"total": 3, "started": 0}\n{"status": "completed"}\n{"status": "compl')
+    header, finished = read_progress(path)
+    assert header["total"] == 3 and finished == [{"status": "completed"}]

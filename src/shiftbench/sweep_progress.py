@@ -37,8 +37,14 @@ def append_line(path: Path, entry: dict[str, Any]) -> None:
 
 
 def read_progress(path: Path) -> tuple[dict[str, Any], list[dict[str, Any]]]:
-    """The sweep's header (``total``, ``started``) and the finished jobs' entries."""
-    lines = [json.loads(line) for line in path.read_text(encoding="utf-8").splitlines() if line.strip()]
+    """The sweep's header (``total``, ``started``) and the finished jobs' entries. A line cut
+    short by a killed process is passed over."""
+    lines = []
+    for line in path.read_text(encoding="utf-8", errors="replace").splitlines():
+        try:
+            lines.append(json.loads(line))
+        except ValueError:
+            continue
     return lines[0], lines[1:]
 
 
