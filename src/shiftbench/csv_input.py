@@ -17,5 +17,8 @@ def read_user_csv(path: Path, fail: Callable[[Path, str], ConfigError], empty_hi
         return pd.read_csv(path)
     except pd.errors.EmptyDataError:
         raise fail(path, f"is empty; {empty_hint}") from None
-    except (OSError, UnicodeDecodeError, pd.errors.ParserError) as error:
+    except UnicodeDecodeError as error:
+        raise fail(path, f"is not UTF-8 text (byte {error.object[error.start]:#04x} at offset {error.start}); "
+                   "save it as UTF-8") from None
+    except (OSError, pd.errors.ParserError) as error:
         raise fail(path, f"cannot be read as CSV ({str(error).splitlines()[0]})") from None

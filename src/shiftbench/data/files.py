@@ -34,24 +34,39 @@ def _fail(path: Path, problem: str) -> ConfigError:
     return ConfigError(f"data.path={str(path)!r}: {problem}")
 
 
+def first_line(error: Exception) -> str:
+    """An exception's message cut to its first line (its type's name when it has none)."""
+    lines = str(error).splitlines()
+    return lines[0] if lines else type(error).__name__
+
+
 def read_npz(path: Path) -> dict[str, np.ndarray]:
     if not zipfile.is_zipfile(path):
         raise _fail(path, "cannot be read as .npz (not a zip archive); save it with numpy.savez")
     try:
         with np.load(path, allow_pickle=False) as archive:
-            return {key: archive[key] for key in archive.files}
+            arrays = {key: archive[key] for key in archive.files}
     except ValueError as error:
+        if "max_header_size" in str(error):
+            raise _fail(path, "has an array header beyond numpy's safety limit; save plain numeric arrays") from None
         if "allow_pickle" in str(error):
             raise _fail(path, "holds pickled Python objects; save plain numeric or string arrays") from None
-        raise _fail(path, f"cannot be read as .npz ({error}); save it with numpy.savez") from None
+        raise _fail(path, f"cannot be read as .npz ({first_line(error)}); save it with numpy.savez") from None
     except (OSError, zipfile.BadZipFile, EOFError) as error:
-        raise _fail(path, f"cannot be read as .npz ({error}); save it with numpy.savez") from None
+        raise _fail(path, f"cannot be read as .npz ({first_line(error)}); save it with numpy.savez") from None
+    # numpy hands back the raw bytes of a member that is not a .npy array.
+    not_arrays = [key for key, value in arrays.items() if not isinstance(value, np.ndarray)]
+    if not_arrays:
+        raise _fail(path, f"member {not_arrays[0]!r} is not a numpy array; save it with numpy.savez")
+    return arrays
 
 
 def read_csv(path: Path) -> dict[str, np.ndarray]:
     table = read_user_csv(path, _fail, "write a header row with a 'label' column and one column per node")
     if "label" not in table.columns:
         raise _fail(path, "has no 'label' column; write a header row with a 'label' column and one column per node")
+    if table.empty:
+        raise _fail(path, "has a header but no rows; accepted: one sample a row")
     nodes = table.drop(columns="label")
     text = [column for column in nodes.columns if not pd.api.types.is_numeric_dtype(nodes[column])]
     if text:
@@ -64,6 +79,8 @@ def read_csv(path: Path) -> dict[str, np.ndarray]:
 def _check_signals(path: Path, signals: np.ndarray) -> np.ndarray:
     if signals.ndim not in (2, 3):
         raise _fail(path, f"signals has shape {signals.shape}; accepted: (samples, nodes) or (samples, nodes, features)")
+    if signals.shape[0] == 0 or signals.shape[1] < 2 or (signals.ndim == 3 and signals.shape[2] == 0):
+        raise _fail(path, f"signals has shape {signals.shape}; accepted: at least 1 sample, 2 nodes and 1 feature")
     if signals.ndim == 2:
         signals = signals[:, :, None]
     if not np.issubdtype(signals.dtype, np.number) or np.issubdtype(signals.dtype, np.complexfloating):

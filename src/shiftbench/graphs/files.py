@@ -13,6 +13,7 @@ Duplicate edges are summed and self-loops kept (both noted in the record). Every
 
 from __future__ import annotations
 
+import zipfile
 from dataclasses import replace
 from pathlib import Path
 
@@ -38,6 +39,8 @@ def read_edge_list(path: Path, nodes: int) -> Graph:
     if columns not in (["source", "target"], ["source", "target", "weight"]):
         raise _fail(path, f"has columns {columns}; accepted: a header source,target or source,target,weight")
     table.columns = columns
+    if table.empty:
+        raise _fail(path, "has a header but no edges; accepted: one edge a row")
     ids = table[["source", "target"]]
     if not all(pd.api.types.is_integer_dtype(ids[column]) for column in ids):
         raise _fail(path, "source and target must be integer node ids 0..nodes-1")
@@ -45,6 +48,13 @@ def read_edge_list(path: Path, nodes: int) -> Graph:
     if index.size and (index.min() < 0 or index.max() >= nodes):
         bad = int(index.max()) if index.max() >= nodes else int(index.min())
         raise _fail(path, f"node id {bad} is outside the data's {nodes} nodes; accepted: ids 0..{nodes - 1}")
+    repeated = ids.duplicated(keep=False)
+    if repeated.any():
+        # File lines: the header is line 1, the first edge line 2.
+        lines = [int(row) + 2 for row in np.flatnonzero(repeated.to_numpy())]
+        first = ids[repeated].iloc[0]
+        raise _fail(path, f"lists edge {first['source']} -> {first['target']} more than once (lines "
+                    f"{', '.join(map(str, lines[:6]))}{', ...' if len(lines) > 6 else ''}); accepted: each edge once")
     weight = None
     if "weight" in table:
         if not pd.api.types.is_numeric_dtype(table["weight"]) or not np.isfinite(table["weight"]).all():
@@ -56,7 +66,7 @@ def read_edge_list(path: Path, nodes: int) -> Graph:
 def read_sparse_matrix(path: Path) -> Graph:
     try:
         matrix = sp.load_npz(path)
-    except (OSError, ValueError, KeyError):
+    except (OSError, ValueError, KeyError, EOFError, zipfile.BadZipFile):
         raise _fail(path, "is not a matrix saved with scipy.sparse.save_npz") from None
     if matrix.shape[0] != matrix.shape[1]:
         raise _fail(path, f"holds a {matrix.shape[0]}x{matrix.shape[1]} matrix; accepted: a square adjacency")
@@ -74,8 +84,8 @@ def read_networkx(path: Path) -> Graph:
         raise _fail(path, f"cannot be read as {kind} ({str(error).splitlines()[0]})") from None
     try:
         loaded = Graph.from_networkx(graph, name="file")
-    except (TypeError, ValueError) as error:
-        raise _fail(path, f"has edge weights that are not numbers ({error})") from None
+    except (TypeError, ValueError):
+        raise _fail(path, "has edge weights that are not numbers") from None
     if not graph.is_multigraph():
         return loaded
     # networkx sums parallel edges when it builds the matrix; say so in the record.

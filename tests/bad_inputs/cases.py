@@ -1,0 +1,183 @@
+"""The bad-input corpus: each case is a command line (and the files it names) with the one line
+the tool must answer it with. The messages are the tool's own; each names the key or file, the
+bad value, and what is accepted.
+
+Data cases run ``shiftbench data=file data.path=NAME``; graph cases run it on a good 5-node data
+file with ``graph=file graph.path=NAME``; config cases are the command line alone.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from pathlib import Path
+
+import networkx as nx
+import numpy as np
+import scipy.sparse as sp
+
+RNG = np.random.default_rng(0)
+GOOD_SIGNALS = RNG.standard_normal((30, 5))
+GOOD_LABELS = np.repeat([0, 1, 2], 10)
+Writer = Callable[[Path], None] | None
+
+
+def npz(**arrays) -> Writer:
+    return lambda path: np.savez(path, **arrays)
+
+
+def text(content: str, encoding: str = "utf-8") -> Writer:
+    return lambda path: Path(path).write_bytes(content.encode(encoding))
+
+
+def save_sparse(matrix) -> Writer:
+    return lambda path: sp.save_npz(path, sp.csr_matrix(matrix))
+
+
+def graphml(graph) -> Writer:
+    return lambda path: nx.write_graphml(graph, path)
+
+
+def with_nan() -> np.ndarray:
+    signals = GOOD_SIGNALS.copy()
+    signals[4, 2] = np.nan
+    signals[7, 1] = np.inf
+    return signals
+
+
+def huge_header_array() -> np.ndarray:
+    # A structured dtype of 400 long field names: its .npy header passes numpy's 10 kB limit.
+    fields = np.dtype([(f"field_{index:05d}_{'x' * 40}", "f4") for index in range(400)])
+    return np.zeros(30, dtype=fields)
+
+
+def write_good_data(path: Path) -> None:
+    np.savez(path, signals=GOOD_SIGNALS, labels=GOOD_LABELS)
+
+
+CONFIG_CASES: list[tuple[list[str], str]] = [
+    (["arch.order=abc"], "arch.order='abc' has the wrong type; accepted: an integer"),
+    (["train.batch_size=1.5"], "train.batch_size=1.5 has the wrong type; accepted: an integer"),
+    (["arch.foo=1"], "unknown key arch.foo (arch family graph_conv); accepted keys: family, order, channels, "
+                     "nonlinearity, readout, dropout, normalization, budget"),
+    (["+foo=1"], "unknown key foo; accepted top-level keys: seed, results_dir, device, force, data, graph, arch, train"),
+    (["arch=cnn"], "arch='cnn' is not accepted; accepted: one of fc, graph_conv, line_conv, nearest"),
+    (["graph=ring"], "graph='ring' is not accepted; accepted: one of correlation, cycle, file, geometric, grid, knn, "
+                     "line, native, path, rewired, sbm"),
+    (["hydra/launcher=nope"], "hydra/launcher='nope' is not accepted; accepted: one of basic, joblib, slurm_cpu, "
+                              "submitit_local, submitit_slurm"),
+    (["arch.order=-1"], "arch.order=-1 is not accepted; accepted: an integer >= 0"),
+    (["train.epochs=0"], "train.epochs=0 is not accepted; accepted: an integer >= 1"),
+    (["train.lr=0"], "train.lr=0.0 is not accepted; accepted: a number > 0"),
+    (["train.max_seconds=-5"], "train.max_seconds=-5.0 is not accepted; accepted: a number of seconds > 0, or null"),
+    (["train.checkpoint_every=-1"], "train.checkpoint_every=-1 is not accepted; accepted: an integer >= 0 (0: never)"),
+    (["train.optimizer=lbfgs"], "train.optimizer='lbfgs' is not accepted; accepted: one of adam, sgd"),
+    (["graph.operator=lap"], "graph.operator='lap' is not accepted; accepted: one of adjacency, laplacian, "
+                             "normalized_adjacency, normalized_laplacian"),
+    (["graph.scale=max"], "graph.scale='max' is not accepted; accepted: one of spectral, none"),
+    (["data.nodes=1"], "data.nodes=1 is not accepted; accepted: an integer >= 2"),
+    (["seed=-1"], "seed=-1 is not accepted; accepted: an integer >= 0"),
+    (["arch.channels=[]"], "arch.channels=[] is not accepted; accepted: a non-empty list of integers >= 1"),
+    (["arch.readout=sum"], "arch.readout='sum' is not accepted; accepted: one of mean, max, flatten"),
+    (["arch=line_conv", "arch.boundary=reflect"], "arch.boundary='reflect' is not accepted; accepted: one of zero, circular"),
+    (["data.val_fraction=0.9"], "data.test_fraction=0.2 is not accepted; accepted: a fraction below 0.1 "
+                                "(val_fraction + test_fraction < 1)"),
+    (["data=ucr", "data.name=NoSuchSeries"], "data.name='NoSuchSeries' is not accepted; accepted: one of ACSF1, "
+     "ArrowHead, BasicMotions, GunPoint, ItalyPowerDemand, JapaneseVowels, OSULeaf, PickupGestureWiimoteZ, UnitTest"),
+    (["graph=grid", "graph.rows=4"], "graph.rows*graph.cols=4*8=32 is not accepted; accepted: rows*cols equal to the "
+                                     "data's 64 nodes"),
+    (["graph=knn", "graph.neighbors=64"], "graph.neighbors=64 is not accepted; accepted: fewer than the data's 64 nodes"),
+    (["-m", "arch=fc,cnn"], "arch='cnn' is not accepted; accepted: one of fc, graph_conv, line_conv, nearest"),
+    (["-m", "arch.order=1,2,-3"], "arch.order=-3 is not accepted; accepted: an integer >= 0"),
+    (["-m", "+experiment=nope"], "experiment='nope' is not accepted; accepted: one of budget, claims, families, "
+                                 "graphs, orders, scaling"),
+    (["arch=fc", "arch.hidden=[100000]", "data.nodes=100000"],
+     "arch=fc at 100,000 nodes needs 10,000,500,004 parameters, 160.0 GB to train (16 bytes a parameter), but "
+     "24.0 GB of memory is available; accepted: a model that fits (narrower layers, fewer nodes, or a "
+     "convolutional family, whose count does not grow with the nodes)"),
+]
+
+DATA_CASES: list[tuple[str, Writer, str]] = [
+    ("missing.npz", None, "no such file; give the path of a .npz or .csv file"),
+    ("data.txt", text("1,2,3"), "has suffix '.txt'; accepted: .npz or .csv"),
+    ("torn.npz", text("not a zip archive"), "cannot be read as .npz (not a zip archive); save it with numpy.savez"),
+    ("empty.npz", text(""), "cannot be read as .npz (not a zip archive); save it with numpy.savez"),
+    ("pickled.npz", npz(signals=GOOD_SIGNALS, labels=np.array([{"a": 1}] * 30, dtype=object)),
+     "holds pickled Python objects; save plain numeric or string arrays"),
+    ("huge_header.npz", npz(signals=huge_header_array(), labels=GOOD_LABELS),
+     "has an array header beyond numpy's safety limit; save plain numeric arrays"),
+    ("nolabels.npz", npz(signals=GOOD_SIGNALS),
+     "has no array 'labels'; save signals (samples, nodes[, features]) and labels (samples,)"),
+    ("flat.npz", npz(signals=np.arange(30.0), labels=GOOD_LABELS),
+     "signals has shape (30,); accepted: (samples, nodes) or (samples, nodes, features)"),
+    ("deep.npz", npz(signals=np.zeros((30, 2, 2, 2)), labels=GOOD_LABELS),
+     "signals has shape (30, 2, 2, 2); accepted: (samples, nodes) or (samples, nodes, features)"),
+    ("no_samples.npz", npz(signals=np.zeros((0, 5)), labels=np.zeros(0, dtype=int)),
+     "signals has shape (0, 5); accepted: at least 1 sample, 2 nodes and 1 feature"),
+    ("complex.npz", npz(signals=GOOD_SIGNALS.astype(complex), labels=GOOD_LABELS),
+     "signals has dtype complex128; accepted: real numbers"),
+    ("nan.npz", npz(signals=with_nan(), labels=GOOD_LABELS),
+     "signals holds 2 NaN or infinite values (first at sample 4, node 2); remove or impute them"),
+    ("count.npz", npz(signals=GOOD_SIGNALS, labels=GOOD_LABELS[:29]),
+     "signals has 30 samples but labels has 29; they must agree"),
+    ("labels_2d.npz", npz(signals=GOOD_SIGNALS, labels=GOOD_LABELS.reshape(10, 3)),
+     "labels has shape (10, 3); accepted: (samples,)"),
+    ("fractional.npz", npz(signals=GOOD_SIGNALS, labels=GOOD_LABELS + 0.5),
+     "labels are not all integers; accepted: integer or string class labels"),
+    ("one_class.npz", npz(signals=GOOD_SIGNALS, labels=np.zeros(30, dtype=int)),
+     "labels hold a single class ('0'); accepted: at least 2 classes"),
+    ("tiny_class.npz", npz(signals=GOOD_SIGNALS, labels=np.r_[np.zeros(28, dtype=int), [1, 1]]),
+     "class 1 has 2 samples; each class needs at least 3 for a stratified train/val/test split (or give a 'split' array)"),
+    ("bad_split.npz", npz(signals=GOOD_SIGNALS, labels=GOOD_LABELS, split=np.repeat([0, 1, 3], 10)),
+     "split holds 3; accepted: 0 (train), 1 (val), 2 (test)"),
+    ("no_test.npz", npz(signals=GOOD_SIGNALS, labels=GOOD_LABELS, split=np.repeat([0, 1, 1], 10)),
+     "split has no test samples; give each of train, val and test at least one"),
+    ("positions.npz", npz(signals=GOOD_SIGNALS, labels=GOOD_LABELS, positions=np.zeros((4, 2))),
+     "positions has shape (4, 2); accepted: finite (5, dims)"),
+    ("nolabel.csv", text("a,b\n1,2\n3,4\n"),
+     "has no 'label' column; write a header row with a 'label' column and one column per node"),
+    ("words.csv", text("label,a,b\n0,1,x\n1,3,4\n"),
+     "column 'b' is not numeric; every column but 'label' must hold node values"),
+    ("empty.csv", text(""), "is empty; write a header row with a 'label' column and one column per node"),
+    ("header_only.csv", text("label,a,b\n"), "has a header but no rows; accepted: one sample a row"),
+    ("infinite.csv", text("label,a,b\n0,inf,1\n1,2,3\n2,1,1\n"),
+     "signals holds 1 NaN or infinite values (first at sample 0, node 0); remove or impute them"),
+    ("utf16.csv", text("label,a,b\n0,1,2\n1,3,4\n", "utf-16"),
+     "is not UTF-8 text (byte 0xff at offset 0); save it as UTF-8"),
+    ("latin1.csv", text("label,caf\xe9,b\n0,1,2\n1,3,4\n", "latin-1"),
+     "is not UTF-8 text (byte 0xe9 at offset 9); save it as UTF-8"),
+    ("ragged.csv", text("label,a,b\n0,1,2\n1,2,3,4\n"),
+     "cannot be read as CSV (Error tokenizing data. C error: Expected 3 fields in line 3, saw 4)"),
+]
+
+GRAPH_CASES: list[tuple[str, Writer, str]] = [
+    ("missing.csv", None, "no such file; give the path of an edge-list .csv, a scipy .npz, .graphml or .gml"),
+    ("graph.json", text("{}"), "has suffix '.json'; accepted: .csv, .npz, .graphml, .gml"),
+    ("header.csv", text("from,to\n0,1\n"), "has columns ['from', 'to']; accepted: a header source,target or "
+                                            "source,target,weight"),
+    ("no_edges.csv", text("source,target\n"), "has a header but no edges; accepted: one edge a row"),
+    ("float_ids.csv", text("source,target\n0.5,1\n"), "source and target must be integer node ids 0..nodes-1"),
+    ("outside.csv", text("source,target\n0,7\n"), "node id 7 is outside the data's 5 nodes; accepted: ids 0..4"),
+    ("negative_id.csv", text("source,target\n-1,2\n"), "node id -1 is outside the data's 5 nodes; accepted: ids 0..4"),
+    ("duplicate.csv", text("source,target\n0,1\n1,2\n0,1\n"),
+     "lists edge 0 -> 1 more than once (lines 2, 4); accepted: each edge once"),
+    ("weights.csv", text("source,target,weight\n0,1,heavy\n"), "weight column holds values that are not finite numbers"),
+    ("nan_weight.csv", text("source,target,weight\n0,1,nan\n"), "weight column holds values that are not finite numbers"),
+    ("empty.csv", text(""), "is empty; write a header source,target[,weight] and one edge a row"),
+    ("utf16.csv", text("source,target\n0,1\n", "utf-16"), "is not UTF-8 text (byte 0xff at offset 0); save it as UTF-8"),
+    ("notsparse.npz", npz(a=np.zeros(3)), "is not a matrix saved with scipy.sparse.save_npz"),
+    ("rectangular.npz", save_sparse(np.ones((5, 4))), "holds a 5x4 matrix; accepted: a square adjacency"),
+    ("small.npz", save_sparse(np.eye(4, k=1)), "has 4 nodes but the data has 5; they must agree"),
+    ("small.graphml", graphml(nx.path_graph(3)), "has 3 nodes but the data has 5; they must agree"),
+    ("text_weights.gml", text('graph [ node [ id 0 label "a" ] node [ id 1 label "b" ] edge [ source 0 target 1 '
+                              'weight "x" ] ]'), "has edge weights that are not numbers"),
+]
+
+# (file, its content, extra arguments, the whole message)
+OPERATOR_CASES: list[tuple[str, Writer, list[str], str]] = [
+    ("negative.csv", text("source,target,weight\n0,1,-1\n1,2,1\n2,3,1\n3,4,1\n"), ["graph.operator=laplacian"],
+     "graph.operator='laplacian' is not accepted for a graph with 1 negative edge weights; accepted: adjacency "
+     "or normalized_adjacency"),
+    ("negative.npz", save_sparse(np.diag(-np.ones(4), 1)), ["graph.operator=normalized_laplacian"],
+     "graph.operator='normalized_laplacian' is not accepted for a graph with 4 negative edge weights; accepted: "
+     "adjacency or normalized_adjacency"),
+]

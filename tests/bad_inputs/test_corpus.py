@@ -1,0 +1,85 @@
+"""Every case of the bad-input corpus (``cases.py``), run through the ``shiftbench`` entry point:
+exit status 2, exactly its one-line message on stderr, no traceback, and the records already in
+the results folder left as they were."""
+
+import sys
+from pathlib import Path
+
+import pytest
+
+import shiftbench.job
+from shiftbench.cli import main
+from tests.bad_inputs.cases import CONFIG_CASES, DATA_CASES, GRAPH_CASES, OPERATOR_CASES, write_good_data
+
+EARLIER = {"results/earlier/result.json": b'{"schema_version": 1, "status": "completed"}\n',
+           "results/earlier/curve.csv": b"epoch,train_loss\n1,0.5\n"}
+
+
+@pytest.fixture
+def workspace(tmp_path, monkeypatch):
+    """A folder holding good data and an earlier run's files, as the working directory."""
+    monkeypatch.chdir(tmp_path)
+    monkeypatch.setattr(shiftbench.job, "available_memory_bytes", lambda: 24 * 10**9)
+    write_good_data(tmp_path / "good.npz")
+    for name, content in EARLIER.items():
+        (tmp_path / name).parent.mkdir(parents=True, exist_ok=True)
+        (tmp_path / name).write_bytes(content)
+    return tmp_path
+
+
+def refused(workspace: Path, arguments: list[str], capsys, monkeypatch) -> str:
+    """Run ``shiftbench ARGUMENTS``; check it exits 2 without a traceback and leaves the earlier
+    files alone; return what it printed on stderr."""
+    before = sorted(path for path in workspace.rglob("*"))
+    monkeypatch.setattr(sys, "argv", ["shiftbench", *arguments])
+    with pytest.raises(SystemExit) as stopped:
+        main()
+    assert stopped.value.code == 2
+    printed = capsys.readouterr().err
+    assert "Traceback" not in printed
+    assert sorted(path for path in workspace.rglob("*")) == before
+    assert all((workspace / name).read_bytes() == content for name, content in EARLIER.items())
+    return printed
+
+
+def test_the_corpus_holds_at_least_forty_cases():
+    assert len(CONFIG_CASES) + len(DATA_CASES) + len(GRAPH_CASES) + len(OPERATOR_CASES) >= 40
+
+
+@pytest.mark.parametrize(("arguments", "message"), CONFIG_CASES, ids=[" ".join(case[0]) for case in CONFIG_CASES])
+def test_a_bad_config_gets_its_one_line(workspace, capsys, monkeypatch, arguments, message):
+    assert refused(workspace, arguments, capsys, monkeypatch) == f"shiftbench: error: {message}\n"
+
+
+@pytest.mark.parametrize(("name", "write", "problem"), DATA_CASES, ids=[case[0] for case in DATA_CASES])
+def test_a_bad_data_file_gets_its_one_line(workspace, capsys, monkeypatch, name, write, problem):
+    if write is not None:
+        write(workspace / name)
+    printed = refused(workspace, ["data=file", f"data.path={name}"], capsys, monkeypatch)
+    assert printed == f"shiftbench: error: data.path={name!r}: {problem}\n"
+
+
+@pytest.mark.parametrize(("name", "write", "problem"), GRAPH_CASES, ids=[case[0] for case in GRAPH_CASES])
+def test_a_bad_graph_file_gets_its_one_line(workspace, capsys, monkeypatch, name, write, problem):
+    if write is not None:
+        write(workspace / name)
+    printed = refused(workspace, ["data=file", "data.path=good.npz", "graph=file", f"graph.path={name}"], capsys, monkeypatch)
+    assert printed == f"shiftbench: error: graph.path={name!r}: {problem}\n"
+
+
+@pytest.mark.parametrize(("name", "write", "extra", "message"), OPERATOR_CASES, ids=[case[0] for case in OPERATOR_CASES])
+def test_an_operator_the_graph_cannot_take_gets_its_one_line(workspace, capsys, monkeypatch, name, write, extra, message):
+    write(workspace / name)
+    arguments = ["data=file", "data.path=good.npz", "graph=file", f"graph.path={name}", *extra]
+    assert refused(workspace, arguments, capsys, monkeypatch) == f"shiftbench: error: {message}\n"
+
+
+def test_negative_weights_are_fine_for_the_adjacency():
+    import numpy as np
+    import scipy.sparse as sp
+
+    from shiftbench.graphs.graph import Graph
+    from shiftbench.graphs.operators import operator_matrix
+
+    graph = Graph.from_adjacency(sp.csr_matrix(np.array([[0, -1.0], [-1.0, 0]])))
+    assert operator_matrix(graph, "adjacency").nnz == 2
