@@ -174,3 +174,18 @@ def test_a_sweep_killed_mid_job_finishes_on_rerun_without_retraining_what_was_do
     resumed = [record for path, record in records.items() if path not in finished and "resumed_from_epoch" in record]
     assert resumed and all(record["resumed_from_epoch"] >= 2 for record in resumed)
     assert not list(sweep.rglob("checkpoint.pt"))
+
+
+def test_job_folders_named_by_overrides_stay_inside_the_sweep_folder(tmp_path):
+    rng = np.random.default_rng(1)
+    signals = rng.standard_normal((45, 6))
+    np.savez(tmp_path / "X.npz", signals=signals, labels=np.repeat([0, 1, 2], 15))
+    (tmp_path / "sub").mkdir()
+    # Read from the working folder by a path whose '..' steps would climb out of a folder named after it.
+    climbing = f"sub/../../{tmp_path.name}/X.npz"
+    arguments = ["-m", "data=file", f"data.path={climbing},X.npz", "arch=fc", "train.epochs=1",
+                 "hydra.sweep.dir=results/s", "hydra.sweep.subdir='${safe_dirname:${hydra.job.override_dirname}}'"]
+    result = run("shiftbench", *arguments, cwd=tmp_path)
+    assert result.returncode == 0, result.stderr
+    folders = [path.parent for path in (tmp_path / "results" / "s").rglob("result.json")]
+    assert len(folders) == 2 and all(folder.parent == tmp_path / "results" / "s" for folder in folders)

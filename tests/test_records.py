@@ -39,3 +39,18 @@ def test_loader_skips_unreadable_and_foreign_files_and_lists_them(tmp_path):
         frame = load_records([tmp_path])
     assert list(frame["status"]) == ["completed"]
     assert len(frame.attrs["skipped"]) == 2
+
+
+@pytest.mark.parametrize("name", ["..", ".", "", "data.path=../../etc", "a/b", "a%2Fb", "x\\..\\y", "seed=0,arch=fc"])
+def test_a_folder_name_from_overrides_is_one_component_inside_its_parent(tmp_path, name):
+    from shiftbench.records import safe_dirname
+
+    folder = (tmp_path / safe_dirname(name)).resolve()
+    assert folder.parent == tmp_path.resolve() and "/" not in safe_dirname(name)
+
+
+def test_distinct_override_names_stay_distinct_folders():
+    from shiftbench.records import safe_dirname
+
+    names = ["a/b", "a%2Fb", "a_b", "a\\b", "..", "%2E%2E"]
+    assert len({safe_dirname(name) for name in names}) == len(names)

@@ -17,8 +17,13 @@ from shiftbench.claims_report import write_claims
 from shiftbench.config import ConfigError
 from shiftbench.job import run_job
 from shiftbench.preflight import preflight
+from shiftbench.records import safe_dirname
 from shiftbench.report import write_report
 from shiftbench.runtime import keep_freed_memory, share_cores
+
+# Study folders name jobs by their overrides through this resolver (see records.safe_dirname); it
+# is registered on import, so launcher workers that unpickle the job have it too.
+OmegaConf.register_new_resolver("safe_dirname", safe_dirname, replace=True)
 
 # The config tree lives beside the source (``configs/`` at the project root), so the app finds
 # it from any working directory.

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import typing
 from dataclasses import asdict, dataclass, field, fields
+from pathlib import PurePath
 from typing import Any, Optional
 
 import torch
@@ -34,6 +35,13 @@ def require(key: str, value: Any, ok: bool, accepted: str) -> None:
     """Raise a ConfigError for ``key=value`` unless ``ok``; ``accepted`` says what would be."""
     if not ok:
         raise ConfigError(f"{key}={value!r} is not accepted; accepted: {accepted}")
+
+
+def require_inside(key: str, path: str) -> None:
+    """A relative output path must stay below the working folder (no ``..`` step); an absolute
+    path is the user's explicit choice."""
+    require(key, path, PurePath(path).is_absolute() or ".." not in PurePath(path).parts,
+            "a folder below the working folder (no '..'), or an absolute path")
 
 
 def require_choice(key: str, value: Any, choices: typing.Iterable[str]) -> None:
@@ -418,6 +426,7 @@ def validate(config: DictConfig) -> RunConfig:
     require_choice("device", device, DEVICES)
     require("device", device, device != "cuda" or torch.cuda.is_available(), "cpu (no CUDA device is available here)")
     require("results_dir", results_dir, isinstance(results_dir, str) and results_dir != "", "a folder path")
+    require_inside("results_dir", results_dir)
     require("force", config.force, isinstance(config.force, bool), "true or false")
     groups = {group: _validate_group(group, config[group]) for group in GROUPS}
     run = RunConfig(seed=seed, results_dir=results_dir, device=device, force=config.force, **groups)

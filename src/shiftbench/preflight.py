@@ -18,7 +18,7 @@ from hydra.core.override_parser.overrides_parser import OverridesParser
 from hydra.errors import HydraException, MissingConfigException
 from omegaconf import DictConfig, OmegaConf
 
-from shiftbench.config import ConfigError, validate
+from shiftbench.config import ConfigError, require_inside, validate
 from shiftbench.job import check_inputs
 
 # Hydra flags that take the next argument as their value.
@@ -75,6 +75,10 @@ def count_jobs(task_overrides: list[str], study_params: dict) -> int:
     return math.prod(len(values) for values in axes.values())
 
 
+# Hydra keys a user may set to say where jobs write.
+OUTPUT_DIRECTORY_KEYS = ("hydra.run.dir", "hydra.sweep.dir")
+
+
 def preflight(arguments: list[str], config_dir: Path) -> int:
     """Validate every job a command line would launch; return how many configs were checked.
 
@@ -84,6 +88,10 @@ def preflight(arguments: list[str], config_dir: Path) -> int:
     overrides = override_arguments(arguments)
     if overrides is None:
         return 0
+    for override in overrides:
+        key, _, value = override.partition("=")
+        if key in OUTPUT_DIRECTORY_KEYS:
+            require_inside(key, value)
     try:
         axes, fixed = split_overrides(overrides)
     except HydraException as error:

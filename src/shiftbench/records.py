@@ -30,6 +30,14 @@ TRAIN_RUN_KEYS = ("checkpoint_every",)
 FINAL_STATUSES = ("completed", "timed_out")
 
 
+def safe_dirname(name: str) -> str:
+    """A folder name made from overrides, as one path component that cannot leave its parent:
+    ``%``, ``/`` and ``\\`` percent-encoded (so distinct names stay distinct), and ``.``/``..``
+    spelled out."""
+    encoded = name.replace("%", "%25").replace("/", "%2F").replace("\\", "%5C")
+    return {"": "%00", ".": "%2E", "..": "%2E%2E"}.get(encoded, encoded)
+
+
 def write_atomic(path: Path, content: str | bytes) -> Path:
     """Write ``content`` (text as UTF-8, or bytes) to ``path`` so that a reader sees the old file
     or the whole new one: write a temporary file in the same folder, flush it to disk, then

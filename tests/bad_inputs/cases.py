@@ -90,6 +90,10 @@ CONFIG_CASES: list[tuple[list[str], str]] = [
     (["-m", "arch.order=1,2,-3"], "arch.order=-3 is not accepted; accepted: an integer >= 0"),
     (["-m", "+experiment=nope"], "experiment='nope' is not accepted; accepted: one of budget, claims, families, "
                                  "graphs, orders, scaling"),
+    (["results_dir=../outside"], "results_dir='../outside' is not accepted; accepted: a folder below the working "
+                                 "folder (no '..'), or an absolute path"),
+    (["-m", "hydra.sweep.dir=runs/../../x"], "hydra.sweep.dir='runs/../../x' is not accepted; accepted: a folder "
+                                             "below the working folder (no '..'), or an absolute path"),
     (["arch=fc", "arch.hidden=[100000]", "data.nodes=100000"],
      "arch=fc at 100,000 nodes needs 10,000,500,004 parameters, 160.0 GB to train (16 bytes a parameter), but "
      "24.0 GB of memory is available; accepted: a model that fits (narrower layers, fewer nodes, or a "
