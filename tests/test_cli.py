@@ -189,3 +189,28 @@ def test_job_folders_named_by_overrides_stay_inside_the_sweep_folder(tmp_path):
     assert result.returncode == 0, result.stderr
     folders = [path.parent for path in (tmp_path / "results" / "s").rglob("result.json")]
     assert len(folders) == 2 and all(folder.parent == tmp_path / "results" / "s" for folder in folders)
+
+
+def test_two_sweeps_writing_one_study_folder_and_a_report_reading_it_meanwhile_see_only_whole_records(tmp_path):
+    import time
+
+    from shiftbench.records import load_records
+
+    sweep = tmp_path / "results" / "shared"
+    common = ["-m", "arch=fc,line_conv,graph_conv", *FAST, "train.epochs=20", "train.checkpoint_every=1",
+              "hydra.sweep.dir=results/shared", "hydra.sweep.subdir=${hydra.job.override_dirname}"]
+    sweeps = [subprocess.Popen([str(BIN / "shiftbench"), *common, f"seed={seed}"], cwd=tmp_path,
+                               stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True) for seed in (0, 1)]
+    reads = 0
+    while any(process.poll() is None for process in sweeps):
+        if sweep.is_dir():
+            frame = load_records([sweep])
+            assert frame.attrs["skipped"] == []  # never half a file
+            assert len(frame) == 0 or set(frame["status"]) == {"completed"}
+            reads += 1
+        time.sleep(0.02)
+    outputs = [process.communicate() for process in sweeps]
+    assert all(process.returncode == 0 for process in sweeps), outputs
+    assert all("sweep done: 3 completed, 0 skipped, 0 failed" in out for out, _ in outputs)
+    frame = load_records([sweep])
+    assert reads > 0 and len(frame) == 6 and sorted(frame["seed"]) == [0, 0, 0, 1, 1, 1]

@@ -2,8 +2,9 @@
 
 A Hydra callback (registered in ``configs/config.yaml``). Jobs may finish in other processes
 (joblib workers, submitit jobs), so progress lives in a small append-only file in the sweep
-folder: its first line holds the job count and start time, and each finished job appends one
-line. Appends of one short line are atomic, so parallel jobs never garble each other's.
+folder, one for each sweep command (``.progress.<token>.jsonl``, removed when the sweep ends): its
+first line holds the job count and start time, and each finished job appends one line. Appends
+of one short line are atomic, so parallel jobs never garble each other's.
 """
 
 from __future__ import annotations
@@ -20,7 +21,8 @@ from omegaconf import DictConfig, OmegaConf
 
 from shiftbench.preflight import count_jobs
 
-PROGRESS_FILE = ".progress.jsonl"
+PROGRESS_FILE = ".progress.{token}.jsonl"
+SWEEP_TOKEN = "SHIFTBENCH_SWEEP_TOKEN"
 
 
 def format_seconds(seconds: float) -> str:
@@ -74,9 +76,13 @@ class SweepProgress(Callback):
 
     @staticmethod
     def _path(config: DictConfig) -> Path:
-        return Path(config.hydra.sweep.dir).resolve() / PROGRESS_FILE
+        # One file a sweep process, so two sweeps writing into one folder keep their own counts;
+        # the launcher's workers (threads, loky or submitit processes) inherit the name.
+        token = os.environ.setdefault(SWEEP_TOKEN, f"{os.getpid()}-{time.time_ns()}")
+        return Path(config.hydra.sweep.dir).resolve() / PROGRESS_FILE.format(token=token)
 
     def on_multirun_start(self, config: DictConfig, **kwargs: Any) -> None:
+        os.environ[SWEEP_TOKEN] = f"{os.getpid()}-{time.time_ns()}"
         task = list(OmegaConf.to_container(config.hydra.overrides.task))  # type: ignore[arg-type]
         study = config.hydra.sweeper.get("params")
         params = OmegaConf.to_container(study) if study else {}
@@ -92,8 +98,13 @@ class SweepProgress(Callback):
         path = self._path(config)
         append_line(path, {**outcome, "status": status})
         header, finished = read_progress(path)
-        print(job_line(header, finished, time.time()), flush=True)
+        if "total" in header:  # a worker that did not inherit the sweep's file has no header
+            print(job_line(header, finished, time.time()), flush=True)
 
     def on_multirun_end(self, config: DictConfig, **kwargs: Any) -> None:
-        header, finished = read_progress(self._path(config))
+        path = self._path(config)
+        if not path.is_file():
+            return
+        header, finished = read_progress(path)
         print(tally_line(header, finished, time.time()), flush=True)
+        path.unlink(missing_ok=True)
