@@ -19,7 +19,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from shiftbench.records import load_records
+from shiftbench.records import load_records, write_atomic
 
 FAMILIES = ("fc", "line_conv", "graph_conv")
 EPOCHS = 5
@@ -91,7 +91,7 @@ def write_markdown(figures: dict, machine: str, path: Path) -> None:
         f"{large['wall_seconds']:.0f} s in all.",
         "",
     ]
-    path.write_text("\n".join(lines), encoding="utf-8")
+    write_atomic(path, "\n".join(lines))
 
 
 def main(argv: list[str] | None = None) -> None:
@@ -105,7 +105,7 @@ def main(argv: list[str] | None = None) -> None:
         figures = measure(Path(work))
     figures["machine"] = {key: facts[key] for key in ("cpu", "cores", "torch")}
     arguments.out.mkdir(parents=True, exist_ok=True)
-    (arguments.out / "end_to_end.json").write_text(json.dumps(figures, indent=1) + "\n", encoding="utf-8")
+    write_atomic(arguments.out / "end_to_end.json", json.dumps(figures, indent=1) + "\n")
     write_markdown(figures, f"{facts['cpu']}, {facts['cores']} cores, torch {facts['torch']}", arguments.out / "end_to_end.md")
     print(f"wrote {arguments.out / 'end_to_end.json'} and {arguments.out / 'end_to_end.md'}", file=sys.stderr)
 

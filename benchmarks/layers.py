@@ -26,6 +26,7 @@ from benchmarks.measure import (
 )
 from benchmarks.report import write_layers_report
 from shiftbench.graphs.operators import shift_operator
+from shiftbench.records import write_atomic
 from shiftbench.runtime import available_cores, keep_freed_memory
 
 NODES = (1024, 16384)
@@ -127,6 +128,14 @@ def in_subprocess(arguments: list[str]) -> list[dict]:
     return [json.loads(line) for line in done.stdout.splitlines() if line.startswith("{")]
 
 
+def write_results(rows: list[dict], limits: dict, out_dir: Path) -> None:
+    """``layers.json`` (the measured entries, with exactly ``RESULT_KEYS``) and ``layers.md``."""
+    out_dir.mkdir(parents=True, exist_ok=True)
+    measured = [{key: row[key] for key in RESULT_KEYS} for row in rows if "median_ms" in row]
+    write_atomic(out_dir / "layers.json", json.dumps(measured, indent=1) + "\n")
+    write_layers_report(rows, limits, out_dir / "layers.md")
+
+
 def run_all(graphs, nodes_list, batches, orders, out_dir: Path) -> None:
     started = time.perf_counter()
     limits = in_subprocess(["--limits"])[0]
@@ -139,11 +148,8 @@ def run_all(graphs, nodes_list, batches, orders, out_dir: Path) -> None:
         print(f"[{index}/{len(groups)}] {graph_name}, {nodes} nodes, batch {batch} ...", end="", file=sys.stderr, flush=True)
         rows += in_subprocess(["--group", graph_name, str(nodes), str(batch), "--orders", *map(str, orders)])
         print(f" {time.perf_counter() - group_started:.0f} s", file=sys.stderr, flush=True)
-    out_dir.mkdir(parents=True, exist_ok=True)
-    measured = [{key: row[key] for key in RESULT_KEYS} for row in rows if "median_ms" in row]
-    (out_dir / "layers.json").write_text(json.dumps(measured, indent=1) + "\n", encoding="utf-8")
     limits["wall_seconds"] = time.perf_counter() - started
-    write_layers_report(rows, limits, out_dir / "layers.md")
+    write_results(rows, limits, out_dir)
     print(f"wrote {out_dir / 'layers.json'} and {out_dir / 'layers.md'} in {limits['wall_seconds']:.0f} s", file=sys.stderr)
 
 

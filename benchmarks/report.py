@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from shiftbench.records import write_atomic
+
 CONVOLUTIONS = ("conv1d", "conv2d_channels_last")
 COLUMNS = ("shiftbench", "conv1d", "conv2d_channels_last", "tagconv", "dense")
 # The targets: (label, graph, nodes, batch, order, pass, kind, limit).
@@ -103,4 +105,4 @@ def write_layers_report(rows: list[dict], limits: dict, path: Path) -> None:
     lines += ["", "Not run: " + "; ".join(sorted(reasons)) + "." if reasons else "",
               "", f"Every implementation's output agreed with shiftbench's to a relative {worst_difference:.1e} "
               "(largest difference over the largest value).", ""]
-    path.write_text("\n".join(lines), encoding="utf-8")
+    write_atomic(path, "\n".join(lines))

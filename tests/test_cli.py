@@ -147,7 +147,7 @@ def test_a_sweep_killed_mid_job_finishes_on_rerun_without_retraining_what_was_do
 
     sweep = tmp_path / "results" / "sweep"
     arguments = ["-m", "arch=fc,line_conv,graph_conv", "data.samples_per_class=40", "data.nodes=24",
-                 "train.epochs=150", "train.patience=150", "train.checkpoint_every=1",
+                 "train.epochs=100", "train.patience=100", "train.checkpoint_every=1",
                  "hydra.sweep.dir=results/sweep", "hydra.sweep.subdir=${hydra.job.override_dirname}"]
     if launcher == "joblib":
         arguments += ["hydra/launcher=joblib", "hydra.launcher.n_jobs=2"]
