@@ -17,7 +17,6 @@ import torch
 from torch import nn
 
 from shiftbench.graphs.graph import Graph
-from shiftbench.graphs.operators import shift_operator
 from shiftbench.graphs.sources import grid_graph, knn_graph, line_graph
 from shiftbench.models.graph_filter import GraphFilter
 
@@ -77,15 +76,19 @@ def shared_weights(case: Case, seed: int = 0) -> tuple[torch.Tensor, torch.Tenso
     return taps, bias
 
 
-def build(case: Case, implementation: str, graph: Graph) -> tuple[Callable[[], torch.Tensor], torch.Tensor, nn.Module | None]:
-    """``(run, input, module)``: ``run()`` computes the layer on ``input`` and returns
-    ``(batch, nodes, channels)`` (``(batch * nodes, channels)`` for tagconv)."""
+def build(
+    case: Case, implementation: str, shift: torch.Tensor
+) -> tuple[Callable[[], torch.Tensor], torch.Tensor, nn.Module | None]:
+    """``(run, input, module)``: ``run()`` computes the layer with the ``(nodes, nodes)`` shift
+    on ``input`` and returns ``(batch, nodes, channels)`` (``(batch * nodes, channels)`` for
+    tagconv, ``(batch, channels, nodes)`` for conv1d, ``(batch, channels, 1, nodes)`` for
+    conv2d_channels_last)."""
     taps, bias = shared_weights(case)
     generator = torch.Generator().manual_seed(1)
     signal = torch.randn(case.batch, case.nodes, case.channels, generator=generator)
     order = case.order
     if implementation == "shiftbench":
-        layer = GraphFilter(shift_operator(graph), case.channels, case.channels, order)
+        layer = GraphFilter(shift, case.channels, case.channels, order)
         with torch.no_grad():
             layer.taps.copy_(taps)
             layer.bias.copy_(bias)
@@ -103,9 +106,9 @@ def build(case: Case, implementation: str, graph: Graph) -> tuple[Callable[[], t
 
         return channels_last, signal, conv
     if implementation == "tagconv":
-        return _tagconv(case, graph, taps, bias, signal)
+        return _tagconv(case, shift, taps, bias, signal)
     if implementation == "dense":
-        dense = shift_operator(graph).to_dense()
+        dense = shift.to_dense()
         weights = nn.ParameterList([nn.Parameter(taps.clone()), nn.Parameter(bias.clone())])
 
         def horner() -> torch.Tensor:
@@ -128,10 +131,10 @@ def _conv1d(taps: torch.Tensor, bias: torch.Tensor) -> nn.Conv1d:
     return conv
 
 
-def _tagconv(case: Case, graph: Graph, taps: torch.Tensor, bias: torch.Tensor, signal: torch.Tensor):
+def _tagconv(case: Case, shift: torch.Tensor, taps: torch.Tensor, bias: torch.Tensor, signal: torch.Tensor):
     from torch_geometric.nn import TAGConv
 
-    shift = shift_operator(graph).to_sparse_coo().coalesce()
+    shift = shift.to_sparse_coo().coalesce()
     # S[i, j] is the weight of edge j -> i; PyG's edge_index holds (source, target) = (j, i).
     rows, columns = shift.indices()
     edges = torch.stack([columns, rows])

@@ -72,7 +72,8 @@ def measure_group(graph_name: str, nodes: int, batch: int, orders: tuple[int, ..
     keep_freed_memory()
     torch.set_num_threads(available_cores())
     graph = make_graph(graph_name, nodes)
-    edges = shift_operator(graph)._nnz()
+    shift = shift_operator(graph)
+    edges = shift._nnz()
     rows = []
     for order in orders:
         for pass_ in PASSES:
@@ -86,7 +87,7 @@ def measure_group(graph_name: str, nodes: int, batch: int, orders: tuple[int, ..
                     rows.append({**row, "skipped": reason})
                     continue
                 reset_peak_rss()
-                run, signal, module = build(case, implementation, graph)
+                run, signal, module = build(case, implementation, shift)
                 with torch.no_grad():
                     output = canonical(run(), implementation, case)
                 if reference is None:

@@ -58,3 +58,17 @@ def test_sparse_eigensolver_agrees_with_dense_on_large_graphs(graph):
     matrix = operator_matrix(graph, "adjacency")
     dense = np.abs(np.linalg.eigvals(matrix.toarray())).max()
     assert spectral_radius(sp.csr_matrix(matrix)) == pytest.approx(dense, rel=1e-6)
+
+
+@pytest.mark.parametrize(("make", "radius"), [(line_graph, 0.0), (cycle_graph, 1.0)], ids=["line", "cycle"])
+def test_exact_radius_shortcuts_agree_with_the_dense_eigenvalues(make, radius):
+    # Source: numpy.linalg.eigvals on the same matrix (the line graph is nilpotent, the cycle's
+    # eigenvalues are the N-th roots of unity).
+    matrix = sp.csr_matrix(operator_matrix(make(300), "adjacency"))
+    assert spectral_radius(matrix) == radius
+    assert np.abs(np.linalg.eigvals(matrix.toarray())).max() == pytest.approx(radius, abs=1e-6)
+
+
+def test_a_large_directed_line_graph_has_radius_exactly_zero():
+    # Nilpotent at any size (common practice, no source); ARPACK does not converge on it.
+    assert spectral_radius(sp.csr_matrix(operator_matrix(line_graph(20000), "adjacency"))) == 0.0

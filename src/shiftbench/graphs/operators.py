@@ -19,6 +19,7 @@ import warnings
 import numpy as np
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
+from scipy.sparse.csgraph import connected_components
 import torch
 
 from shiftbench.errors import ConfigError
@@ -65,13 +66,19 @@ def is_symmetric(matrix: sp.spmatrix, tolerance: float = 1e-12) -> bool:
 def spectral_radius(matrix: sp.spmatrix) -> float:
     """``max |lambda|`` over the eigenvalues of a square sparse matrix.
 
-    Dense ``numpy.linalg.eigvals`` up to ``DENSE_EIGEN_LIMIT`` nodes, ARPACK above (``eigsh`` for
+    Exact shortcuts first: 0 for an acyclic pattern (nilpotent, as the directed line graph), the
+    common row sum for a nonnegative matrix whose row sums are all equal (as a cycle). Then dense ``numpy.linalg.eigvals`` up to ``DENSE_EIGEN_LIMIT`` nodes, ARPACK above (``eigsh`` for
     symmetric matrices, ``eigs`` otherwise). When ARPACK does not converge, as happens on
     nilpotent matrices, Gelfand's formula ``||S^k||^(1/k)`` with ``k = 64`` gives the estimate.
     """
     nodes = matrix.shape[0]
-    if matrix.nnz == 0:
+    if matrix.nnz == 0 or _is_acyclic(matrix):
         return 0.0
+    row_sums = np.asarray(matrix.sum(axis=1)).ravel()
+    if matrix.data.min() >= 0 and np.ptp(row_sums) <= 1e-12 * max(1.0, abs(row_sums[0])):
+        # Nonnegative with equal row sums c: the ones vector has eigenvalue c, and no eigenvalue
+        # exceeds the largest row sum (Perron-Frobenius), so the radius is c exactly.
+        return float(row_sums[0])
     if nodes <= DENSE_EIGEN_LIMIT:
         return float(np.abs(np.linalg.eigvals(matrix.toarray())).max())
     try:
@@ -82,6 +89,17 @@ def spectral_radius(matrix: sp.spmatrix) -> float:
         return float(np.abs(values).max())
     except spla.ArpackNoConvergence:
         return _gelfand_radius(matrix, power=64)
+
+
+def _is_acyclic(matrix: sp.spmatrix) -> bool:
+    """Whether the directed graph of the nonzero pattern has no cycle (self-loops included): then
+    the matrix is nilpotent (permutable to strictly triangular form), its radius exactly 0."""
+    pattern = sp.csr_matrix(matrix)
+    pattern.eliminate_zeros()
+    if pattern.diagonal().any():
+        return False
+    components, _ = connected_components(pattern, directed=True, connection="strong")
+    return components == pattern.shape[0]
 
 
 def _gelfand_radius(matrix: sp.spmatrix, power: int) -> float:
