@@ -39,6 +39,7 @@ def test_loader_skips_unreadable_and_foreign_files_and_lists_them(tmp_path):
         frame = load_records([tmp_path])
     assert list(frame["status"]) == ["completed"]
     assert len(frame.attrs["skipped"]) == 2
+    assert f"{tmp_path / 'future' / 'result.json'}: record schema version 99 is not known; this shiftbench reads version 1" in frame.attrs["skipped"]
 
 
 @pytest.mark.parametrize("name", ["..", ".", "", "data.path=../../etc", "a/b", "a%2Fb", "x\\..\\y", "seed=0,arch=fc"])
