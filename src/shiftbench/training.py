@@ -18,8 +18,8 @@ import numpy as np
 import torch
 from torch import nn
 
-from shiftbench.config import TrainConfig
 from shiftbench.checkpoints import load_checkpoint, random_states, restore_random_states, save_checkpoint
+from shiftbench.config import TrainConfig
 from shiftbench.data.dataset import Dataset
 
 

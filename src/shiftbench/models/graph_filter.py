@@ -53,7 +53,7 @@ class SparsePolynomial(torch.autograd.Function):
         if bias is not None:
             y += bias
         ctx.save_for_backward(x, taps)
-        ctx.shift, ctx.has_bias = shift, bias is not None
+        ctx.shift, ctx.has_bias, ctx.step = shift, bias is not None, step
         return y
 
     @staticmethod
@@ -61,13 +61,11 @@ class SparsePolynomial(torch.autograd.Function):
     def backward(ctx, grad):  # type: ignore[override]
         x, taps = ctx.saved_tensors
         shift: SparseShift = ctx.shift
-        batch, nodes, _ = x.shape
-        order = taps.shape[0] - 1
+        order, step = taps.shape[0] - 1, ctx.step
         want_x = ctx.needs_input_grad[0]
         grad_x = torch.empty_like(x, memory_format=torch.contiguous_format) if want_x else None
         grad_taps = torch.zeros_like(taps)
-        step = chunk_size(batch, nodes, max(x.shape[2], taps.shape[2]), x.element_size())
-        for start in range(0, batch, step):
+        for start in range(0, x.shape[0], step):
             local = shift.gather(x[start : start + step])
             z = shift.gather(grad[start : start + step])
             local_grad = z @ taps[0].T if want_x else None
