@@ -18,7 +18,7 @@ from torch import nn
 
 from shiftbench.graphs.graph import Graph
 from shiftbench.graphs.sources import grid_graph, knn_graph, line_graph
-from shiftbench.models.graph_filter import GraphFilter
+from shiftbench.models.shift_polynomial import ShiftPolynomialLayer
 
 GRAPHS = ("line", "grid", "knn")
 IMPLEMENTATIONS = ("shiftbench", "conv1d", "conv2d_channels_last", "tagconv", "dense")
@@ -88,7 +88,7 @@ def build(
     signal = torch.randn(case.batch, case.nodes, case.channels, generator=generator)
     order = case.order
     if implementation == "shiftbench":
-        layer = GraphFilter(shift, case.channels, case.channels, order)
+        layer = ShiftPolynomialLayer(shift, case.channels, case.channels, order)
         with torch.no_grad():
             layer.taps.copy_(taps)
             layer.bias.copy_(bias)

@@ -7,7 +7,7 @@ import pytest
 from shiftbench.config import TrainConfig
 from shiftbench.data import sensor_regimes
 from shiftbench.graphs.operators import shift_operator
-from shiftbench.models import GraphConv
+from shiftbench.models import ShiftPolynomialNet
 from shiftbench.robustness import accuracy_on_test, on_shift, perturbation_table, perturbed_graph, transfer_table
 from shiftbench.training import seed_everything, train
 
@@ -16,7 +16,7 @@ from shiftbench.training import seed_everything, train
 def trained():
     demo = sensor_regimes(nodes=40, samples_per_class=40)
     seed_everything(0)
-    model = GraphConv(shift_operator(demo.native_graph), 1, [8], demo.classes, order=2)
+    model = ShiftPolynomialNet(shift_operator(demo.native_graph), 1, [8], demo.classes, order=2)
     train(model, demo, TrainConfig(epochs=5), seed=0)
     return demo, model
 

@@ -5,7 +5,7 @@ import torch
 
 from shiftbench.graphs.operators import shift_operator
 from shiftbench.graphs.sources import cycle_graph, knn_graph
-from shiftbench.models import GraphConv
+from shiftbench.models import ShiftPolynomialNet
 from shiftbench.spectral import frequencies, frequency_response, layer_responses, summarize
 
 
@@ -26,7 +26,7 @@ def test_response_on_an_eigenvector_is_the_filter_gain():
     shift = shift_operator(graph, "normalized_laplacian")
     values, vectors = np.linalg.eigh(shift.to_dense().double().numpy())
     torch.manual_seed(0)
-    model = GraphConv(shift, 1, [1], 2, order=3)
+    model = ShiftPolynomialNet(shift, 1, [1], 2, order=3)
     layer = model.layers[0]
     x = torch.from_numpy(vectors[:, 7]).float().view(1, 30, 1)
     filtered = (layer(x) - layer.bias).detach().numpy().ravel()

@@ -2,7 +2,7 @@
 
 import json
 
-from shiftbench.preflight import count_jobs
+from shiftbench.sweep_axes import count_jobs
 from shiftbench.sweep_progress import append_line, job_line, read_progress, tally_line
 
 HEADER = {"total": 3, "started": 100.0}

@@ -17,7 +17,7 @@ from shiftbench.config import TrainConfig
 from shiftbench.data.dataset import Dataset
 from shiftbench.graphs.operators import operator_matrix, shift_operator
 from shiftbench.graphs.sources import cycle_graph, line_graph, path_graph
-from shiftbench.models import FullyConnected, GraphConv, LineConv
+from shiftbench.models import FullyConnected, ShiftPolynomialNet, LineConv
 from shiftbench.models.mapping import conv_weight_to_taps, line_conv_to_graph_conv
 from shiftbench.report import t_interval
 from shiftbench.training import seed_everything, train
@@ -174,8 +174,8 @@ def permutation_equivariance(dataset: Dataset, seed: int = 0) -> Claim:
     graph = dataset.native_graph
     relabelled = graph.permuted(permutation)
     x = torch.from_numpy(dataset.signals[dataset.splits.test])
-    gnn = GraphConv(shift_operator(graph), dataset.features, CHANNELS, dataset.classes, ORDER)
-    moved = GraphConv(shift_operator(relabelled), dataset.features, CHANNELS, dataset.classes, ORDER)
+    gnn = ShiftPolynomialNet(shift_operator(graph), dataset.features, CHANNELS, dataset.classes, ORDER)
+    moved = ShiftPolynomialNet(shift_operator(relabelled), dataset.features, CHANNELS, dataset.classes, ORDER)
     moved.load_state_dict(gnn.state_dict())
     fc = FullyConnected(dataset.nodes, dataset.features, [64], dataset.classes)
     cnn = LineConv(dataset.nodes, dataset.features, CHANNELS, dataset.classes, ORDER)

@@ -12,7 +12,7 @@ from shiftbench.config import TrainConfig
 from shiftbench.data import Dataset, sensor_regimes
 from shiftbench.data.sensor_regimes import regime_responses
 from shiftbench.graphs.operators import shift_operator
-from shiftbench.models import GraphConv
+from shiftbench.models import ShiftPolynomialNet
 from shiftbench.records import load_records, write_atomic
 from shiftbench.robustness import accuracy_on_test, perturbation_table, transfer_table
 from shiftbench.spectral import frequencies, layer_responses, summarize
@@ -44,7 +44,7 @@ def learned_filters(out: Path, demo: Dataset, epochs: int = 60, seed: int = 0) -
     same regimes."""
     shift = shift_operator(demo.native_graph, OPERATOR, SCALE)
     seed_everything(seed)
-    model = GraphConv(shift, demo.features, [16, 16], demo.classes, order=3)
+    model = ShiftPolynomialNet(shift, demo.features, [16, 16], demo.classes, order=3)
     train(model, demo, TrainConfig(epochs=epochs), seed)
     eigenvalues = frequencies(shift)
     summaries = [summarize(responses) for responses in layer_responses(model, eigenvalues)]

@@ -17,13 +17,13 @@ from shiftbench.claims_report import write_claims
 from shiftbench.config import ConfigError
 from shiftbench.job import run_job
 from shiftbench.preflight import preflight
-from shiftbench.records import safe_dirname
+from shiftbench.config_store import register_defaults
 from shiftbench.report import write_report
 from shiftbench.runtime import keep_freed_memory, share_cores
 
-# Study folders name jobs by their overrides through this resolver (see records.safe_dirname); it
-# is registered on import, so launcher workers that unpickle the job have it too.
-OmegaConf.register_new_resolver("safe_dirname", safe_dirname, replace=True)
+# The groups' options come from the components' schemas (see config_store); registered on import,
+# before Hydra composes anything.
+register_defaults()
 
 # The config tree lives beside the source (``configs/`` at the project root), so the app finds
 # it from any working directory.
@@ -44,13 +44,11 @@ def _job(config: DictConfig) -> dict:
     keep_freed_memory()
     share_cores(hydra_config.launcher.get("n_jobs", 1))
     try:
-        output_dir = Path(hydra_config.runtime.output_dir)
         record = run_job(
             config,
-            output_dir,
+            Path(hydra_config.sweep.dir) if in_sweep else None,
             overrides,
             live=sys.stdout.isatty() and not in_sweep,
-            search_root=Path(hydra_config.sweep.dir).resolve() if in_sweep else output_dir,
         )
     except ConfigError as error:
         fail(str(error))

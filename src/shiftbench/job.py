@@ -1,15 +1,16 @@
 """One job: the data walk from a composed config to a written record.
 
-config -> dataset -> graph -> shift operator -> family -> training -> record. A user error in the
-config raises :class:`ConfigError` before any work; any failure after that becomes a record with
-``status: failed`` so that the other jobs of a sweep go on.
+config -> dataset -> graph -> shift operator -> family -> training -> record, in the config's
+home in the store. A user error in the config raises :class:`ConfigError` before any work; any
+failure after that becomes a record with ``status: failed`` so that the other jobs of a sweep go
+on. ``run_job`` reads as: skip, new record, execute, finish.
 """
 
 from __future__ import annotations
 
-import json
 import resource
 import traceback
+from collections.abc import Callable
 from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any
@@ -23,13 +24,19 @@ from shiftbench.config import ConfigError, RunConfig, as_plain_dict, check_graph
 from shiftbench.data import Dataset, load_dataset
 from shiftbench.graphs import Graph, build_graph, operator_matrix, shift_operator
 from shiftbench.models import build_model, count_parameters
-from shiftbench.models.budget import WIDTH_KEY, fit_budget
-from shiftbench.models.nearest import fit_nearest
+from shiftbench.models.budget import fit_budget, width_key
 from shiftbench.models.parameters import require_memory_for
 from shiftbench.progress import EpochProgress
-from shiftbench.records import FINAL_STATUSES, SCHEMA_VERSION, completed_index, config_hash, versions, write_curve, write_record
+from shiftbench.records import FINAL_STATUSES, Record, config_hash, versions, write_curve, write_record
+from shiftbench.registry import FAMILIES, TASKS
 from shiftbench.runtime import available_memory_bytes
+from shiftbench.store import claim, finished_record, home_of, note_launch, release, set_aside, touch_claim
 from shiftbench.training import Checkpointing, TrainingDiverged, TrainingResult, seed_everything, train
+
+
+def load_data(run: RunConfig) -> Dataset:
+    """The run's dataset under its split, shared by the jobs of this process."""
+    return shared(f"dataset/split{run.split}", (run.data,), lambda: load_dataset(run.data, run.split))
 
 
 def check_inputs(run: RunConfig) -> None:
@@ -41,10 +48,10 @@ def check_inputs(run: RunConfig) -> None:
         # One feature and the configured classes: the least the model could need.
         classes = getattr(run.data, "classes", 2)
         require_memory_for(run.arch, nodes, 1, classes, available_memory_bytes())
-    uses_graph_file = run.arch.family == "graph_conv" and run.graph.source == "file"
+    uses_graph_file = FAMILIES[run.arch.family].uses_graph and run.graph.source == "file"
     if run.data.source != "file" and not uses_graph_file:
         return
-    dataset = shared("dataset", (run.data,), lambda: load_dataset(run.data))
+    dataset = load_data(run)
     check_graph_fits(run.graph, run.arch.family, dataset.nodes)
     if uses_graph_file:
         operator_matrix(build_graph(run.graph, dataset), run.graph.operator)
@@ -61,130 +68,179 @@ def graph_notes(graph: Graph) -> list[str]:
 
 
 def structure(run: RunConfig) -> tuple[str, str]:
-    """The graph and shift operator a family actually uses: ``graph_conv`` the configured ones,
-    ``line_conv`` the line graph's (or cycle's) delay, ``fc`` and ``nearest`` none."""
-    if run.arch.family == "graph_conv":
+    """The graph and shift operator a family actually uses: the configured ones for a family
+    that reads the graph, else what the family states (``line_conv``: the line graph's delay;
+    graph-free families: ``none``)."""
+    family = FAMILIES[run.arch.family]
+    if family.uses_graph:
         return run.graph.source, run.graph.operator
-    if run.arch.family == "line_conv":
-        return ("cycle" if run.arch.boundary == "circular" else "line"), "adjacency"
-    return "none", "none"
+    return family.structure(run.arch)
 
 
 def fit_family(
-    run: RunConfig, dataset: Dataset, record: dict[str, Any], live: bool, checkpointing: Checkpointing | None = None
+    run: RunConfig, dataset: Dataset, record: Record, live: bool, checkpointing: Checkpointing | None = None,
+    on_epoch: Callable[[dict[str, float]], None] | None = None,
 ) -> TrainingResult:
-    """Build and train the family ``run`` names on ``dataset`` (or fit the 1-NN floor), noting in
+    """Build and train the family ``run`` names on ``dataset`` (or fit a floor), noting in
     ``record`` what the record reports about the model: parameters, budget, graph notes."""
-    if run.arch.family == "nearest":
-        record["parameters"] = 0
-        return fit_nearest(dataset)
+    family = FAMILIES[run.arch.family]
+    if family.fit is not None:
+        record.parameters = 0
+        return family.fit(run.arch, dataset, run.seed)
     shift = None
-    if run.arch.family == "graph_conv":
-        graph = shared("graph", (run.data, run.graph), lambda: build_graph(run.graph, dataset))
-        record["graph_notes"] = graph_notes(graph)
-        for note in record["graph_notes"]:
-            print(f"note: graph {record['graph']}: {note}", flush=True)
-        shift = shared("shift", (run.data, run.graph), lambda: shift_operator(graph, run.graph.operator, run.graph.scale))
+    if family.uses_graph:
+        key = (run.data, run.graph)
+        graph = shared(f"graph/split{run.split}", key, lambda: build_graph(run.graph, dataset))
+        record.graph_notes = graph_notes(graph)
+        for note in record.graph_notes:
+            print(f"note: graph {record.graph}: {note}", flush=True)
+        shift = shared(f"shift/split{run.split}", key, lambda: shift_operator(graph, run.graph.operator, run.graph.scale))
     arch = run.arch
     if arch.budget is not None:
-        record["budget"] = arch.budget
+        record.budget = arch.budget
         arch, _ = fit_budget(arch, arch.budget, dataset.nodes, dataset.features, dataset.classes)
-        record["sized_widths"] = getattr(arch, WIDTH_KEY[arch.family])
+        record.sized_widths = getattr(arch, width_key(arch.family))
     require_memory_for(arch, dataset.nodes, dataset.features, dataset.classes, available_memory_bytes())
     seed_everything(run.seed)
     model = build_model(arch, dataset.nodes, dataset.features, dataset.classes, shift)
-    record["parameters"] = count_parameters(model)
+    record.parameters = count_parameters(model)
     progress = EpochProgress(run.train.epochs, live)
+
+    def each_epoch(row: dict[str, float]) -> None:
+        progress(row)
+        if on_epoch is not None:
+            on_epoch(row)
+
     try:
-        return train(model, dataset, run.train, run.seed, run.device, on_epoch=progress, checkpointing=checkpointing)
+        return train(
+            model, dataset, run.train, run.seed, run.device, on_epoch=each_epoch, checkpointing=checkpointing,
+            task=TASKS[run.task],
+        )
     finally:
         progress.close()
 
 
-def run_job(
-    config: DictConfig, output_dir: Path, overrides: list[str], live: bool, search_root: Path | None = None
-) -> dict[str, Any]:
-    """Validate ``config``, run the job, write ``result.json`` and ``curve.csv`` into ``output_dir``,
-    print one summary line, and return the record.
+def new_record(run: RunConfig, plain: dict[str, Any], digest: str, overrides: list[str]) -> Record:
+    """The record of a job about to run: what it is, nothing measured yet."""
+    graph_name, operator = structure(run)
+    return Record(
+        config=plain,
+        overrides=overrides,
+        config_hash=digest,
+        family=run.arch.family,
+        graph=graph_name,
+        operator=operator,
+        data=getattr(run.data, "name", run.data.source),
+        order=getattr(run.arch, "order", None),
+        seed=run.seed,
+        split=run.split,
+        task=run.task,
+        started=datetime.now(timezone.utc).isoformat(timespec="seconds"),
+    )
 
-    When a completed record with the same config hash lies under ``search_root`` (default
-    ``output_dir``: for a sweep, its folder), the job is skipped with a note and that record is
-    returned with ``skipped: true``, unless ``force`` is set. Failed records are retried.
+
+def execute(run: RunConfig, record: Record, home: Path, live: bool) -> list[dict[str, float]]:
+    """Load the data, fit the family and fill ``record`` with what it measured; a failure after
+    validation is noted in the record, never raised (the other jobs of a sweep go on). Returns
+    the learning curve."""
+    try:
+        dataset = load_data(run)
+        check_graph_fits(run.graph, run.arch.family, dataset.nodes)
+        record.nodes = dataset.nodes
+        record.data = dataset.name
+        checkpointing = Checkpointing(home, run.train.checkpoint_every, record.config_hash)
+        result = fit_family(run, dataset, record, live, checkpointing, on_epoch=lambda row: touch_claim(home))
+        if result.resumed_from_epoch is not None:
+            record.resumed_from_epoch = result.resumed_from_epoch
+            print(f"resumed after epoch {result.resumed_from_epoch - 1} (its checkpoint), at epoch {result.resumed_from_epoch}", flush=True)
+        record.status = result.status
+        record.train_accuracy = result.train_accuracy
+        record.val_accuracy = result.val_accuracy
+        record.test_accuracy = result.test_accuracy
+        record.test_loss = result.test_loss
+        record.best_epoch = result.best_epoch
+        record.epochs_run = result.epochs_run
+        record.train_seconds = result.train_seconds
+        record.samples_per_second = result.samples_per_second
+        record.inference_seconds_per_sample = result.inference_seconds_per_sample
+        record.chosen = result.chosen
+        return result.curve
+    except ConfigError:
+        raise
+    except TrainingDiverged as error:
+        record.error = f"{type(error).__name__}: {error}"
+        record.failed_epoch = error.epoch
+    except Exception as error:  # a failed job is recorded, never lost, and the sweep goes on
+        record.error = f"{type(error).__name__}: {error}"
+        record.traceback = traceback.format_exc()
+    return []
+
+
+def finish(record: Record, home: Path, curve: list[dict[str, float]]) -> Path:
+    """Write the record and curve into the job's home; a finished job leaves no checkpoint."""
+    record.peak_rss_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    record.torch_threads = torch.get_num_threads()
+    record.versions = versions()
+    record.finished = datetime.now(timezone.utc).isoformat(timespec="seconds")
+    write_curve(home, curve)
+    path = write_record(home, record.as_dict())
+    if record.status in FINAL_STATUSES:
+        remove_checkpoint(home)
+    return path
+
+
+def run_job(config: DictConfig, launch: Path | None, overrides: list[str], live: bool) -> dict[str, Any]:
+    """Validate ``config`` and run its job in its home in the store (``results_dir/store/<hash>``),
+    then print one summary line and return the record; ``launch`` (a sweep's or study's folder)
+    gets a pointer to the home.
+
+    A config whose record is completed (or timed out) is skipped, unless ``force`` is set, which
+    sets the old record aside first; a config another live process has claimed is skipped too
+    (it is not trained twice); an interrupted one resumes from its checkpoint.
     """
     run = validate(config)
     plain = as_plain_dict(run)
     digest = config_hash(plain)
-    index = completed_index(search_root or output_dir)
-    done = None if run.force else index.find(digest)
-    if done is not None:
-        previous = json.loads(done.read_text(encoding="utf-8"))
-        print(f"skipped (already completed): {summary_line(previous)}", flush=True)
+    home = home_of(Path(run.results_dir), digest)
+
+    def skip(previous: dict[str, Any], outcome: str, why: str) -> dict[str, Any]:
+        if launch is not None:
+            note_launch(launch, home, digest, overrides, outcome)
+        print(f"skipped ({why}): {summary_line(previous)}", flush=True)
         return {**previous, "skipped": True}
-    graph_name, operator = structure(run)
-    record: dict[str, Any] = {
-        "schema_version": SCHEMA_VERSION,
-        "status": "failed",
-        "error": None,
-        "config": plain,
-        "overrides": overrides,
-        "config_hash": digest,
-        "family": run.arch.family,
-        "graph": graph_name,
-        "operator": operator,
-        "data": getattr(run.data, "name", run.data.source),
-        "nodes": None,
-        "order": getattr(run.arch, "order", None),
-        "seed": run.seed,
-        "parameters": None,
-        "started": datetime.now(timezone.utc).isoformat(timespec="seconds"),
-    }
-    curve: list[dict[str, float]] = []
+
+    done = None if run.force else finished_record(home)
+    if done is not None:
+        return skip(done, "skipped", f"already completed, record in {home}")
+    holder = claim(home)
+    if holder is not None:
+        pending = new_record(run, plain, digest, overrides).as_dict()
+        return skip({**pending, "status": "claimed"}, "claimed", f"being trained by {holder}; its record will be in {home}")
     try:
-        dataset = shared("dataset", (run.data,), lambda: load_dataset(run.data))
-        check_graph_fits(run.graph, run.arch.family, dataset.nodes)
-        record["nodes"] = dataset.nodes
-        record["data"] = dataset.name
-        checkpointing = Checkpointing(output_dir, run.train.checkpoint_every, digest)
-        result = fit_family(run, dataset, record, live, checkpointing)
-        curve = result.curve
-        if result.resumed_from_epoch is not None:
-            record["resumed_from_epoch"] = result.resumed_from_epoch
-            print(f"resumed from the checkpoint of epoch {result.resumed_from_epoch - 1}", flush=True)
-        record.update(
-            status=result.status,
-            train_accuracy=result.train_accuracy,
-            val_accuracy=result.val_accuracy,
-            test_accuracy=result.test_accuracy,
-            test_loss=result.test_loss,
-            best_epoch=result.best_epoch,
-            epochs_run=result.epochs_run,
-            train_seconds=result.train_seconds,
-            samples_per_second=result.samples_per_second,
-        )
-    except ConfigError:
-        raise
-    except TrainingDiverged as error:
-        record["error"] = f"{type(error).__name__}: {error}"
-        record["failed_epoch"] = error.epoch
-    except Exception as error:  # a failed job is recorded, never lost, and the sweep goes on
-        record["error"] = f"{type(error).__name__}: {error}"
-        record["traceback"] = traceback.format_exc()
-    record["peak_rss_mb"] = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
-    record["versions"] = versions()
-    record["finished"] = datetime.now(timezone.utc).isoformat(timespec="seconds")
-    write_curve(output_dir, curve)
-    path = write_record(output_dir, record)
-    if record["status"] in FINAL_STATUSES:
-        index.add(record["config_hash"], path)
-        remove_checkpoint(output_dir)
-    print(summary_line(record), flush=True)
-    return record
+        done = None if run.force else finished_record(home)  # finished while we were claiming
+        if done is not None:
+            return skip(done, "skipped", f"already completed, record in {home}")
+        if run.force and (aside := set_aside(home)) is not None:
+            print(f"force: the earlier record is kept in {aside}", flush=True)
+        record = new_record(run, plain, digest, overrides)
+        curve = execute(run, record, home, live)
+        finish(record, home, curve)
+    finally:
+        release(home)
+    if launch is not None:
+        outcome = "failed" if record.status not in FINAL_STATUSES else "resumed" if record.resumed_from_epoch else "trained"
+        note_launch(launch, home, digest, overrides, outcome)
+    written = record.as_dict()
+    print(summary_line(written), flush=True)
+    return written
 
 
 def summary_line(record: dict[str, Any]) -> str:
     """One line per job: family, data, graph, order, parameters, test accuracy (or the failure)."""
     order = "-" if record["order"] is None else record["order"]
     head = f"{record['family']} on {record['data']}, graph {record['graph']}, order {order}"
+    if record["status"] == "claimed":
+        return f"{head}: being trained by another process"
     if record["status"] not in FINAL_STATUSES:
         return f"{head}: FAILED: {record['error']}"
     epochs = "" if record["epochs_run"] is None else f"best epoch {record['best_epoch']} of {record['epochs_run']}, "

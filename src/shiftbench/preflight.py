@@ -9,17 +9,17 @@ user's data and graph files are read and checked.
 
 from __future__ import annotations
 
-import math
 import re
 from pathlib import Path
 
 from hydra import compose, initialize_config_dir
-from hydra.core.override_parser.overrides_parser import OverridesParser
 from hydra.errors import HydraException, MissingConfigException
 from omegaconf import DictConfig, OmegaConf
 
 from shiftbench.config import ConfigError, require_inside, validate
+from shiftbench.config_store import register_defaults
 from shiftbench.job import check_inputs
+from shiftbench.sweep_axes import add_study_axes, split_overrides
 
 # Hydra flags that take the next argument as their value.
 FLAGS_WITH_VALUE = {"-cd", "--config-dir", "-cn", "--config-name", "-cp", "--config-path", "-c", "--cfg", "-p", "--package"}
@@ -40,39 +40,6 @@ def override_arguments(arguments: list[str]) -> list[str] | None:
         elif not argument.startswith("-"):
             overrides.append(argument)
     return overrides
-
-
-def _line(key: str, value: str) -> str:
-    return f"{key}={value}"
-
-
-def split_overrides(overrides: list[str]) -> tuple[dict[str, list[str]], list[str]]:
-    """Sweep axes (key -> its ``key=value`` lines) and the fixed overrides of a command line."""
-    axes: dict[str, list[str]] = {}
-    fixed: list[str] = []
-    for override in OverridesParser.create().parse_overrides(overrides):
-        key = override.get_key_element()
-        if override.is_sweep_override():
-            axes[key] = [_line(key, value) for value in override.sweep_string_iterator()]
-        else:
-            fixed.append(override.input_line)
-    return axes, fixed
-
-
-def add_study_axes(axes: dict[str, list[str]], fixed: list[str], study_params: dict) -> None:
-    """Add a study's ``hydra.sweeper.params`` axes that the command line does not override."""
-    given = {key.lstrip("+~") for key in axes} | {line.split("=", 1)[0].lstrip("+~") for line in fixed}
-    for key, values in study_params.items():
-        if key.lstrip("+~") not in given:
-            (override,) = OverridesParser.create().parse_overrides([_line(key, str(values))])
-            axes[key] = [_line(key, value) for value in override.sweep_string_iterator()]
-
-
-def count_jobs(task_overrides: list[str], study_params: dict) -> int:
-    """How many jobs a sweep launches: the product of its axes' lengths."""
-    axes, fixed = split_overrides(task_overrides)
-    add_study_axes(axes, fixed, study_params)
-    return math.prod(len(values) for values in axes.values())
 
 
 # Hydra keys a user may set to say where jobs write.
@@ -97,6 +64,7 @@ def preflight(arguments: list[str], config_dir: Path) -> int:
     except HydraException as error:
         raise ConfigError(_one_line(str(error))) from None
 
+    register_defaults()
     with initialize_config_dir(str(config_dir.resolve()), version_base="1.3", job_name="shiftbench"):
         base = fixed + [values[0] for values in axes.values()]
         config = _compose(base)

@@ -1,4 +1,5 @@
-"""Records: the JSON each job writes, written atomically, and loaded back as a DataFrame."""
+"""Records: the JSON each job writes (:class:`Record`), written atomically, and loaded back as a
+DataFrame, from the store, from a launch folder's pointers, or from folders of the old layout."""
 
 from __future__ import annotations
 
@@ -11,6 +12,7 @@ import subprocess
 import tempfile
 import warnings
 from collections.abc import Iterable
+from dataclasses import asdict, dataclass, field, fields
 from pathlib import Path
 from typing import Any
 
@@ -19,23 +21,23 @@ import torch
 
 import shiftbench
 
-SCHEMA_VERSION = 1
-RECORD_FILE = "result.json"
+# Version 2: the record file is record.json in the store; configs carry split and task.
+SCHEMA_VERSION = 2
+RECORD_FILE = "record.json"
+# What version 1 records (written before the store) are called; read, never written.
+OLD_RECORD_FILE = "result.json"
+READABLE_VERSIONS = (1, 2)
 CURVE_FILE = "curve.csv"
+# A launch folder's list of the jobs it asked for: one JSON object a line, pointing at homes.
+MANIFEST_FILE = "jobs.jsonl"
+# Record fields that only some jobs have; the rest are in every record of this version.
+OPTIONAL_FIELDS = ("graph_notes", "budget", "sized_widths", "chosen", "resumed_from_epoch", "failed_epoch", "traceback")
 # Keys of the config that say where output goes, whether to recompute, or how often to save
 # progress, not what is computed.
 OUTPUT_KEYS = ("results_dir", "force")
 TRAIN_RUN_KEYS = ("checkpoint_every",)
 # A job in one of these states is done: a rerun skips it.
 FINAL_STATUSES = ("completed", "timed_out")
-
-
-def safe_dirname(name: str) -> str:
-    """A folder name made from overrides, as one path component that cannot leave its parent:
-    ``%``, ``/`` and ``\\`` percent-encoded (so distinct names stay distinct), and ``.``/``..``
-    spelled out."""
-    encoded = name.replace("%", "%25").replace("/", "%2F").replace("\\", "%5C")
-    return {"": "%00", ".": "%2E", "..": "%2E%2E"}.get(encoded, encoded)
 
 
 def write_atomic(path: Path, content: str | bytes) -> Path:
@@ -55,6 +57,58 @@ def write_atomic(path: Path, content: str | bytes) -> Path:
         Path(temporary).unlink(missing_ok=True)
         raise
     return path
+
+
+@dataclass
+class Record:
+    """What a job writes to ``record.json``: its config, what it used, and what it measured.
+    Figures a job did not reach (a failed job's accuracies) stay None."""
+
+    config: dict[str, Any]
+    overrides: list[str]
+    config_hash: str
+    family: str
+    graph: str
+    operator: str
+    data: str
+    order: int | None
+    seed: int
+    split: int
+    task: str
+    started: str
+    schema_version: int = SCHEMA_VERSION
+    status: str = "failed"
+    error: str | None = None
+    nodes: int | None = None
+    parameters: int | None = None
+    train_accuracy: float | None = None
+    val_accuracy: float | None = None
+    test_accuracy: float | None = None
+    test_loss: float | None = None
+    best_epoch: int | None = None
+    epochs_run: int | None = None
+    train_seconds: float | None = None
+    samples_per_second: float | None = None
+    inference_seconds_per_sample: float | None = None
+    peak_rss_mb: float | None = None
+    torch_threads: int | None = None
+    versions: dict[str, str | None] = field(default_factory=dict)
+    finished: str | None = None
+    graph_notes: list[str] | None = None
+    budget: int | None = None
+    sized_widths: list[int] | None = None
+    chosen: dict[str, Any] | None = None
+    resumed_from_epoch: int | None = None
+    failed_epoch: int | None = None
+    traceback: str | None = None
+
+    def as_dict(self) -> dict[str, Any]:
+        """The record as JSON-ready data; optional fields that are None are left out."""
+        return {key: value for key, value in asdict(self).items() if key not in OPTIONAL_FIELDS or value is not None}
+
+
+# The fields every record of this version carries.
+REQUIRED_FIELDS = tuple(f.name for f in fields(Record) if f.name not in OPTIONAL_FIELDS)
 
 
 def write_record(folder: Path, record: dict[str, Any]) -> Path:
@@ -103,75 +157,77 @@ def versions() -> dict[str, str | None]:
     }
 
 
+def read_manifest(folder: Path) -> list[dict[str, Any]]:
+    """The entries of a launch folder's manifest, oldest first; a line cut short (its writer was
+    killed mid-line) is passed over."""
+    path = folder / MANIFEST_FILE
+    entries = []
+    if path.is_file():
+        for line in path.read_text(encoding="utf-8").splitlines():
+            try:
+                entry = json.loads(line)
+            except ValueError:
+                continue
+            if isinstance(entry, dict) and "home" in entry:
+                entries.append(entry)
+    return entries
+
+
 def find_records(paths: Iterable[Path]) -> list[Path]:
-    """Every record file under ``paths`` (a path may also be a record file itself), sorted."""
+    """Every record file under ``paths``: record files given themselves, the homes a launch
+    folder's manifest points at, and every ``record.json`` (or old ``result.json``) below a
+    folder outside ``superseded`` folders; sorted, each once."""
     found: set[Path] = set()
     for path in paths:
         if path.is_file():
-            found.add(path)
-        else:
-            found.update(path.rglob(RECORD_FILE))
+            found.add(path.resolve())
+            continue
+        for entry in read_manifest(path):
+            home = (path / entry["home"]).resolve()
+            if (home / RECORD_FILE).is_file():
+                found.add(home / RECORD_FILE)
+        for name in (RECORD_FILE, OLD_RECORD_FILE):
+            found.update(record.resolve() for record in path.rglob(name) if "superseded" not in record.parts)
     return sorted(found)
 
 
+def read_record(path: Path) -> dict[str, Any]:
+    """A record file's content, or ValueError saying why it is not a record this version reads."""
+    try:
+        record = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError) as error:
+        raise ValueError(str(error)) from None
+    if not isinstance(record, dict) or "schema_version" not in record:
+        raise ValueError("not a shiftbench record (no schema_version)")
+    if record["schema_version"] not in READABLE_VERSIONS:
+        raise ValueError(
+            f"record schema version {record['schema_version']!r} is not known; "
+            f"this shiftbench reads versions {', '.join(map(str, READABLE_VERSIONS))}"
+        )
+    return record
+
+
 def load_records(paths: Iterable[Path]) -> pd.DataFrame:
-    """One row per record under ``paths``, with every record field as a column and ``path``
-    (the record's folder). Files that cannot be read are skipped with a warning and listed in
-    ``frame.attrs["skipped"]``."""
-    rows, skipped = [], []
+    """One row per record under ``paths`` (see :func:`find_records`), with every record field as
+    a column and ``path`` (the record's folder). Files that cannot be read are skipped with a
+    warning and listed in ``frame.attrs["skipped"]``; records of the old layout are read, with
+    one note saying how to move them into the store."""
+    rows, skipped, old = [], [], 0
     for path in find_records(paths):
         try:
-            record = json.loads(path.read_text(encoding="utf-8"))
-        except (OSError, ValueError) as error:
+            record = read_record(path)
+        except ValueError as error:
             skipped.append(f"{path}: {error}")
             continue
-        if not isinstance(record, dict) or "schema_version" not in record:
-            skipped.append(f"{path}: not a shiftbench record (no schema_version)")
-            continue
-        if record["schema_version"] != SCHEMA_VERSION:
-            skipped.append(
-                f"{path}: record schema version {record['schema_version']!r} is not known; "
-                f"this shiftbench reads version {SCHEMA_VERSION}"
-            )
-            continue
+        old += path.name == OLD_RECORD_FILE
         rows.append({**record, "path": str(path.parent)})
     for problem in skipped:
         warnings.warn(f"skipped {problem}", stacklevel=2)
+    if old:
+        warnings.warn(
+            f"read {old} records of the old layout ({OLD_RECORD_FILE}); "
+            "shiftbench-migrate FOLDER RESULTS_DIR moves them into the store", stacklevel=2,
+        )
     frame = pd.DataFrame(rows)
     frame.attrs["skipped"] = skipped
     return frame
-
-
-class CompletedIndex:
-    """The completed records under a folder, by config hash: read once, then kept current by
-    :meth:`add`, so a sweep of many jobs in one process reads each record once."""
-
-    def __init__(self, root: Path) -> None:
-        self.root = root
-        self.by_hash: dict[str, Path] = {}
-        for path in find_records([root]) if root.is_dir() else []:
-            try:
-                record = json.loads(path.read_text(encoding="utf-8"))
-            except (OSError, ValueError):
-                continue
-            if isinstance(record, dict) and record.get("status") in FINAL_STATUSES and "config_hash" in record:
-                self.by_hash[record["config_hash"]] = path
-
-    def find(self, config_hash: str) -> Path | None:
-        """The record file of a completed job with this hash, if it is still there."""
-        path = self.by_hash.get(config_hash)
-        return path if path is not None and path.is_file() else None
-
-    def add(self, config_hash: str, path: Path) -> None:
-        self.by_hash[config_hash] = path
-
-
-_INDEXES: dict[Path, CompletedIndex] = {}
-
-
-def completed_index(root: Path) -> CompletedIndex:
-    """The (cached) index of completed records under ``root``."""
-    root = root.resolve()
-    if root not in _INDEXES:
-        _INDEXES[root] = CompletedIndex(root)
-    return _INDEXES[root]

@@ -16,7 +16,7 @@ from shiftbench.data.dataset import Dataset
 from shiftbench.graphs.graph import Graph
 from shiftbench.graphs.operators import shift_operator
 from shiftbench.graphs.sources import swap_edges
-from shiftbench.models.graph_conv import GraphConv
+from shiftbench.models.shift_polynomial_net import ShiftPolynomialNet
 from shiftbench.models.shift_products import plan
 
 FRACTIONS = (0.0, 0.01, 0.05, 0.10, 0.20)
@@ -40,7 +40,7 @@ def perturbed_graph(graph: Graph, fraction: float, mode: str, seed: int) -> Grap
     return Graph.from_undirected_simple(simple, graph.nodes, f"{graph.name}_{mode}")
 
 
-def on_shift(model: GraphConv, shift: torch.Tensor) -> GraphConv:
+def on_shift(model: ShiftPolynomialNet, shift: torch.Tensor) -> ShiftPolynomialNet:
     """A copy of ``model`` whose every layer filters with ``shift`` (any node count)."""
     # Sparse tensors cannot be deep-copied: hand the copy the new shift, and a plan for it, in
     # place of the old ones.
@@ -61,7 +61,7 @@ def accuracy_on_test(model: torch.nn.Module, dataset: Dataset) -> float:
 
 
 def perturbation_table(
-    model: GraphConv, dataset: Dataset, graph: Graph, operator: str, scale: str,
+    model: ShiftPolynomialNet, dataset: Dataset, graph: Graph, operator: str, scale: str,
     fractions: tuple[float, ...] = FRACTIONS, draws: int = 5,
 ) -> pd.DataFrame:
     """Test accuracy with each fraction of edges dropped or rewired, ``draws`` random draws each.
@@ -79,7 +79,7 @@ def perturbation_table(
     return pd.DataFrame(rows)
 
 
-def transfer_table(model: GraphConv, datasets: list[Dataset], operator: str, scale: str) -> pd.DataFrame:
+def transfer_table(model: ShiftPolynomialNet, datasets: list[Dataset], operator: str, scale: str) -> pd.DataFrame:
     """Test accuracy of the unchanged ``model`` on each dataset's own native graph.
 
     Returns:

@@ -13,7 +13,7 @@ import scipy.sparse.linalg as spla
 import torch
 
 from shiftbench.graphs.operators import is_symmetric
-from shiftbench.models.graph_conv import GraphConv
+from shiftbench.models.shift_polynomial_net import ShiftPolynomialNet
 
 # Up to this many nodes the eigenvalues are computed exactly; beyond, a grid spans the extremes.
 EXACT_LIMIT = 2000
@@ -62,7 +62,7 @@ def frequency_response(taps: np.ndarray, eigenvalues: np.ndarray) -> np.ndarray:
     return np.tensordot(powers, taps, axes=([1], [0]))
 
 
-def layer_responses(model: GraphConv, eigenvalues: np.ndarray) -> list[np.ndarray]:
+def layer_responses(model: ShiftPolynomialNet, eigenvalues: np.ndarray) -> list[np.ndarray]:
     """Each layer's responses ``(frequencies, in, out)`` for every input-output channel pair."""
     return [frequency_response(layer.taps.detach().double().numpy(), eigenvalues) for layer in model.layers]
 

@@ -19,7 +19,7 @@ from hydra.core.hydra_config import HydraConfig
 from hydra.experimental.callback import Callback
 from omegaconf import DictConfig, OmegaConf
 
-from shiftbench.preflight import count_jobs
+from shiftbench.sweep_axes import count_jobs
 
 PROGRESS_FILE = ".progress.{token}.jsonl"
 SWEEP_TOKEN = "SHIFTBENCH_SWEEP_TOKEN"

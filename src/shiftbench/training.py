@@ -13,6 +13,7 @@ import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import torch
@@ -21,6 +22,11 @@ from torch import nn
 from shiftbench.checkpoints import load_checkpoint, random_states, restore_random_states, save_checkpoint
 from shiftbench.config import TrainConfig
 from shiftbench.data.dataset import Dataset
+from shiftbench.registry import Task
+from shiftbench.task import CLASSIFICATION
+from shiftbench.training_result import TrainingResult
+
+__all__ = ["Checkpointing", "TrainingDiverged", "TrainingResult", "seed_everything", "train"]
 
 
 class TrainingDiverged(RuntimeError):
@@ -41,25 +47,6 @@ class Checkpointing:
     config_hash: str
 
 
-@dataclass
-class TrainingResult:
-    """What a finished training run measured. ``curve`` holds one dict per epoch with keys
-    ``epoch, train_loss, train_accuracy, val_loss, val_accuracy, seconds``. Figures that a
-    family does not have (the 1-NN floor has no loss and no epochs) are None."""
-
-    train_accuracy: float
-    val_accuracy: float
-    test_accuracy: float
-    test_loss: float | None
-    best_epoch: int | None
-    epochs_run: int | None
-    train_seconds: float
-    samples_per_second: float
-    curve: list[dict[str, float]] = field(default_factory=list)
-    status: str = "completed"
-    resumed_from_epoch: int | None = None
-
-
 def seed_everything(seed: int) -> None:
     """Seed python's, numpy's and torch's generators."""
     random.seed(seed)
@@ -76,8 +63,10 @@ def make_optimizer(model: nn.Module, config: TrainConfig) -> torch.optim.Optimiz
 
 
 @torch.no_grad()
-def evaluate(model: nn.Module, signals: torch.Tensor, labels: torch.Tensor, batch_size: int) -> tuple[float, float]:
-    """Mean cross-entropy and accuracy of ``model`` in eval mode.
+def evaluate(
+    model: nn.Module, signals: torch.Tensor, labels: torch.Tensor, batch_size: int, task: Task = CLASSIFICATION
+) -> tuple[float, float]:
+    """Mean loss and mean metric (accuracy) of ``model`` in eval mode.
 
     Args:
         signals: ``(samples, nodes, features)``; labels: ``(samples,)``.
@@ -85,11 +74,106 @@ def evaluate(model: nn.Module, signals: torch.Tensor, labels: torch.Tensor, batc
     model.eval()
     loss_sum, correct = 0.0, 0
     for start in range(0, len(labels), batch_size):
-        logits = model(signals[start : start + batch_size])
+        outputs = model(signals[start : start + batch_size])
         target = labels[start : start + batch_size]
-        loss_sum += nn.functional.cross_entropy(logits, target, reduction="sum").item()
-        correct += int((logits.argmax(dim=1) == target).sum())
+        loss_sum += task.loss(outputs, target, reduction="sum").item()
+        correct += int(task.correct(outputs, target).sum())
     return loss_sum / len(labels), correct / len(labels)
+
+
+@dataclass
+class EarlyStopping:
+    """The best validation figures so far and the weights that gave them. An epoch improves when
+    its accuracy is higher, or equal with a lower loss; training stops after ``patience`` epochs
+    without improvement (``patience`` 0: never)."""
+
+    patience: int
+    best: tuple[float, float] = (-1.0, float("inf"))
+    best_state: dict[str, Any] = field(default_factory=dict)
+    best_epoch: int = 0
+
+    def update(self, epoch: int, val_accuracy: float, val_loss: float, model: nn.Module) -> bool:
+        """Note an epoch's validation figures; True when they improve on the best."""
+        improved = (val_accuracy, -val_loss) > (self.best[0], -self.best[1])
+        if improved:
+            self.best, self.best_state, self.best_epoch = (val_accuracy, val_loss), copy.deepcopy(model.state_dict()), epoch
+        return improved
+
+    def should_stop(self, epoch: int) -> bool:
+        return self.patience > 0 and epoch - self.best_epoch >= self.patience
+
+
+@dataclass
+class LoopState:
+    """Everything the loop carries from epoch to epoch, and what a checkpoint saves."""
+
+    stopping: EarlyStopping
+    order_generator: torch.Generator
+    curve: list[dict[str, float]] = field(default_factory=list)
+    first_epoch: int = 1
+    resumed_from: int | None = None
+    spent_before: float = 0.0
+
+
+def resume(
+    state: LoopState, model: nn.Module, optimizer: torch.optim.Optimizer, config: TrainConfig,
+    checkpointing: Checkpointing | None,
+) -> None:
+    """Load the checkpoint of this config, if there is one, into the model, optimizer and state."""
+    saved = load_checkpoint(checkpointing.folder, checkpointing.config_hash) if checkpointing else None
+    if saved is None:
+        return
+    model.load_state_dict(saved["model"])
+    optimizer.load_state_dict(saved["optimizer"])
+    restore_random_states(saved["random"], state.order_generator)
+    stopping = state.stopping
+    stopping.best, stopping.best_state, stopping.best_epoch = tuple(saved["best"]), saved["best_state"], saved["best_epoch"]
+    state.curve, state.spent_before = saved["curve"], saved["train_seconds"]
+    state.first_epoch = state.resumed_from = saved["epoch"] + 1
+    if stopping.should_stop(saved["epoch"]):  # it had stopped early at that epoch
+        state.first_epoch = config.epochs + 1
+
+
+def checkpoint(
+    checkpointing: Checkpointing, epoch: int, model: nn.Module, optimizer: torch.optim.Optimizer,
+    state: LoopState, seconds: float,
+) -> None:
+    """Save the whole state after ``epoch``."""
+    stopping = state.stopping
+    save_checkpoint(checkpointing.folder, {
+        "config_hash": checkpointing.config_hash, "epoch": epoch, "model": model.state_dict(),
+        "optimizer": optimizer.state_dict(), "random": random_states(state.order_generator),
+        "best": list(stopping.best), "best_state": stopping.best_state, "best_epoch": stopping.best_epoch,
+        "curve": state.curve, "train_seconds": seconds,
+    })
+
+
+def run_epoch(
+    model: nn.Module, optimizer: torch.optim.Optimizer, train_x: torch.Tensor, train_y: torch.Tensor,
+    config: TrainConfig, order_generator: torch.Generator, task: Task, out_of_time: Callable[[], bool],
+) -> tuple[float, float, bool]:
+    """One pass over the training split in shuffled mini-batches.
+
+    Returns:
+        The epoch's mean loss and metric, and whether time ran out before its end.
+    """
+    model.train()
+    device = train_x.device
+    # Sums stay on the device during the epoch: one read at its end, not one per step.
+    loss_sum = torch.zeros((), dtype=torch.float64, device=device)
+    correct = torch.zeros((), dtype=torch.long, device=device)
+    for batch in torch.randperm(len(train_y), generator=order_generator).split(config.batch_size):
+        batch = batch.to(device)
+        outputs = model(train_x[batch])
+        loss = task.loss(outputs, train_y[batch])
+        optimizer.zero_grad(set_to_none=True)
+        loss.backward()
+        optimizer.step()
+        loss_sum += loss.detach().double() * len(batch)
+        correct += task.correct(outputs, train_y[batch]).sum()
+        if out_of_time():
+            return float("nan"), float("nan"), True
+    return loss_sum.item() / len(train_y), correct.item() / len(train_y), False
 
 
 def train(
@@ -100,11 +184,11 @@ def train(
     device: str = "cpu",
     on_epoch: Callable[[dict[str, float]], None] | None = None,
     checkpointing: Checkpointing | None = None,
+    task: Task = CLASSIFICATION,
 ) -> TrainingResult:
-    """Train ``model`` on ``dataset``'s training split with cross-entropy, stop when validation
-    accuracy has not improved for ``config.patience`` epochs (a tie in accuracy with a lower
-    validation loss counts as an improvement) or when ``config.max_seconds`` have passed,
-    restore the best weights and measure every split.
+    """Train ``model`` on ``dataset``'s training split with the task's loss, stop when validation
+    accuracy has not improved for ``config.patience`` epochs (see :class:`EarlyStopping`) or when
+    ``config.max_seconds`` have passed, restore the best weights and measure every split.
 
     With ``checkpointing``, the whole state is saved every ``every`` epochs, and a checkpoint of
     the same config found in its folder is resumed from: the run then ends with the figures an
@@ -122,90 +206,78 @@ def train(
     train_x, train_y = signals[split["train"]], labels[split["train"]]
     val_x, val_y = signals[split["val"]], labels[split["val"]]
     optimizer = make_optimizer(model, config)
-    order_generator = torch.Generator().manual_seed(seed)
-
-    best = (-1.0, float("inf"))
-    best_state, best_epoch = copy.deepcopy(model.state_dict()), 0
-    curve: list[dict[str, float]] = []
-    first_epoch, resumed_from, spent_before = 1, None, 0.0
-    saved = load_checkpoint(checkpointing.folder, checkpointing.config_hash) if checkpointing else None
-    if saved is not None:
-        model.load_state_dict(saved["model"])
-        optimizer.load_state_dict(saved["optimizer"])
-        restore_random_states(saved["random"], order_generator)
-        best, best_state, best_epoch = tuple(saved["best"]), saved["best_state"], saved["best_epoch"]
-        curve, spent_before = saved["curve"], saved["train_seconds"]
-        first_epoch = resumed_from = saved["epoch"] + 1
-        if saved["epoch"] - best_epoch >= config.patience:  # it had stopped early at that epoch
-            first_epoch = config.epochs + 1
+    state = LoopState(
+        EarlyStopping(config.patience, best_state=copy.deepcopy(model.state_dict())),
+        torch.Generator().manual_seed(seed),
+    )
+    resume(state, model, optimizer, config, checkpointing)
     started = time.perf_counter()
-    status = "completed"
 
     def elapsed() -> float:
-        return spent_before + time.perf_counter() - started
+        return state.spent_before + time.perf_counter() - started
 
-    for epoch in range(first_epoch, config.epochs + 1):
-        model.train()
+    def out_of_time() -> bool:
+        return config.max_seconds is not None and elapsed() > config.max_seconds
+
+    status = "completed"
+    for epoch in range(state.first_epoch, config.epochs + 1):
         epoch_started = time.perf_counter()
-        # Sums stay on the device during the epoch: one read at its end, not one per step.
-        loss_sum = torch.zeros((), dtype=torch.float64, device=device)
-        correct = torch.zeros((), dtype=torch.long, device=device)
-        for batch in torch.randperm(len(train_y), generator=order_generator).split(config.batch_size):
-            batch = batch.to(device)
-            logits = model(train_x[batch])
-            loss = nn.functional.cross_entropy(logits, train_y[batch])
-            optimizer.zero_grad(set_to_none=True)
-            loss.backward()
-            optimizer.step()
-            loss_sum += loss.detach().double() * len(batch)
-            correct += (logits.argmax(dim=1) == train_y[batch]).sum()
-            if config.max_seconds is not None and elapsed() > config.max_seconds:
-                status = "timed_out"
-                break
-        if status == "timed_out":
+        train_loss, train_metric, timed_out = run_epoch(
+            model, optimizer, train_x, train_y, config, state.order_generator, task, out_of_time
+        )
+        if timed_out:
+            status = "timed_out"
             break
-        train_loss = loss_sum.item() / len(train_y)
         if not math.isfinite(train_loss):
             raise TrainingDiverged(f"the training loss became {train_loss} in epoch {epoch}", epoch)
-        val_loss, val_accuracy = evaluate(model, val_x, val_y, config.batch_size)
+        val_loss, val_accuracy = evaluate(model, val_x, val_y, config.batch_size, task)
         row = {
             "epoch": epoch,
             "train_loss": train_loss,
-            "train_accuracy": correct.item() / len(train_y),
+            "train_accuracy": train_metric,
             "val_loss": val_loss,
             "val_accuracy": val_accuracy,
             "seconds": time.perf_counter() - epoch_started,
         }
-        curve.append(row)
-        improved = (val_accuracy, -val_loss) > (best[0], -best[1])
-        if improved:
-            best, best_state, best_epoch = (val_accuracy, val_loss), copy.deepcopy(model.state_dict()), epoch
+        state.curve.append(row)
+        improved = state.stopping.update(epoch, val_accuracy, val_loss, model)
         if checkpointing is not None and checkpointing.every and epoch % checkpointing.every == 0:
-            save_checkpoint(checkpointing.folder, {
-                "config_hash": checkpointing.config_hash, "epoch": epoch, "model": model.state_dict(),
-                "optimizer": optimizer.state_dict(), "random": random_states(order_generator),
-                "best": list(best), "best_state": best_state, "best_epoch": best_epoch, "curve": curve,
-                "train_seconds": elapsed(),
-            })
+            checkpoint(checkpointing, epoch, model, optimizer, state, elapsed())
         if on_epoch is not None:
             on_epoch(row)
-        if not improved and epoch - best_epoch >= config.patience:
+        if not improved and state.stopping.should_stop(epoch):
             break
-    train_seconds = elapsed()
+    return final_result(model, signals, labels, split, config, task, state, elapsed(), status)
 
-    model.load_state_dict(best_state)
-    _, train_accuracy = evaluate(model, train_x, train_y, config.batch_size)
-    test_loss, test_accuracy = evaluate(model, signals[split["test"]], labels[split["test"]], config.batch_size)
+
+def final_result(
+    model: nn.Module, signals: torch.Tensor, labels: torch.Tensor, split: dict[str, torch.Tensor],
+    config: TrainConfig, task: Task, state: LoopState, train_seconds: float, status: str,
+) -> TrainingResult:
+    """Restore the best weights and measure the training and test splits (and the time a test
+    sample takes to predict)."""
+    model.load_state_dict(state.stopping.best_state)
+    train_x, train_y = signals[split["train"]], labels[split["train"]]
+    _, train_accuracy = evaluate(model, train_x, train_y, config.batch_size, task)
+    predicting = time.perf_counter()
+    test_loss, test_accuracy = evaluate(model, signals[split["test"]], labels[split["test"]], config.batch_size, task)
+    inference = (time.perf_counter() - predicting) / max(len(split["test"]), 1)
+    curve = state.curve
+    if curve:
+        val_accuracy = state.stopping.best[0]
+    else:
+        val_accuracy = evaluate(model, signals[split["val"]], labels[split["val"]], config.batch_size, task)[1]
     return TrainingResult(
         train_accuracy=train_accuracy,
-        val_accuracy=best[0] if curve else evaluate(model, val_x, val_y, config.batch_size)[1],
+        val_accuracy=val_accuracy,
         test_accuracy=test_accuracy,
         test_loss=test_loss,
-        best_epoch=best_epoch,
+        best_epoch=state.stopping.best_epoch,
         epochs_run=len(curve),
         train_seconds=train_seconds,
         samples_per_second=len(train_y) * len(curve) / max(train_seconds, 1e-9),
         curve=curve,
         status=status,
-        resumed_from_epoch=resumed_from,
+        resumed_from_epoch=state.resumed_from,
+        inference_seconds_per_sample=inference,
     )

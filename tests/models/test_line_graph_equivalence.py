@@ -14,7 +14,7 @@ from hypothesis import strategies as st
 
 from shiftbench.graphs.operators import shift_operator
 from shiftbench.graphs.sources import cycle_graph, line_graph
-from shiftbench.models.graph_filter import GraphFilter
+from shiftbench.models.shift_polynomial import ShiftPolynomialLayer
 
 shapes = st.tuples(
     st.integers(1, 8),  # in channels
@@ -26,7 +26,7 @@ shapes = st.tuples(
 )
 
 
-def conv1d_with_mapped_taps(layer: GraphFilter) -> torch.nn.Conv1d:
+def conv1d_with_mapped_taps(layer: ShiftPolynomialLayer) -> torch.nn.Conv1d:
     conv = torch.nn.Conv1d(layer.in_channels, layer.out_channels, kernel_size=layer.order + 1)
     with torch.no_grad():
         # taps (K+1, in, out) -> weight (out, in, K+1) with the tap axis reversed.
@@ -35,11 +35,11 @@ def conv1d_with_mapped_taps(layer: GraphFilter) -> torch.nn.Conv1d:
     return conv
 
 
-def random_filter_and_input(shape, make_graph, structured) -> tuple[GraphFilter, torch.Tensor]:
+def random_filter_and_input(shape, make_graph, structured) -> tuple[ShiftPolynomialLayer, torch.Tensor]:
     in_channels, out_channels, order, nodes, batch, seed = shape
     torch.manual_seed(seed)
     shift = shift_operator(make_graph(nodes), "adjacency", "none")
-    layer = GraphFilter(shift, in_channels, out_channels, order, structured=structured)
+    layer = ShiftPolynomialLayer(shift, in_channels, out_channels, order, structured=structured)
     return layer, torch.randn(batch, nodes, in_channels)
 
 
@@ -69,7 +69,7 @@ def test_line_conv_family_layer_equals_graph_filter_on_the_line_graph():
     from shiftbench.models.line_conv import CausalConv1d
 
     torch.manual_seed(0)
-    layer = GraphFilter(shift_operator(line_graph(20), "adjacency", "none"), 3, 5, 4)
+    layer = ShiftPolynomialLayer(shift_operator(line_graph(20), "adjacency", "none"), 3, 5, 4)
     causal = CausalConv1d(3, 5, 4, boundary="zero")
     causal.conv.load_state_dict(conv1d_with_mapped_taps(layer).state_dict())
     x = torch.randn(2, 20, 3)
@@ -93,8 +93,8 @@ def test_causal_convolution_equals_torch_conv1d_on_the_padded_signal(boundary):
 def test_delay_plan_gradients_equal_the_sparse_plan_gradients():
     torch.manual_seed(4)
     shift = shift_operator(line_graph(40), "adjacency", "none")
-    fast = GraphFilter(shift, 3, 4, 3)
-    generic = GraphFilter(shift, 3, 4, 3, structured=False)
+    fast = ShiftPolynomialLayer(shift, 3, 4, 3)
+    generic = ShiftPolynomialLayer(shift, 3, 4, 3, structured=False)
     generic.load_state_dict(fast.state_dict())
     x = torch.randn(6, 40, 3, requires_grad=True)
     grads = [torch.autograd.grad(layer(x).square().sum(), (x, layer.taps, layer.bias)) for layer in (fast, generic)]

@@ -9,7 +9,7 @@ import pytest
 
 from shiftbench.graphs.operators import shift_operator
 from shiftbench.graphs.sources import knn_graph
-from shiftbench.models import FullyConnected, GraphConv, LineConv, count_parameters
+from shiftbench.models import FullyConnected, ShiftPolynomialNet, LineConv, count_parameters
 
 
 def test_fc_count_follows_the_linear_formula():
@@ -28,7 +28,7 @@ def test_line_conv_count_follows_the_conv1d_formula(readout):
 
 def test_graph_conv_layer_has_taps_times_in_times_out_plus_out():
     shift = shift_operator(knn_graph(np.random.default_rng(0).random((30, 2)), 4))
-    model = GraphConv(shift, features=3, channels=[8, 5], classes=6, order=4)
+    model = ShiftPolynomialNet(shift, features=3, channels=[8, 5], classes=6, order=4)
     layers = (5 * 3 * 8 + 8) + (5 * 8 * 5 + 5)
     assert count_parameters(model) == layers + 5 * 6 + 6
 
@@ -39,7 +39,7 @@ def test_convolutional_counts_do_not_grow_with_nodes_while_fc_does():
         return (
             count_parameters(FullyConnected(nodes, 1, [16], 4)),
             count_parameters(LineConv(nodes, 1, [16], 4, order=3)),
-            count_parameters(GraphConv(shift, 1, [16], 4, order=3)),
+            count_parameters(ShiftPolynomialNet(shift, 1, [16], 4, order=3)),
         )
 
     small, large = counts(20), counts(200)

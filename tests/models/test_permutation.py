@@ -11,7 +11,7 @@ import torch
 from shiftbench.graphs.graph import Graph
 from shiftbench.graphs.operators import shift_operator
 from shiftbench.graphs.sources import knn_graph
-from shiftbench.models import FullyConnected, GraphConv, LineConv
+from shiftbench.models import FullyConnected, ShiftPolynomialNet, LineConv
 
 NODES = 25
 
@@ -31,8 +31,8 @@ def setting():
 
 def test_graph_conv_node_features_are_permuted_with_the_nodes(setting):
     graph, permutation, x = setting
-    model = GraphConv(shift_operator(graph), 2, [4, 4], 3, order=3)
-    relabelled = GraphConv(shift_operator(relabel(graph, permutation)), 2, [4, 4], 3, order=3)
+    model = ShiftPolynomialNet(shift_operator(graph), 2, [4, 4], 3, order=3)
+    relabelled = ShiftPolynomialNet(shift_operator(relabel(graph, permutation)), 2, [4, 4], 3, order=3)
     relabelled.load_state_dict(model.state_dict())
     torch.testing.assert_close(relabelled.features(x[:, permutation]), model.features(x)[:, permutation], atol=1e-5, rtol=1e-5)
 
@@ -40,8 +40,8 @@ def test_graph_conv_node_features_are_permuted_with_the_nodes(setting):
 @pytest.mark.parametrize("readout", ["mean", "max"])
 def test_graph_conv_pooled_logits_are_unchanged_by_relabelling(setting, readout):
     graph, permutation, x = setting
-    model = GraphConv(shift_operator(graph), 2, [4], 3, order=2, readout=readout)
-    relabelled = GraphConv(shift_operator(relabel(graph, permutation)), 2, [4], 3, order=2, readout=readout)
+    model = ShiftPolynomialNet(shift_operator(graph), 2, [4], 3, order=2, readout=readout)
+    relabelled = ShiftPolynomialNet(shift_operator(relabel(graph, permutation)), 2, [4], 3, order=2, readout=readout)
     relabelled.load_state_dict(model.state_dict())
     torch.testing.assert_close(relabelled(x[:, permutation]), model(x), atol=1e-5, rtol=1e-5)
 

@@ -11,7 +11,7 @@ import torch
 
 from shiftbench.graphs.operators import shift_operator
 from shiftbench.graphs.sources import cycle_graph, grid_graph, knn_graph, line_graph, path_graph
-from shiftbench.models.graph_filter import GraphFilter, chunk_size
+from shiftbench.models.shift_polynomial import ShiftPolynomialLayer, chunk_size
 from shiftbench.models.shift_products import Delay, SparseShift, find_delay, plan
 
 
@@ -54,7 +54,7 @@ def test_batches_of_many_chunks_equal_dense_powers_in_values_and_gradients():
     assert batch > chunk_size(batch, nodes, 5, 8)
     torch.manual_seed(5)
     shift = shift_operator(knn_graph(np.random.default_rng(1).random((nodes, 2)), 6), "normalized_laplacian").double()
-    layer = GraphFilter(shift, 5, 4, order).double()
+    layer = ShiftPolynomialLayer(shift, 5, 4, order).double()
     x = torch.randn(batch, nodes, 5, dtype=torch.double, requires_grad=True)
     dense = shift.to_dense()
     expected = sum(torch.linalg.matrix_power(dense, k) @ x @ layer.taps[k] for k in range(order + 1)) + layer.bias
@@ -71,7 +71,7 @@ def test_renumbered_filter_equals_torchs_csr_product_on_the_original_numbering()
     nodes = 300
     shift = shift_operator(knn_graph(np.random.default_rng(2).random((nodes, 2)), 5))
     torch.manual_seed(6)
-    layer = GraphFilter(shift, 2, 3, 3)
+    layer = ShiftPolynomialLayer(shift, 2, 3, 3)
     x = torch.randn(5, nodes, 2)
     expected = x @ layer.taps[3]
     for k in range(2, -1, -1):

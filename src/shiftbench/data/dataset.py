@@ -2,11 +2,40 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from collections.abc import Callable
+from dataclasses import asdict, dataclass
 
 import numpy as np
 
+from shiftbench.config import require, require_fraction
 from shiftbench.graphs.graph import Graph
+
+
+@dataclass
+class DataConfig:
+    """What every data source has: the data seed and the validation share."""
+
+    source: str = "sensor_regimes"
+    seed: int = 0
+    val_fraction: float = 0.2
+
+    def __post_init__(self) -> None:
+        require("seed", self.seed, self.seed >= 0, "an integer >= 0")
+        require_fraction("val_fraction", self.val_fraction)
+
+    def known_nodes(self) -> int | None:
+        """The node count, when the config alone tells it (else it is known once loaded)."""
+        return None
+
+
+def keyword_loader(function: Callable[..., "Dataset"]) -> Callable[[DataConfig], "Dataset"]:
+    """A loader taking a data config, for a function whose keyword arguments are the config's
+    keys (all but ``source``)."""
+
+    def load(config: DataConfig) -> Dataset:
+        return function(**{key: value for key, value in asdict(config).items() if key != "source"})
+
+    return load
 
 
 @dataclass(frozen=True)

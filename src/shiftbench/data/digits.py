@@ -2,14 +2,15 @@
 
 from __future__ import annotations
 
-from dataclasses import replace
+from dataclasses import dataclass, replace
 
 import numpy as np
 from sklearn.datasets import load_digits
 
-from shiftbench.data.dataset import Dataset
-from shiftbench.data.splits import stratified_splits
-from shiftbench.graphs.sources import grid_graph
+from shiftbench.data.dataset import Dataset, keyword_loader
+from shiftbench.data.splits import RandomSplitConfig, stratified_splits
+from shiftbench.graphs.standard import grid_graph
+from shiftbench.registry import DATASETS, DatasetSource
 
 SIDE = 8
 # Pixel intensities in the shipped data run from 0 to 16.
@@ -33,3 +34,16 @@ def digits(seed: int = 0, val_fraction: float = 0.2, test_fraction: float = 0.2)
         native_graph=replace(grid_graph(SIDE, SIDE), name="pixel_grid"),
         name="digits",
     )
+
+
+@dataclass
+class DigitsConfig(RandomSplitConfig):
+    """scikit-learn's 8x8 handwritten digits."""
+
+    source: str = "digits"
+
+    def known_nodes(self) -> int | None:
+        return SIDE * SIDE
+
+
+DATASETS.add(DatasetSource("digits", DigitsConfig, keyword_loader(digits), "digits"))

@@ -12,7 +12,8 @@ Every problem is a :class:`ConfigError` with one line that names it and the fix.
 from __future__ import annotations
 
 import zipfile
-from dataclasses import replace
+from functools import partial
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
@@ -20,18 +21,19 @@ import pandas as pd
 import torch
 
 from shiftbench.csv_input import read_user_csv
-from shiftbench.data.dataset import Dataset, Splits
+from shiftbench.data.dataset import Dataset, Splits, keyword_loader
 from shiftbench.data.labels import encode_labels
-from shiftbench.data.splits import stratified_splits
-from shiftbench.errors import ConfigError
-from shiftbench.graphs.sources import line_graph
+from shiftbench.config import require
+from shiftbench.data.splits import RandomSplitConfig, stratified_splits
+from shiftbench.errors import ConfigError, file_error
+from shiftbench.graphs.standard import line_graph
+from shiftbench.registry import DATASETS, DatasetSource
 
 SUFFIXES = (".npz", ".csv")
 SPLIT_NAMES = {0: "train", 1: "val", 2: "test"}
 
 
-def _fail(path: Path, problem: str) -> ConfigError:
-    return ConfigError(f"data.path={str(path)!r}: {problem}")
+_fail = partial(file_error, "data.path")
 
 
 def first_line(error: Exception) -> str:
@@ -187,3 +189,19 @@ def load_signal_file(
         name=file.stem,
     )
 
+
+
+@dataclass
+class FileDataConfig(RandomSplitConfig):
+    """The user's signals in a ``.npz`` or ``.csv`` file (``test_fraction`` applies when the file
+    brings no ``split``)."""
+
+    source: str = "file"
+    path: str = ""
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        require("path", self.path, self.path != "", "the path of a .npz or .csv file (data.path=...)")
+
+
+DATASETS.add(DatasetSource("file", FileDataConfig, keyword_loader(load_signal_file), "signal file"))

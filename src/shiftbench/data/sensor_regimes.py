@@ -17,16 +17,18 @@ Generation uses sparse products only (no eigendecomposition), so it scales to la
 
 from __future__ import annotations
 
-from dataclasses import replace
+from dataclasses import dataclass, replace
 
 import numpy as np
 import scipy.sparse as sp
 from numpy.polynomial import chebyshev
 
-from shiftbench.data.dataset import Dataset
-from shiftbench.data.splits import stratified_splits
-from shiftbench.graphs.operators import operator_matrix
-from shiftbench.graphs.sources import knn_graph
+from shiftbench.config import require
+from shiftbench.data.dataset import Dataset, keyword_loader
+from shiftbench.data.splits import RandomSplitConfig, stratified_splits
+from shiftbench.graphs.operators import normalized_adjacency
+from shiftbench.graphs.standard import knn_graph
+from shiftbench.registry import DATASETS, DatasetSource
 
 # Where on [-1, 1] the regimes' responses peak, and how wide each bump is (in units of the
 # spacing between neighbouring peaks): wide enough to overlap, so no regime is trivial.
@@ -91,7 +93,7 @@ def sensor_regimes(
     rng = np.random.default_rng(seed)
     positions = rng.random((nodes, 2))
     graph = replace(knn_graph(positions, neighbors), name="sensor_network")
-    shift = operator_matrix(graph, "normalized_adjacency")
+    shift = normalized_adjacency(graph)
     responses = regime_responses(classes, process_order)
 
     recordings = []
@@ -114,3 +116,33 @@ def sensor_regimes(
         native_graph=graph,
         name="sensor_regimes",
     )
+
+
+@dataclass
+class SensorRegimesConfig(RandomSplitConfig):
+    """The demo scenario's size, noise and process (see the module's description)."""
+
+    source: str = "sensor_regimes"
+    nodes: int = 64
+    classes: int = 4
+    samples_per_class: int = 200
+    noise: float = 0.5
+    process_order: int = 6
+    neighbors: int = 6
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        require("nodes", self.nodes, self.nodes >= 2, "an integer >= 2")
+        require("classes", self.classes, self.classes >= 2, "an integer >= 2")
+        require("samples_per_class", self.samples_per_class, self.samples_per_class >= 10, "an integer >= 10")
+        require("noise", self.noise, self.noise >= 0, "a number >= 0")
+        require("process_order", self.process_order, self.process_order >= 0, "an integer >= 0")
+        require(
+            "neighbors", self.neighbors, 1 <= self.neighbors < self.nodes, f"an integer in 1..{self.nodes - 1}"
+        )
+
+    def known_nodes(self) -> int | None:
+        return self.nodes
+
+
+DATASETS.add(DatasetSource("sensor_regimes", SensorRegimesConfig, keyword_loader(sensor_regimes), "demo: sensor regimes"))

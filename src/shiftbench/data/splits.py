@@ -2,10 +2,30 @@
 
 from __future__ import annotations
 
+from dataclasses import dataclass, replace
+
 import numpy as np
 from sklearn.model_selection import train_test_split
 
-from shiftbench.data.dataset import Splits
+from shiftbench.config import require, require_fraction
+from shiftbench.data.dataset import DataConfig, Dataset, Splits
+
+
+@dataclass
+class RandomSplitConfig(DataConfig):
+    """A data source split at random (stratified) into train, validation and test."""
+
+    test_fraction: float = 0.2
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        require_fraction("test_fraction", self.test_fraction)
+        require(
+            "test_fraction",
+            self.test_fraction,
+            self.val_fraction + self.test_fraction < 1.0,
+            f"a fraction below {1.0 - self.val_fraction:g} (val_fraction + test_fraction < 1)",
+        )
 
 
 def stratified_splits(labels: np.ndarray, val_fraction: float, test_fraction: float, seed: int) -> Splits:
@@ -27,3 +47,22 @@ def stratified_splits(labels: np.ndarray, val_fraction: float, test_fraction: fl
         random_state=seed + 1,
     )
     return Splits(train=np.sort(train), val=np.sort(val), test=np.sort(test))
+
+
+def resplit(dataset: Dataset, split: int) -> Dataset:
+    """The dataset under random split number ``split``: 0 keeps the dataset's own split; any
+    other number draws a new stratified split of all samples with the same train, validation
+    and test sizes (seeded by ``split``), so repeated evaluations differ in their data."""
+    if split == 0:
+        return dataset
+    sizes = dataset.splits
+    samples = dataset.samples
+    test_fraction = len(sizes.test) / samples
+    val_fraction = len(sizes.val) / samples
+    try:
+        splits = stratified_splits(dataset.labels, val_fraction, test_fraction, 10_000 + split)
+    except ValueError:  # a class too small to stratify: draw plainly
+        order = np.random.default_rng(10_000 + split).permutation(samples)
+        test, val = len(sizes.test), len(sizes.val)
+        splits = Splits(train=np.sort(order[test + val:]), val=np.sort(order[test:test + val]), test=np.sort(order[:test]))
+    return replace(dataset, splits=splits)

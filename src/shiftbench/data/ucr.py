@@ -9,16 +9,18 @@ from __future__ import annotations
 
 import importlib.util
 import os
-from dataclasses import replace
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
 from sklearn.model_selection import train_test_split
 
-from shiftbench.data.dataset import Dataset, Splits
+from shiftbench.config import require_choice
+from shiftbench.data.dataset import DataConfig, Dataset, Splits, keyword_loader
 from shiftbench.data.labels import encode_labels
 from shiftbench.errors import ConfigError
-from shiftbench.graphs.sources import line_graph
+from shiftbench.graphs.standard import line_graph
+from shiftbench.registry import DATASETS, DatasetSource
 
 # The classification problems aeon ships inside its package (no download needed).
 SHIPPED = (
@@ -95,3 +97,18 @@ def ucr(name: str = "GunPoint", seed: int = 0, val_fraction: float = 0.2) -> Dat
         native_graph=replace(line_graph(series.shape[1]), name="time_line"),
         name=name,
     )
+
+
+@dataclass
+class UcrConfig(DataConfig):
+    """A UCR/UEA series shipped with aeon; the archive's own train/test split is kept."""
+
+    source: str = "ucr"
+    name: str = "GunPoint"
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        require_choice("name", self.name, shipped_names())
+
+
+DATASETS.add(DatasetSource("ucr", UcrConfig, keyword_loader(ucr), "UCR series"))

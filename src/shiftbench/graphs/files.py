@@ -14,7 +14,8 @@ Duplicate edges are summed and self-loops kept (both noted in the record). Every
 from __future__ import annotations
 
 import zipfile
-from dataclasses import replace
+from functools import partial
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import networkx as nx
@@ -22,15 +23,17 @@ import numpy as np
 import pandas as pd
 import scipy.sparse as sp
 
+from shiftbench.config import require
 from shiftbench.csv_input import read_user_csv
-from shiftbench.errors import ConfigError
+from shiftbench.errors import ConfigError, file_error
 from shiftbench.graphs.graph import Graph
+from shiftbench.graphs.operators import GraphConfig
+from shiftbench.registry import GRAPH_SOURCES, GraphSource
 
 SUFFIXES = (".csv", ".npz", ".graphml", ".gml")
 
 
-def _fail(path: Path, problem: str) -> ConfigError:
-    return ConfigError(f"graph.path={str(path)!r}: {problem}")
+_fail = partial(file_error, "graph.path")
 
 
 def read_edge_list(path: Path, nodes: int) -> Graph:
@@ -111,3 +114,20 @@ def load_graph_file(path: str, nodes: int) -> Graph:
     if graph.nodes != nodes:
         raise _fail(file, f"has {graph.nodes} nodes but the data has {nodes}; they must agree")
     return graph
+
+
+@dataclass
+class FileGraphConfig(GraphConfig):
+    """The user's graph file (edge-list .csv, scipy .npz, .graphml, .gml)."""
+
+    source: str = "file"
+    path: str = ""
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        require("path", self.path, self.path != "", "the path of a graph file (graph.path=...)")
+
+
+GRAPH_SOURCES.add(
+    GraphSource("file", FileGraphConfig, lambda config, dataset: load_graph_file(config.path, dataset.nodes), "graph file")
+)

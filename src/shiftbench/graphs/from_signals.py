@@ -5,11 +5,41 @@ Both see only the training split's signals, so validation and test data never sh
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 import scipy.sparse as sp
 from sklearn.neighbors import kneighbors_graph
 
+from shiftbench.config import require
+from shiftbench.errors import ConfigError
 from shiftbench.graphs.graph import Graph
+from shiftbench.graphs.operators import GraphConfig
+from shiftbench.registry import GRAPH_SOURCES, GraphSource
+
+
+@dataclass
+class NeighborsGraphConfig(GraphConfig):
+    """A graph linking each node to ``neighbors`` others."""
+
+    neighbors: int = 6
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        require("neighbors", self.neighbors, self.neighbors >= 1, "an integer >= 1")
+
+    def check_fits(self, nodes: int) -> None:
+        if self.neighbors >= nodes:
+            raise ConfigError(
+                f"graph.neighbors={self.neighbors} is not accepted; accepted: fewer than the data's {nodes} nodes"
+            )
+
+
+@dataclass
+class CorrelationGraphConfig(NeighborsGraphConfig):
+    """Each node's ``neighbors`` strongest absolute correlations over the training split."""
+
+    source: str = "correlation"
 
 
 def node_profiles(signals: np.ndarray) -> np.ndarray:
@@ -48,3 +78,13 @@ def signal_knn_graph(signals: np.ndarray, neighbors: int) -> Graph:
     """
     directed = kneighbors_graph(node_profiles(signals), n_neighbors=neighbors, mode="connectivity")
     return Graph.from_adjacency(directed.maximum(directed.T), name="knn")
+
+
+GRAPH_SOURCES.add(
+    GraphSource(
+        "correlation",
+        CorrelationGraphConfig,
+        lambda config, dataset: correlation_graph(dataset.signals[dataset.splits.train], config.neighbors),
+        "correlation graph",
+    )
+)

@@ -15,6 +15,7 @@ radius is zero, as for the nilpotent directed line graph); ``scale: none`` keeps
 from __future__ import annotations
 
 import warnings
+from dataclasses import dataclass
 
 import numpy as np
 import scipy.sparse as sp
@@ -22,10 +23,11 @@ import scipy.sparse.linalg as spla
 from scipy.sparse.csgraph import connected_components
 import torch
 
+from shiftbench.config import require_choice
 from shiftbench.errors import ConfigError
 from shiftbench.graphs.graph import Graph
+from shiftbench.registry import OPERATORS, Operator
 
-OPERATORS = ("adjacency", "laplacian", "normalized_adjacency", "normalized_laplacian")
 SCALES = ("spectral", "none")
 
 # Below this many nodes a dense eigensolver is exact and fast enough.
@@ -34,28 +36,70 @@ DENSE_EIGEN_LIMIT = 1024
 ZERO_RADIUS = 1e-9
 
 
-def operator_matrix(graph: Graph, operator: str) -> sp.csr_matrix:
-    """The unscaled ``(nodes, nodes)`` shift operator of ``graph`` as scipy CSR (float64)."""
-    adjacency = graph.adjacency()
-    if operator == "adjacency":
-        return adjacency
-    negative = int((adjacency.data < 0).sum())
+def adjacency(graph: Graph) -> sp.csr_matrix:
+    """``S = A``."""
+    return graph.adjacency()
+
+
+def _degrees(adjacency_matrix: sp.csr_matrix, operator: str) -> np.ndarray:
+    """Weighted in-degrees ``d_i = sum_j A[i, j]``; Laplacians refuse negative weights."""
+    negative = int((adjacency_matrix.data < 0).sum())
     if negative and operator in ("laplacian", "normalized_laplacian"):
         raise ConfigError(
             f"graph.operator={operator!r} is not accepted for a graph with {negative} negative edge weights; "
             "accepted: adjacency or normalized_adjacency"
         )
-    degree = np.asarray(adjacency.sum(axis=1)).ravel()
-    if operator == "laplacian":
-        return (sp.diags(degree) - adjacency).tocsr()
+    return np.asarray(adjacency_matrix.sum(axis=1)).ravel()
+
+
+def laplacian(graph: Graph) -> sp.csr_matrix:
+    """``S = D - A``."""
+    matrix = graph.adjacency()
+    return (sp.diags(_degrees(matrix, "laplacian")) - matrix).tocsr()
+
+
+def _normalized(graph: Graph, operator: str) -> sp.csr_matrix:
+    matrix = graph.adjacency()
+    degree = _degrees(matrix, operator)
     with np.errstate(divide="ignore"):
         inverse_root = np.where(degree > 0, 1.0 / np.sqrt(np.abs(degree)), 0.0)
-    normalized = (sp.diags(inverse_root) @ adjacency @ sp.diags(inverse_root)).tocsr()
-    if operator == "normalized_adjacency":
-        return normalized
-    if operator == "normalized_laplacian":
-        return (sp.identity(graph.nodes, format="csr") - normalized).tocsr()
-    raise ValueError(f"unknown shift operator {operator!r}; accepted: {', '.join(OPERATORS)}")
+    return (sp.diags(inverse_root) @ matrix @ sp.diags(inverse_root)).tocsr()
+
+
+def normalized_adjacency(graph: Graph) -> sp.csr_matrix:
+    """``S = D^-1/2 A D^-1/2`` (a zero row and column where ``d_i = 0``)."""
+    return _normalized(graph, "normalized_adjacency")
+
+
+def normalized_laplacian(graph: Graph) -> sp.csr_matrix:
+    """``S = I - D^-1/2 A D^-1/2``."""
+    return (sp.identity(graph.nodes, format="csr") - _normalized(graph, "normalized_laplacian")).tocsr()
+
+
+for _function in (adjacency, laplacian, normalized_adjacency, normalized_laplacian):
+    OPERATORS.add(Operator(_function.__name__, _function))
+
+
+def operator_matrix(graph: Graph, operator: str) -> sp.csr_matrix:
+    """The unscaled ``(nodes, nodes)`` shift operator of ``graph`` as scipy CSR (float64)."""
+    return OPERATORS[operator].matrix(graph)
+
+
+@dataclass
+class GraphConfig:
+    """What every graph config has: its source, the shift operator and its scaling. A source
+    with no parameters of its own (``native``, ``line``, ``cycle``, ``path``) uses it as is."""
+
+    source: str = "native"
+    operator: str = "adjacency"
+    scale: str = "spectral"
+
+    def __post_init__(self) -> None:
+        require_choice("operator", self.operator, OPERATORS.names())
+        require_choice("scale", self.scale, SCALES)
+
+    def check_fits(self, nodes: int) -> None:
+        """Refuse (ConfigError) a graph that cannot be built on ``nodes`` nodes."""
 
 
 def is_symmetric(matrix: sp.spmatrix, tolerance: float = 1e-12) -> bool:

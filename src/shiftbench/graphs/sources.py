@@ -1,72 +1,26 @@
-"""Graph sources: the ways shiftbench makes a graph on a dataset's nodes.
-
-Each builder returns a :class:`Graph`; :func:`build_graph` picks one from a graph config.
-networkx and scikit-learn do the graph theory; this module only adapts their output.
+"""Graph sources: the ways shiftbench makes a graph on a dataset's nodes, each declared here with
+its config schema (``graph.source``). networkx and scikit-learn do the graph theory; this module
+only adapts their output. Sources learned from signals live in :mod:`from_signals`, the user's
+graph files in :mod:`files`.
 """
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 import networkx as nx
-import numpy as np
-import scipy.sparse as sp
-from sklearn.neighbors import kneighbors_graph, radius_neighbors_graph
 
+from shiftbench.config import require
 from shiftbench.errors import ConfigError
-from shiftbench.graphs.files import load_graph_file
-from shiftbench.graphs.from_signals import correlation_graph, signal_knn_graph
+from shiftbench.graphs.from_signals import NeighborsGraphConfig, signal_knn_graph
 from shiftbench.graphs.graph import Graph
+from shiftbench.graphs.operators import GraphConfig
+from shiftbench.graphs.standard import cycle_graph, geometric_graph, grid_graph, knn_graph, line_graph, path_graph
+from shiftbench.registry import GRAPH_SOURCES, GraphSource
 
 if TYPE_CHECKING:
-    from shiftbench.config import GraphConfig
     from shiftbench.data.dataset import Dataset
-
-
-def line_graph(nodes: int) -> Graph:
-    """The directed line graph ``0 -> 1 -> ... -> nodes-1``: its adjacency is a one-sample delay."""
-    return Graph.from_networkx(nx.path_graph(nodes, create_using=nx.DiGraph), name="line")
-
-
-def cycle_graph(nodes: int) -> Graph:
-    """The directed cycle ``0 -> 1 -> ... -> nodes-1 -> 0``: a circular one-sample delay."""
-    return Graph.from_networkx(nx.cycle_graph(nodes, create_using=nx.DiGraph), name="cycle")
-
-
-def path_graph(nodes: int) -> Graph:
-    """The undirected path on ``nodes`` nodes (each edge in both directions)."""
-    return Graph.from_networkx(nx.path_graph(nodes), name="path")
-
-
-def grid_graph(rows: int, cols: int) -> Graph:
-    """The undirected ``rows x cols`` 4-neighbour grid, nodes in raster order ``r * cols + c``."""
-    grid = nx.grid_2d_graph(rows, cols)
-    raster = sorted(grid.nodes)
-    matrix = nx.to_scipy_sparse_array(grid, nodelist=raster, format="csr")
-    positions = np.array([[c, r] for r, c in raster], dtype=np.float32)
-    return Graph.from_adjacency(sp.csr_matrix(matrix).T, name="grid", positions=positions)
-
-
-def knn_graph(positions: np.ndarray, neighbors: int) -> Graph:
-    """Each node linked to its ``neighbors`` nearest nodes, symmetrized (an edge either way
-    becomes an edge both ways), unit weights.
-
-    Args:
-        positions: ``(nodes, dims)`` coordinates.
-    """
-    directed = kneighbors_graph(positions, n_neighbors=neighbors, mode="connectivity")
-    symmetric = directed.maximum(directed.T)
-    return Graph.from_adjacency(symmetric, name="knn", positions=positions)
-
-
-def geometric_graph(positions: np.ndarray, radius: float) -> Graph:
-    """Link every two nodes closer than ``radius`` (Euclidean, on positions), unit weights.
-
-    Args:
-        positions: ``(nodes, dims)`` coordinates.
-    """
-    linked = radius_neighbors_graph(positions, radius=radius, mode="connectivity", include_self=False)
-    return Graph.from_adjacency(linked.maximum(linked.T), name="geometric", positions=positions)
 
 
 def rewired_graph(graph: Graph, swaps_per_edge: float, seed: int) -> Graph:
@@ -97,40 +51,115 @@ def sbm_graph(nodes: int, blocks: int, p_in: float, p_out: float, seed: int) -> 
     return Graph.from_networkx(model, name="sbm")
 
 
+@dataclass
+class GridGraphConfig(GraphConfig):
+    source: str = "grid"
+    rows: int = 8
+    cols: int = 8
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        require("rows", self.rows, self.rows >= 1, "an integer >= 1")
+        require("cols", self.cols, self.cols >= 1, "an integer >= 1")
+
+    def check_fits(self, nodes: int) -> None:
+        if self.rows * self.cols != nodes:
+            raise ConfigError(
+                f"graph.rows*graph.cols={self.rows}*{self.cols}={self.rows * self.cols} is not accepted; "
+                f"accepted: rows*cols equal to the data's {nodes} nodes"
+            )
+
+
+@dataclass
+class KnnGraphConfig(NeighborsGraphConfig):
+    """Each node linked to its ``neighbors`` nearest nodes: on positions where the data has
+    them, else on the training signals."""
+
+    source: str = "knn"
+
+
+@dataclass
+class GeometricGraphConfig(GraphConfig):
+    """Nodes closer than ``radius`` on their positions."""
+
+    source: str = "geometric"
+    radius: float = 0.2
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        require("radius", self.radius, self.radius > 0, "a number > 0")
+
+
+@dataclass
+class RewiredGraphConfig(GraphConfig):
+    """The native graph with its edges scrambled, every node keeping its degree."""
+
+    source: str = "rewired"
+    swaps_per_edge: float = 5.0
+    seed: int = 0
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        require("swaps_per_edge", self.swaps_per_edge, self.swaps_per_edge >= 0, "a number >= 0")
+        require("seed", self.seed, self.seed >= 0, "an integer >= 0")
+
+
+@dataclass
+class SbmGraphConfig(GraphConfig):
+    source: str = "sbm"
+    blocks: int = 4
+    p_in: float = 0.3
+    p_out: float = 0.02
+    seed: int = 0
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        require("blocks", self.blocks, self.blocks >= 1, "an integer >= 1")
+        require("p_in", self.p_in, 0.0 <= self.p_in <= 1.0, "a probability in [0, 1]")
+        require("p_out", self.p_out, 0.0 <= self.p_out <= 1.0, "a probability in [0, 1]")
+        require("seed", self.seed, self.seed >= 0, "an integer >= 0")
+
+
+def _knn(config: KnnGraphConfig, dataset: Dataset) -> Graph:
+    positions = dataset.native_graph.positions
+    if positions is None:
+        return signal_knn_graph(dataset.signals[dataset.splits.train], config.neighbors)
+    return knn_graph(positions.numpy(), config.neighbors)
+
+
+def _geometric(config: GeometricGraphConfig, dataset: Dataset) -> Graph:
+    positions = dataset.native_graph.positions
+    if positions is None:
+        raise ConfigError(
+            f"graph=geometric needs node positions and data {dataset.name!r} has none; "
+            "accepted: data with positions (sensor_regimes, digits, a .npz with 'positions')"
+        )
+    return geometric_graph(positions.numpy(), config.radius)
+
+
+for _entry in (
+    GraphSource("native", GraphConfig, lambda config, dataset: dataset.native_graph, "native graph"),
+    GraphSource("line", GraphConfig, lambda config, dataset: line_graph(dataset.nodes), "line graph"),
+    GraphSource("cycle", GraphConfig, lambda config, dataset: cycle_graph(dataset.nodes), "cycle"),
+    GraphSource("path", GraphConfig, lambda config, dataset: path_graph(dataset.nodes), "path"),
+    GraphSource("grid", GridGraphConfig, lambda config, dataset: grid_graph(config.rows, config.cols), "grid"),
+    GraphSource("knn", KnnGraphConfig, _knn, "k-NN graph"),
+    GraphSource("geometric", GeometricGraphConfig, _geometric, "radius graph"),
+    GraphSource(
+        "rewired", RewiredGraphConfig,
+        lambda config, dataset: rewired_graph(dataset.native_graph, config.swaps_per_edge, config.seed),
+        "rewired native graph",
+    ),
+    GraphSource(
+        "sbm", SbmGraphConfig,
+        lambda config, dataset: sbm_graph(dataset.nodes, config.blocks, config.p_in, config.p_out, config.seed),
+        "SBM graph",
+    ),
+):
+    GRAPH_SOURCES.add(_entry)
+
+
 def build_graph(config: GraphConfig, dataset: Dataset) -> Graph:
     """The graph that ``config.source`` names, on ``dataset``'s nodes. Sources learned from
     signals see the training split only."""
-    nodes = dataset.nodes
-    source = config.source
-    positions = dataset.native_graph.positions
-    if source == "native":
-        return dataset.native_graph
-    if source == "line":
-        return line_graph(nodes)
-    if source == "cycle":
-        return cycle_graph(nodes)
-    if source == "path":
-        return path_graph(nodes)
-    if source == "grid":
-        return grid_graph(config.rows, config.cols)
-    if source == "rewired":
-        return rewired_graph(dataset.native_graph, config.swaps_per_edge, config.seed)
-    if source == "sbm":
-        return sbm_graph(nodes, config.blocks, config.p_in, config.p_out, config.seed)
-    if source == "file":
-        return load_graph_file(config.path, nodes)
-    training_signals = dataset.signals[dataset.splits.train]
-    if source == "correlation":
-        return correlation_graph(training_signals, config.neighbors)
-    if source == "knn":
-        if positions is None:
-            return signal_knn_graph(training_signals, config.neighbors)
-        return knn_graph(positions.numpy(), config.neighbors)
-    if source == "geometric":
-        if positions is None:
-            raise ConfigError(
-                f"graph=geometric needs node positions and data {dataset.name!r} has none; "
-                "accepted: data with positions (sensor_regimes, digits, a .npz with 'positions')"
-            )
-        return geometric_graph(positions.numpy(), config.radius)
-    raise ValueError(f"unknown graph source {source!r}")
+    return GRAPH_SOURCES[config.source].build(config, dataset)

@@ -1,49 +1,37 @@
-"""The three families, the graph-filter layer, readouts, and parameter counts."""
+"""The families, the graph-filter layer, readouts, and parameter counts. Each family declares
+itself in the registry (``arch.family``); :func:`build_model` asks it."""
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING
+from typing import Any
 
 import torch
 from torch import nn
 
 from shiftbench.models.fc import FullyConnected
-from shiftbench.models.graph_conv import GraphConv
-from shiftbench.models.graph_filter import GraphFilter
 from shiftbench.models.line_conv import CausalConv1d, LineConv
 from shiftbench.models.parameters import count_parameters
-
-if TYPE_CHECKING:
-    from shiftbench.config import FcConfig, GraphConvConfig
+from shiftbench.models.shift_polynomial import ShiftPolynomialLayer
+from shiftbench.models.shift_polynomial_net import ShiftPolynomialNet
+from shiftbench.registry import FAMILIES
 
 __all__ = [
     "CausalConv1d",
     "FullyConnected",
-    "GraphConv",
-    "GraphFilter",
     "LineConv",
+    "ShiftPolynomialLayer",
+    "ShiftPolynomialNet",
     "build_model",
     "count_parameters",
 ]
 
 
-def build_model(
-    arch: FcConfig | GraphConvConfig, nodes: int, features: int, classes: int, shift: torch.Tensor | None
-) -> nn.Module:
-    """The family that ``arch.family`` names, sized for the data; ``shift`` is needed by
-    ``graph_conv`` only."""
-    if arch.family == "fc":
-        return FullyConnected(nodes, features, arch.hidden, classes, arch.nonlinearity, arch.dropout)
-    if arch.family == "line_conv":
-        return LineConv(
-            nodes, features, arch.channels, classes, arch.order, arch.boundary,
-            arch.nonlinearity, arch.readout, arch.dropout, arch.normalization,
-        )
-    if arch.family == "graph_conv":
-        if shift is None:
-            raise ValueError("graph_conv needs a shift operator")
-        return GraphConv(
-            shift, features, arch.channels, classes, arch.order,
-            arch.nonlinearity, arch.readout, arch.dropout, arch.normalization,
-        )
-    raise ValueError(f"unknown family {arch.family!r}")
+def build_model(arch: Any, nodes: int, features: int, classes: int, shift: torch.Tensor | None) -> nn.Module:
+    """The family that ``arch.family`` names, sized for the data; ``shift`` is needed by the
+    families that read a graph only."""
+    family = FAMILIES[arch.family]
+    if family.build is None:
+        raise ValueError(f"family {arch.family!r} is fitted, not built; use its fit")
+    if family.uses_graph and shift is None:
+        raise ValueError(f"{arch.family} needs a shift operator")
+    return family.build(arch, nodes, features, classes, shift)

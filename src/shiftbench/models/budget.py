@@ -11,10 +11,18 @@ from dataclasses import replace
 from typing import Any
 
 from shiftbench.models.parameters import planned_parameters
+from shiftbench.registry import FAMILIES
 
 # How far from the budget a sized network may land, as a share of the budget.
 TOLERANCE = 0.05
-WIDTH_KEY = {"fc": "hidden", "line_conv": "channels", "graph_conv": "channels"}
+
+
+def width_key(family: str) -> str:
+    """The config key whose widths ``arch.budget`` scales."""
+    key = FAMILIES[family].width_key
+    if key is None:
+        raise BudgetError(f"arch.budget is not accepted for arch={family}; accepted: a family with widths")
+    return key
 
 
 class BudgetError(RuntimeError):
@@ -22,7 +30,7 @@ class BudgetError(RuntimeError):
 
 
 def _scaled(arch: Any, scale: float) -> Any:
-    key = WIDTH_KEY[arch.family]
+    key = width_key(arch.family)
     return replace(arch, **{key: [max(1, round(scale * width)) for width in getattr(arch, key)]})
 
 
@@ -33,7 +41,7 @@ def fit_budget(arch: Any, budget: int, nodes: int, features: int, classes: int) 
         BudgetError: when even width 1 everywhere exceeds the budget, or the nearest size is more
             than 5% away; the message says which and by how much.
     """
-    key = WIDTH_KEY[arch.family]
+    key = width_key(arch.family)
     smallest = _scaled(arch, 0.0)
     least = planned_parameters(smallest, nodes, features, classes)
     if least > budget * (1 + TOLERANCE):

@@ -3,11 +3,16 @@
 from __future__ import annotations
 
 from collections.abc import Sequence
+from dataclasses import dataclass, field
+from typing import Optional
 
 import torch
 from torch import nn
 
+from shiftbench.config import require, require_budget, require_choice
+from shiftbench.models.nonlinearities import NONLINEARITIES
 from shiftbench.models.nonlinearities import nonlinearity as make_nonlinearity
+from shiftbench.registry import FAMILIES, Family
 
 
 class FullyConnected(nn.Module):
@@ -39,3 +44,41 @@ class FullyConnected(nn.Module):
 
     def forward(self, x: torch.Tensor) -> torch.Tensor:
         return self.network(x)
+
+
+@dataclass
+class FcConfig:
+    """The MLP: hidden widths, nonlinearity, dropout."""
+
+    family: str = "fc"
+    hidden: list[int] = field(default_factory=lambda: [64])
+    nonlinearity: str = "relu"
+    dropout: float = 0.0
+    budget: Optional[int] = None
+
+    def __post_init__(self) -> None:
+        require_budget(self.budget)
+        require("hidden", self.hidden, all(w >= 1 for w in self.hidden), "a list of integers >= 1")
+        require_choice("nonlinearity", self.nonlinearity, NONLINEARITIES)
+        require("dropout", self.dropout, 0.0 <= self.dropout < 1.0, "a probability in [0, 1)")
+
+
+def planned_fc_parameters(arch: FcConfig, nodes: int, features: int, classes: int) -> int:
+    """``sum_l (w_l + 1) w_{l+1}`` over the widths ``nodes * features, *hidden, classes``."""
+    sizes = [nodes * features, *arch.hidden, classes]
+    return sum((width_in + 1) * width_out for width_in, width_out in zip(sizes[:-1], sizes[1:]))
+
+
+FAMILIES.add(
+    Family(
+        name="fc",
+        schema=FcConfig,
+        display="MLP",
+        planned_parameters=planned_fc_parameters,
+        build=lambda arch, nodes, features, classes, shift: FullyConnected(
+            nodes, features, arch.hidden, classes, arch.nonlinearity, arch.dropout
+        ),
+        width_key="hidden",
+        marker="s",
+    )
+)

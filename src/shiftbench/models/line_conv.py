@@ -3,12 +3,15 @@
 from __future__ import annotations
 
 from collections.abc import Sequence
+from dataclasses import dataclass
 
 import torch
 from torch import nn
 
+from shiftbench.config import require_choice
 from shiftbench.models.readouts import Readout
-from shiftbench.models.stack import FilterStack, widths
+from shiftbench.models.stack import ConvConfig, FilterStack, planned_stack_parameters, widths
+from shiftbench.registry import FAMILIES, Family
 
 BOUNDARIES = ("zero", "circular")
 
@@ -79,3 +82,33 @@ class LineConv(FilterStack):
         layers = [CausalConv1d(i, o, order, boundary) for i, o in widths(features, channels)]
         readout_layer = Readout(readout, nodes, channels[-1], classes)
         super().__init__(layers, readout_layer, nonlinearity, dropout, normalization, channels)
+
+
+@dataclass
+class LineConvConfig(ConvConfig):
+    """A stack of causal Conv1d layers with kernel size ``order + 1``."""
+
+    family: str = "line_conv"
+    boundary: str = "zero"
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        require_choice("boundary", self.boundary, BOUNDARIES)
+
+
+FAMILIES.add(
+    Family(
+        name="line_conv",
+        schema=LineConvConfig,
+        display="1-D CNN",
+        planned_parameters=planned_stack_parameters,
+        build=lambda arch, nodes, features, classes, shift: LineConv(
+            nodes, features, arch.channels, classes, arch.order, arch.boundary,
+            arch.nonlinearity, arch.readout, arch.dropout, arch.normalization,
+        ),
+        width_key="channels",
+        # The line graph's delay (the cycle's, with a circular boundary) is the shift it uses.
+        structure=lambda arch: ("cycle" if arch.boundary == "circular" else "line", "adjacency"),
+        marker="^",
+    )
+)

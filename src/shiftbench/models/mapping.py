@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import torch
 
-from shiftbench.models.graph_conv import GraphConv
+from shiftbench.models.shift_polynomial_net import ShiftPolynomialNet
 from shiftbench.models.line_conv import LineConv
 
 
@@ -18,8 +18,8 @@ def conv_weight_to_taps(weight: torch.Tensor) -> torch.Tensor:
     return weight.permute(2, 1, 0).flip(0)
 
 
-def line_conv_to_graph_conv(model: LineConv, shift: torch.Tensor, taps_from=conv_weight_to_taps) -> GraphConv:
-    """A GraphConv on ``shift`` (the line graph's or cycle's adjacency) carrying ``model``'s
+def line_conv_to_graph_conv(model: LineConv, shift: torch.Tensor, taps_from=conv_weight_to_taps) -> ShiftPolynomialNet:
+    """A ShiftPolynomialNet on ``shift`` (the line graph's or cycle's adjacency) carrying ``model``'s
     weights: the taps from each Conv1d kernel, and the same biases, norms and readout. The
     graph_conv runs the generic sparse plan, so that comparing the two checks the algebra, not
     a convolution against itself.
@@ -29,7 +29,7 @@ def line_conv_to_graph_conv(model: LineConv, shift: torch.Tensor, taps_from=conv
     """
     first = model.layers[0].conv
     channels = [layer.conv.out_channels for layer in model.layers]
-    graph_model = GraphConv(
+    graph_model = ShiftPolynomialNet(
         shift, first.in_channels, channels, model.readout.linear.out_features, model.layers[0].order,
         nonlinearity=model.nonlinearity, readout=model.readout.kind, dropout=model.dropout.p,
         normalization=model.normalization, structured=False,

@@ -8,12 +8,15 @@ validation accuracy uses the training split alone as reference.
 from __future__ import annotations
 
 import time
+from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from sklearn.neighbors import KNeighborsClassifier
 
 from shiftbench.data.dataset import Dataset
-from shiftbench.training import TrainingResult
+from shiftbench.registry import FAMILIES, Family
+from shiftbench.training_result import TrainingResult
 
 
 def _accuracy(reference: np.ndarray, queries: np.ndarray, dataset: Dataset) -> float:
@@ -40,4 +43,24 @@ def fit_nearest(dataset: Dataset) -> TrainingResult:
         train_seconds=seconds,
         samples_per_second=len(labelled) / max(seconds, 1e-9),
         curve=[],
+        inference_seconds_per_sample=seconds / max(len(splits.test), 1),
     )
+
+
+@dataclass
+class NearestConfig:
+    """The non-neural floor: 1-nearest-neighbour on the flattened signals (Euclidean)."""
+
+    family: str = "nearest"
+
+
+FAMILIES.add(
+    Family(
+        name="nearest",
+        schema=NearestConfig,
+        display="1-NN floor",
+        planned_parameters=lambda arch, nodes, features, classes: 0,
+        fit=lambda arch, dataset, seed: fit_nearest(dataset),
+        marker="x",
+    )
+)

@@ -4,12 +4,16 @@ nonlinearity, then a readout."""
 from __future__ import annotations
 
 from collections.abc import Sequence
+from dataclasses import dataclass, field
+from typing import Optional
 
 import torch
 from torch import nn
 
+from shiftbench.config import require, require_budget, require_choice
+from shiftbench.models.nonlinearities import NONLINEARITIES
 from shiftbench.models.nonlinearities import nonlinearity as make_nonlinearity
-from shiftbench.models.readouts import Readout
+from shiftbench.models.readouts import READOUTS, Readout
 
 
 NORMALIZATIONS = ("none", "batch")
@@ -79,3 +83,46 @@ def widths(features: int, channels: Sequence[int]) -> list[tuple[int, int]]:
     """``(in, out)`` widths of each layer of a stack fed ``features`` and sized by ``channels``."""
     sizes = [features, *channels]
     return list(zip(sizes[:-1], sizes[1:]))
+
+
+@dataclass
+class ConvConfig:
+    """What the convolutional families share: ``order``, widths ``channels``, the nonlinearity,
+    the readout, dropout, normalization, and an optional parameter budget."""
+
+    family: str = "graph_conv"
+    order: int = 3
+    channels: list[int] = field(default_factory=lambda: [16, 16])
+    nonlinearity: str = "relu"
+    readout: str = "mean"
+    dropout: float = 0.0
+    normalization: str = "none"
+    budget: Optional[int] = None
+
+    def __post_init__(self) -> None:
+        require_budget(self.budget)
+        require("order", self.order, self.order >= 0, "an integer >= 0")
+        require(
+            "channels",
+            self.channels,
+            len(self.channels) >= 1 and all(c >= 1 for c in self.channels),
+            "a non-empty list of integers >= 1",
+        )
+        require_choice("nonlinearity", self.nonlinearity, NONLINEARITIES)
+        require_choice("readout", self.readout, READOUTS)
+        require("dropout", self.dropout, 0.0 <= self.dropout < 1.0, "a probability in [0, 1)")
+        require_choice("normalization", self.normalization, NORMALIZATIONS)
+
+
+def planned_stack_parameters(arch: ConvConfig, nodes: int, features: int, classes: int) -> int:
+    """``(K + 1) c_l c_{l+1} + c_{l+1}`` a layer over the widths ``features, *channels``,
+    ``2 c_{l+1}`` more with batch normalization, then a readout of ``(w + 1) classes`` with
+    ``w = c_L`` (``nodes * c_L`` for ``flatten``)."""
+    count = 0
+    for width_in, width_out in widths(features, arch.channels):
+        count += (arch.order + 1) * width_in * width_out + width_out
+        if arch.normalization == "batch":
+            count += 2 * width_out
+    last = arch.channels[-1]
+    readout_width = nodes * last if arch.readout == "flatten" else last
+    return count + (readout_width + 1) * classes

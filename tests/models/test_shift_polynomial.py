@@ -13,7 +13,7 @@ from torch_geometric.nn import TAGConv
 from shiftbench.graphs.graph import Graph
 from shiftbench.graphs.operators import shift_operator
 from shiftbench.graphs.sources import knn_graph, sbm_graph
-from shiftbench.models.graph_filter import GraphFilter
+from shiftbench.models.shift_polynomial import ShiftPolynomialLayer
 
 
 def random_graph(nodes: int, seed: int) -> Graph:
@@ -33,7 +33,7 @@ def test_graph_filter_equals_tagconv_with_mapped_weights(nodes, in_channels, out
     torch.manual_seed(seed)
     graph = random_graph(nodes, seed)
     graph = Graph.from_adjacency(graph.adjacency())  # duplicate edges summed, as the layer sees them
-    layer = GraphFilter(shift_operator(graph, "adjacency", "none"), in_channels, out_channels, order)
+    layer = ShiftPolynomialLayer(shift_operator(graph, "adjacency", "none"), in_channels, out_channels, order)
     tag = TAGConv(in_channels, out_channels, K=order, normalize=False)
     with torch.no_grad():
         for k, linear in enumerate(tag.lins):
@@ -48,7 +48,7 @@ def test_graph_filter_equals_dense_matrix_powers():
     torch.manual_seed(0)
     graph = sbm_graph(30, 3, 0.4, 0.05, seed=0)
     shift = shift_operator(graph, "normalized_laplacian", "spectral")
-    layer = GraphFilter(shift, 2, 3, 4)
+    layer = ShiftPolynomialLayer(shift, 2, 3, 4)
     dense = shift.to_dense()
     x = torch.randn(5, 30, 2)
     expected = sum(torch.linalg.matrix_power(dense, k) @ x @ layer.taps[k] for k in range(5)) + layer.bias
@@ -57,7 +57,7 @@ def test_graph_filter_equals_dense_matrix_powers():
 
 def test_gradients_flow_to_taps_and_input():
     graph = knn_graph(np.random.default_rng(1).random((20, 2)), 4)
-    layer = GraphFilter(shift_operator(graph), 2, 3, 2)
+    layer = ShiftPolynomialLayer(shift_operator(graph), 2, 3, 2)
     x = torch.randn(4, 20, 2, requires_grad=True)
     layer(x).square().sum().backward()
     assert x.grad is not None and x.grad.abs().sum() > 0
@@ -68,6 +68,6 @@ def test_graph_filter_gradient_matches_finite_differences():
     # Source: torch.autograd.gradcheck (finite differences in float64).
     graph = sbm_graph(12, 2, 0.5, 0.1, seed=2)
     shift = shift_operator(graph).to_dense().double().to_sparse_csr()
-    layer = GraphFilter(shift, 2, 2, 3).double()
+    layer = ShiftPolynomialLayer(shift, 2, 2, 3).double()
     x = torch.randn(2, 12, 2, dtype=torch.double, requires_grad=True)
     assert torch.autograd.gradcheck(layer, (x,))

@@ -3,15 +3,17 @@
 from __future__ import annotations
 
 from collections.abc import Sequence
+from dataclasses import dataclass
 
 import torch
 
-from shiftbench.models.graph_filter import GraphFilter
 from shiftbench.models.readouts import Readout
-from shiftbench.models.stack import FilterStack, widths
+from shiftbench.models.shift_polynomial import ShiftPolynomialLayer
+from shiftbench.models.stack import ConvConfig, FilterStack, planned_stack_parameters, widths
+from shiftbench.registry import FAMILIES, Family
 
 
-class GraphConv(FilterStack):
+class ShiftPolynomialNet(FilterStack):
     """A stack of graph-filter layers ``X_{l+1} = sigma(sum_k S^k X_l H_{l,k} + b_l)`` (widths
     ``channels``), then a readout. Parameters per layer: ``(K + 1) * in * out + out``,
     independent of ``nodes``.
@@ -19,7 +21,7 @@ class GraphConv(FilterStack):
     Args:
         shift: ``(nodes, nodes)`` sparse shift operator ``S``, shared by every layer.
         structured: let the layers use a structured plan where ``S`` has one (see
-            :class:`GraphFilter`).
+            :class:`ShiftPolynomialLayer`).
 
     Shapes:
         input ``(batch, nodes, features)`` -> logits ``(batch, classes)``.
@@ -39,6 +41,34 @@ class GraphConv(FilterStack):
         structured: bool = True,
     ) -> None:
         nodes = shift.shape[0]
-        layers = [GraphFilter(shift, i, o, order, structured=structured) for i, o in widths(features, channels)]
+        layers = [ShiftPolynomialLayer(shift, i, o, order, structured=structured) for i, o in widths(features, channels)]
         readout_layer = Readout(readout, nodes, channels[-1], classes)
         super().__init__(layers, readout_layer, nonlinearity, dropout, normalization, channels)
+
+
+@dataclass
+class GraphConvConfig(ConvConfig):
+    """A stack of graph filters of order ``order``, widths ``channels``, on the configured graph."""
+
+    family: str = "graph_conv"
+
+
+def _build(arch: GraphConvConfig, nodes: int, features: int, classes: int, shift: torch.Tensor) -> ShiftPolynomialNet:
+    return ShiftPolynomialNet(
+        shift, features, arch.channels, classes, arch.order,
+        arch.nonlinearity, arch.readout, arch.dropout, arch.normalization,
+    )
+
+
+FAMILIES.add(
+    Family(
+        name="graph_conv",
+        schema=GraphConvConfig,
+        display="GNN",
+        planned_parameters=planned_stack_parameters,
+        build=_build,
+        width_key="channels",
+        uses_graph=True,
+        marker="o",
+    )
+)

@@ -81,7 +81,7 @@ class SparsePolynomial(torch.autograd.Function):
         return grad_x, grad_taps, grad_bias, None
 
 
-class GraphFilter(nn.Module):
+class ShiftPolynomialLayer(nn.Module):
     """``Y = sum_{k=0..K} S^k X H_k + b`` for a whole batch.
 
     The taps ``H_k`` are ``(in_channels, out_channels)`` matrices, one per power of ``S``. How

@@ -1,0 +1,131 @@
+"""Graph-free floors from scikit-learn, each tuned on the validation split with a small grid:
+logistic regression, shrinkage LDA, regularized QDA and a random forest.
+
+A floor is fitted on the training split once per grid value; the value with the best validation
+accuracy (the first such in grid order) is kept and scored on the test split. Like the neural
+families, floors never train on the validation split, so every candidate sees the same data.
+Signals are flattened to ``(samples, nodes * features)``; the linear floors standardize them.
+"""
+
+from __future__ import annotations
+
+import time
+import warnings
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+from sklearn.base import ClassifierMixin
+from sklearn.discriminant_analysis import LinearDiscriminantAnalysis, QuadraticDiscriminantAnalysis
+from sklearn.ensemble import RandomForestClassifier
+from sklearn.linear_model import LogisticRegression
+from sklearn.pipeline import make_pipeline
+from sklearn.preprocessing import StandardScaler
+
+from shiftbench.data.dataset import Dataset
+from shiftbench.registry import FAMILIES, Family
+from shiftbench.training_result import TrainingResult
+
+
+@dataclass(frozen=True)
+class Floor:
+    """A scikit-learn classifier and the grid its one hyperparameter is chosen from.
+
+    Attributes:
+        make: ``(value, seed) -> classifier``.
+        key: the hyperparameter's name in records.
+        grid: the values tried, in order.
+    """
+
+    make: Callable[[Any, int], ClassifierMixin]
+    key: str
+    grid: tuple[Any, ...]
+
+
+FLOORS = {
+    "logistic": Floor(
+        lambda c, seed: make_pipeline(StandardScaler(), LogisticRegression(C=c, max_iter=2000)),
+        "C", (0.01, 0.1, 1.0, 10.0),
+    ),
+    "lda": Floor(
+        lambda shrinkage, seed: LinearDiscriminantAnalysis(solver="lsqr", shrinkage=shrinkage),
+        "shrinkage", ("auto", 0.1, 0.5, 0.9),
+    ),
+    "qda": Floor(
+        lambda reg_param, seed: QuadraticDiscriminantAnalysis(reg_param=reg_param),
+        "reg_param", (0.0, 0.1, 0.3, 0.6, 0.9),
+    ),
+    "forest": Floor(
+        lambda max_features, seed: RandomForestClassifier(
+            n_estimators=200, max_features=max_features, random_state=seed, n_jobs=1
+        ),
+        "max_features", ("sqrt", 0.3),
+    ),
+}
+DISPLAY = {"logistic": "logistic regression", "lda": "shrinkage LDA", "qda": "regularized QDA", "forest": "random forest"}
+
+
+@dataclass
+class FloorConfig:
+    """A graph-free scikit-learn floor; its grid is fixed (see :data:`FLOORS`)."""
+
+    family: str = "logistic"
+
+
+def fit_floor(name: str, dataset: Dataset, seed: int) -> TrainingResult:
+    """Choose the floor's hyperparameter on validation accuracy, then score every split.
+    ``train_seconds`` covers the whole grid."""
+    floor = FLOORS[name]
+    flat = dataset.signals.reshape(dataset.samples, -1).astype(np.float64)
+    labels = dataset.labels
+    train, val, test = dataset.splits.train, dataset.splits.val, dataset.splits.test
+    started = time.perf_counter()
+    best: tuple[float, Any, ClassifierMixin] | None = None
+    for value in floor.grid:
+        with warnings.catch_warnings():
+            # Collinear classes (QDA without regularization) and slow convergence are scored as
+            # they come: the validation split decides.
+            warnings.simplefilter("ignore")
+            classifier = floor.make(value, seed).fit(flat[train], labels[train])
+            score = float(classifier.score(flat[val], labels[val]))
+        if best is None or score > best[0]:
+            best = (score, value, classifier)
+    train_seconds = time.perf_counter() - started
+    assert best is not None
+    val_accuracy, value, classifier = best
+    predicting = time.perf_counter()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        test_accuracy = float(classifier.score(flat[test], labels[test]))
+        train_accuracy = float(classifier.score(flat[train], labels[train]))
+    inference = (time.perf_counter() - predicting) / max(len(test) + len(train), 1)
+    return TrainingResult(
+        train_accuracy=train_accuracy,
+        val_accuracy=val_accuracy,
+        test_accuracy=test_accuracy,
+        test_loss=None,
+        best_epoch=None,
+        epochs_run=None,
+        train_seconds=train_seconds,
+        samples_per_second=len(train) * len(floor.grid) / max(train_seconds, 1e-9),
+        inference_seconds_per_sample=inference,
+        chosen={floor.key: value},
+    )
+
+
+def _fit(name: str) -> Callable[[Any, Dataset, int], TrainingResult]:
+    return lambda arch, dataset, seed: fit_floor(name, dataset, seed)
+
+
+for _name in FLOORS:
+    FAMILIES.add(
+        Family(
+            name=_name,
+            schema=FloorConfig,
+            display=DISPLAY[_name],
+            planned_parameters=lambda arch, nodes, features, classes: 0,
+            fit=_fit(_name),
+            marker="x",
+        )
+    )

@@ -1,0 +1,172 @@
+"""The registry: every component (family, graph source, dataset, shift operator, task) is one
+entry, declared in the module that implements it. Code that used to branch on names asks here.
+
+A component module adds its entry at import (``FAMILIES.add(Family(...))``); :func:`load_components`
+imports the modules listed in :data:`COMPONENT_MODULES`, so adding a component is one file plus
+one line in that list. This module imports nothing of the project but its error type, so any
+layer may read the registry without reaching into the layers after it.
+"""
+
+from __future__ import annotations
+
+import importlib
+from collections.abc import Callable, Iterator
+from dataclasses import dataclass, field
+from typing import Any, Generic, TypeVar
+
+from shiftbench.errors import ConfigError
+
+# The modules that declare components, in the order of the data walk. One line a component file.
+COMPONENT_MODULES = [
+    "shiftbench.task",
+    "shiftbench.graphs.operators",
+    "shiftbench.data.sensor_regimes",
+    "shiftbench.data.digits",
+    "shiftbench.data.ucr",
+    "shiftbench.data.files",
+    "shiftbench.graphs.sources",
+    "shiftbench.graphs.from_signals",
+    "shiftbench.graphs.files",
+    "shiftbench.models.fc",
+    "shiftbench.models.line_conv",
+    "shiftbench.models.shift_polynomial_net",
+    "shiftbench.models.nearest",
+    "shiftbench.models.floors",
+]
+
+
+@dataclass(frozen=True)
+class Family:
+    """A model family.
+
+    Attributes:
+        name: the ``arch.family`` value.
+        schema: its config dataclass (``__post_init__`` checks ranges with one-line errors).
+        display: how tables and plots name it.
+        build: ``(arch, nodes, features, classes, shift) -> nn.Module`` for trained families.
+        fit: ``(arch, dataset, seed) -> TrainingResult`` for families fitted without the loop.
+        planned_parameters: ``(arch, nodes, features, classes) -> int``, from the config alone.
+        width_key: the config key that ``arch.budget`` scales, or None.
+        uses_graph: True when the family reads the configured graph (its shift operator).
+        structure: ``(arch) -> (graph, operator)`` that the family uses when it does not read the
+            configured graph (``line_conv``: the line graph's delay; graph-free: ``none``).
+        marker: the matplotlib marker of its points.
+    """
+
+    name: str
+    schema: type
+    display: str
+    planned_parameters: Callable[..., int]
+    build: Callable[..., Any] | None = None
+    fit: Callable[..., Any] | None = None
+    width_key: str | None = None
+    uses_graph: bool = False
+    structure: Callable[[Any], tuple[str, str]] = lambda arch: ("none", "none")
+    marker: str = "d"
+
+
+@dataclass(frozen=True)
+class GraphSource:
+    """A way to make a graph on a dataset's nodes: ``build(config, dataset) -> Graph``.
+    ``schema`` subclasses the graph group's base (operator and scale)."""
+
+    name: str
+    schema: type
+    build: Callable[..., Any]
+    display: str = ""
+
+
+@dataclass(frozen=True)
+class DatasetSource:
+    """A data source: ``load(config) -> Dataset``; ``schema`` is its config dataclass."""
+
+    name: str
+    schema: type
+    load: Callable[..., Any]
+    display: str = ""
+
+
+@dataclass(frozen=True)
+class Operator:
+    """A shift operator: ``matrix(graph) -> scipy.sparse.csr_matrix``."""
+
+    name: str
+    matrix: Callable[..., Any]
+
+
+@dataclass(frozen=True)
+class Task:
+    """What a job learns and how it is scored.
+
+    Attributes:
+        loss: ``(outputs, targets) -> scalar tensor``, averaged over the batch.
+        correct: ``(outputs, targets) -> tensor`` of per-sample scores summed into the metric.
+        metric: the primary metric's name in records (``accuracy``).
+        higher_is_better: the metric's direction.
+        head: ``pooled`` (one output per signal) or ``nodes`` (one per node).
+        split_rule: how samples are split (``stratified`` keeps class shares).
+    """
+
+    name: str
+    loss: Callable[..., Any]
+    correct: Callable[..., Any]
+    metric: str
+    higher_is_better: bool
+    head: str
+    split_rule: str
+
+
+Entry = TypeVar("Entry")
+
+
+@dataclass
+class Registry(Generic[Entry]):
+    """Entries of one kind, by name, in the order they were added."""
+
+    kind: str
+    key: str
+    entries: dict[str, Entry] = field(default_factory=dict)
+
+    def add(self, entry: Entry) -> Entry:
+        name = entry.name  # type: ignore[attr-defined]
+        if name in self.entries and self.entries[name] is not entry:
+            raise ValueError(f"{self.kind} {name!r} is declared twice")
+        self.entries[name] = entry
+        return entry
+
+    def __getitem__(self, name: str) -> Entry:
+        load_components()
+        if name not in self.entries:
+            raise ConfigError(f"{self.key}={name!r} is not accepted; accepted: one of {', '.join(self.entries)}")
+        return self.entries[name]
+
+    def __contains__(self, name: object) -> bool:
+        load_components()
+        return name in self.entries
+
+    def __iter__(self) -> Iterator[Entry]:
+        load_components()
+        return iter(list(self.entries.values()))
+
+    def names(self) -> tuple[str, ...]:
+        load_components()
+        return tuple(self.entries)
+
+
+FAMILIES: Registry[Family] = Registry("family", "arch.family")
+GRAPH_SOURCES: Registry[GraphSource] = Registry("graph source", "graph.source")
+DATASETS: Registry[DatasetSource] = Registry("dataset", "data.source")
+OPERATORS: Registry[Operator] = Registry("shift operator", "graph.operator")
+TASKS: Registry[Task] = Registry("task", "task")
+
+_loaded = False
+
+
+def load_components() -> None:
+    """Import every component module once, so every registry is complete."""
+    global _loaded
+    if _loaded:
+        return
+    _loaded = True
+    for module in COMPONENT_MODULES:
+        importlib.import_module(module)

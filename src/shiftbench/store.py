@@ -1,0 +1,143 @@
+"""The results store: one home per config, found from its hash, however the job was launched.
+
+```
+results_dir/
+  store/<config hash>/     the home: record.json, curve.csv, checkpoint.pt while training,
+                           claim while a process trains it, superseded/ (records set aside by force)
+  <study>/jobs.jsonl       a launch folder: one line per job it asked for, pointing at the home
+  sweeps/<date>_<time>/jobs.jsonl
+```
+
+A launch never copies records: it appends pointers. Skip, resume and the claim that keeps two
+processes from training one config all work on the home.
+"""
+
+from __future__ import annotations
+
+import errno
+import json
+import os
+import socket
+import time
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Any
+
+from shiftbench.records import CURVE_FILE, FINAL_STATUSES, MANIFEST_FILE, RECORD_FILE
+
+STORE_FOLDER = "store"
+CLAIM_FILE = "claim"
+SUPERSEDED_FOLDER = "superseded"
+# A claim from another machine whose holder has not touched it for this long is taken as dead
+# (the holder touches it every epoch).
+STALE_CLAIM_SECONDS = 30 * 60
+
+
+def home_of(results_dir: Path, config_hash: str) -> Path:
+    return Path(results_dir) / STORE_FOLDER / config_hash
+
+
+def finished_record(home: Path) -> dict[str, Any] | None:
+    """The home's record when it is completed or timed out (a rerun skips it), else None."""
+    path = home / RECORD_FILE
+    try:
+        record = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
+    return record if isinstance(record, dict) and record.get("status") in FINAL_STATUSES else None
+
+
+def _holder_alive(holder: dict[str, Any], claim: Path) -> bool:
+    if holder.get("host") == socket.gethostname():
+        try:
+            os.kill(int(holder.get("pid", -1)), 0)
+        except (ProcessLookupError, ValueError):
+            return False
+        except PermissionError:
+            return True
+        return True
+    try:
+        return time.time() - claim.stat().st_mtime < STALE_CLAIM_SECONDS
+    except FileNotFoundError:
+        return False
+
+
+def claim(home: Path) -> str | None:
+    """Claim ``home`` for this process: None when claimed, else who holds it.
+
+    The claim is a file created exclusively (``O_CREAT | O_EXCL``, atomic on local and NFS v3+
+    filesystems). A claim whose process has died (same host) or that nobody touched for
+    ``STALE_CLAIM_SECONDS`` (another host) is removed and taken over.
+    """
+    home.mkdir(parents=True, exist_ok=True)
+    path = home / CLAIM_FILE
+    me = {"host": socket.gethostname(), "pid": os.getpid(), "since": datetime.now(timezone.utc).isoformat(timespec="seconds")}
+    for _ in range(3):
+        try:
+            handle = os.open(path, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o644)
+        except OSError as error:
+            if error.errno != errno.EEXIST:
+                raise
+            try:
+                holder = json.loads(path.read_text(encoding="utf-8") or "{}")
+            except (OSError, ValueError):
+                holder = {}
+            if holder.get("pid") == os.getpid() and holder.get("host") == me["host"]:
+                return None
+            if holder and _holder_alive(holder, path):
+                return f"pid {holder.get('pid')} on {holder.get('host')} since {holder.get('since')}"
+            if not holder and time.time() - path.stat().st_mtime < 5:
+                return "a process that is writing its claim"  # created a moment ago, content on its way
+            path.unlink(missing_ok=True)
+            continue
+        with os.fdopen(handle, "w") as stream:
+            stream.write(json.dumps(me))
+        return None
+    return "another process (the claim kept changing hands)"
+
+
+def touch_claim(home: Path) -> None:
+    """Show that the holder is alive (see :data:`STALE_CLAIM_SECONDS`)."""
+    try:
+        os.utime(home / CLAIM_FILE)
+    except FileNotFoundError:
+        pass
+
+
+def release(home: Path) -> None:
+    (home / CLAIM_FILE).unlink(missing_ok=True)
+
+
+def set_aside(home: Path) -> Path | None:
+    """Move the home's record and curve into ``superseded/<time>/`` (``force=true`` recomputes
+    without destroying the old figures); the folder, or None when there was no record."""
+    record = home / RECORD_FILE
+    if not record.is_file():
+        return None
+    folder = home / SUPERSEDED_FOLDER / datetime.now(timezone.utc).strftime("%Y-%m-%dT%H-%M-%S.%f")
+    folder.mkdir(parents=True)
+    for name in (RECORD_FILE, CURVE_FILE):
+        if (home / name).is_file():
+            os.replace(home / name, folder / name)
+    return folder
+
+
+def note_launch(launch: Path, home: Path, config_hash: str, overrides: list[str], outcome: str) -> None:
+    """Append the launch's pointer to ``home`` with what this launch did there (``trained``,
+    ``resumed``, ``skipped``, ``claimed`` elsewhere, ``failed``): one line, one write, so lines of
+    parallel jobs never interleave."""
+    launch.mkdir(parents=True, exist_ok=True)
+    entry = {
+        "config_hash": config_hash,
+        "home": os.path.relpath(home.resolve(), launch.resolve()),
+        "overrides": overrides,
+        "outcome": outcome,
+        "when": datetime.now(timezone.utc).isoformat(timespec="seconds"),
+    }
+    line = (json.dumps(entry) + "\n").encode("utf-8")
+    handle = os.open(launch / MANIFEST_FILE, os.O_CREAT | os.O_APPEND | os.O_WRONLY, 0o644)
+    try:
+        os.write(handle, line)
+        os.fsync(handle)
+    finally:
+        os.close(handle)

@@ -1,0 +1,28 @@
+"""What a fitted model measured: the outcome of the training loop or of a floor's fit."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+
+@dataclass
+class TrainingResult:
+    """What a finished training run measured. ``curve`` holds one dict per epoch with keys
+    ``epoch, train_loss, train_accuracy, val_loss, val_accuracy, seconds``. Figures that a
+    family does not have (the 1-NN floor has no loss and no epochs) are None. ``chosen`` holds the
+    setting a self-tuning floor picked on the validation split."""
+
+    train_accuracy: float
+    val_accuracy: float
+    test_accuracy: float
+    test_loss: float | None
+    best_epoch: int | None
+    epochs_run: int | None
+    train_seconds: float
+    samples_per_second: float
+    curve: list[dict[str, float]] = field(default_factory=list)
+    status: str = "completed"
+    resumed_from_epoch: int | None = None
+    inference_seconds_per_sample: float | None = None
+    chosen: dict[str, Any] | None = None
