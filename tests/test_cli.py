@@ -21,24 +21,28 @@ def run(command: str, *arguments: str, cwd: Path) -> subprocess.CompletedProcess
 
 
 def records_under(folder: Path) -> list[dict]:
-    return [json.loads(path.read_text()) for path in sorted(folder.rglob("result.json"))]
+    """The records below ``folder`` or pointed at by its launch manifest."""
+    from shiftbench.records import find_records
+
+    return [json.loads(path.read_text()) for path in find_records([folder])]
 
 
 @pytest.mark.parametrize(
     ("arguments", "family", "order"),
     [
         ([], "graph_conv", 3),
-        (["arch=fc"], "fc", None),
         (["arch=line_conv", "arch.order=4", "seed=2"], "line_conv", 4),
-        (["arch=graph_conv", "graph=line", "arch.order=2", "train.epochs=5"], "graph_conv", 2),
     ],
 )
-def test_single_jobs_run_from_any_folder_and_write_a_record(tmp_path, arguments, family, order):
+def test_single_jobs_run_from_any_folder_and_write_a_record_in_the_store(tmp_path, arguments, family, order):
     result = run("shiftbench", *FAST, *arguments, cwd=tmp_path)
     assert result.returncode == 0, result.stderr
     (record,) = records_under(tmp_path / "results")
     assert (record["status"], record["family"], record["order"]) == ("completed", family, order)
     assert result.stdout.splitlines()[-1].startswith(f"{family} on sensor_regimes, graph ")
+    assert [path.name for path in (tmp_path / "results").iterdir()] == ["store"]
+    again = run("shiftbench", *FAST, *arguments, cwd=tmp_path)
+    assert again.stdout.startswith("skipped (already completed, record in ") and len(records_under(tmp_path / "results")) == 1
 
 
 def test_real_and_user_data_run_from_any_folder(tmp_path):
@@ -74,13 +78,14 @@ def test_a_bad_data_file_stops_before_any_job(tmp_path):
 def test_a_sweep_writes_one_record_per_job_and_the_report_tabulates_them(tmp_path):
     result = run("shiftbench", "-m", "arch=fc,line_conv,graph_conv", "seed=0,1,2", *FAST, cwd=tmp_path)
     assert result.returncode == 0, result.stderr
-    records = records_under(tmp_path / "results" / "multirun")
+    (launch,) = (tmp_path / "results" / "sweeps").iterdir()
+    records = records_under(launch)
     assert len(records) == 9 and all(r["status"] == "completed" for r in records)
     progress = [line for line in result.stdout.splitlines() if re.match(r"\[\d+/\d+\] ", line)]
     assert [line.split("]")[0] for line in progress] == [f"[{k}/9" for k in range(1, 10)]
     assert "sweep done: 9 completed, 0 skipped, 0 failed" in result.stdout
 
-    report = run("shiftbench-report", "results/multirun", "--out", "tables", cwd=tmp_path)
+    report = run("shiftbench-report", str(launch), "--out", "tables", cwd=tmp_path)
     assert report.returncode == 0, report.stderr
     table = pd.read_csv(tmp_path / "tables" / "summary.csv")
     assert sorted(table["family"]) == ["fc", "graph_conv", "line_conv"]
@@ -90,11 +95,11 @@ def test_a_sweep_writes_one_record_per_job_and_the_report_tabulates_them(tmp_pat
 def test_the_families_study_runs_its_five_setups_over_three_seeds_and_a_rerun_trains_nothing(tmp_path):
     result = run("shiftbench", "-m", "+experiment=families", *FAST, cwd=tmp_path)
     assert result.returncode == 0, result.stderr
-    files = sorted((tmp_path / "results" / "families").rglob("result.json"))
+    files = sorted((tmp_path / "results" / "store").rglob("record.json"))
     stamps = [path.stat().st_mtime_ns for path in files]
     rerun = run("shiftbench", "-m", "+experiment=families", *FAST, cwd=tmp_path)
     assert rerun.returncode == 0, rerun.stderr
-    assert rerun.stdout.count("skipped (already completed)") == 15
+    assert rerun.stdout.count("skipped (already completed") == 15
     assert "sweep done: 0 completed, 15 skipped, 0 failed" in rerun.stdout
     assert [path.stat().st_mtime_ns for path in files] == stamps
     records = records_under(tmp_path / "results" / "families")
@@ -119,23 +124,25 @@ def test_a_bad_config_prints_one_line_exits_2_and_writes_nothing(tmp_path, argum
 def test_report_on_a_folder_without_records_is_a_one_line_error(tmp_path):
     result = run("shiftbench-report", str(tmp_path), cwd=tmp_path)
     assert result.returncode == 2
-    assert result.stderr.strip() == f"shiftbench-report: error: no records (result.json) found under {tmp_path}"
+    assert result.stderr.strip() == f"shiftbench-report: error: no records (record.json) found under {tmp_path}"
 
 
-@pytest.mark.parametrize("launcher", ["joblib", "submitit_local"])
-def test_parallel_launchers_write_every_record_and_a_rerun_trains_nothing(tmp_path, launcher):
-    arguments = ["-m", "arch=fc,line_conv,graph_conv", "seed=0,1", *FAST, f"hydra/launcher={launcher}",
+@pytest.mark.parametrize(("launcher", "seeds", "jobs"), [("joblib", "0,1", 6), ("submitit_local", "0", 3)])
+def test_parallel_launchers_write_every_record_and_a_rerun_trains_nothing(tmp_path, launcher, seeds, jobs):
+    arguments = ["-m", "arch=fc,line_conv,graph_conv", f"seed={seeds}", *FAST, f"hydra/launcher={launcher}",
                  "hydra.sweep.dir=results/sweep"]
     if launcher == "joblib":
         arguments.append("hydra.launcher.n_jobs=2")
     result = run("shiftbench", *arguments, cwd=tmp_path)
     assert result.returncode == 0, result.stderr
-    files = sorted((tmp_path / "results" / "sweep").rglob("result.json"))
-    assert len(files) == 6 and all(json.loads(path.read_text())["status"] == "completed" for path in files)
+    from shiftbench.records import find_records
+
+    files = find_records([tmp_path / "results" / "sweep"])
+    assert len(files) == jobs and all(json.loads(path.read_text())["status"] == "completed" for path in files)
     stamps = [path.stat().st_mtime_ns for path in files]
     rerun = run("shiftbench", *arguments, cwd=tmp_path)
     assert rerun.returncode == 0, rerun.stderr
-    assert "sweep done: 0 completed, 6 skipped, 0 failed" in rerun.stdout
+    assert f"sweep done: 0 completed, {jobs} skipped, 0 failed" in rerun.stdout
     assert [path.stat().st_mtime_ns for path in files] == stamps
 
 
@@ -145,17 +152,18 @@ def test_a_sweep_killed_mid_job_finishes_on_rerun_without_retraining_what_was_do
     import signal
     import time
 
-    sweep = tmp_path / "results" / "sweep"
+    sweep = tmp_path / "results" / "store"
+    # An ad-hoc sweep with no fixed folder: relaunched, it gets a new launch folder, and the
+    # store still knows what was done.
     arguments = ["-m", "arch=fc,line_conv,graph_conv", "data.samples_per_class=40", "data.nodes=24",
-                 "train.epochs=100", "train.patience=100", "train.checkpoint_every=1",
-                 "hydra.sweep.dir=results/sweep", "hydra.sweep.subdir=${hydra.job.override_dirname}"]
+                 "train.epochs=100", "train.patience=100", "train.checkpoint_every=1"]
     if launcher == "joblib":
         arguments += ["hydra/launcher=joblib", "hydra.launcher.n_jobs=2"]
     process = subprocess.Popen([str(BIN / "shiftbench"), *arguments], cwd=tmp_path, start_new_session=True,
                                stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
     deadline = time.monotonic() + 120
     while True:
-        done = [path.parent for path in sweep.rglob("result.json")]
+        done = [path.parent for path in sweep.rglob("record.json")]
         started = [path.parent for path in sweep.rglob("checkpoint.pt") if path.parent not in done]
         if done and started:
             break
@@ -164,11 +172,11 @@ def test_a_sweep_killed_mid_job_finishes_on_rerun_without_retraining_what_was_do
         time.sleep(0.01)
     os.killpg(process.pid, signal.SIGKILL)
     process.wait()
-    finished = {path: path.read_bytes() for path in sweep.rglob("result.json")}
+    finished = {path: path.read_bytes() for path in sweep.rglob("record.json")}
 
     rerun = run("shiftbench", *arguments, cwd=tmp_path)
     assert rerun.returncode == 0, rerun.stderr
-    records = {path: json.loads(path.read_text()) for path in sweep.rglob("result.json")}
+    records = {path: json.loads(path.read_text()) for path in sweep.rglob("record.json")}
     assert len(records) == 3 and all(record["status"] == "completed" for record in records.values())
     assert {path: path.read_bytes() for path in finished} == finished  # not retrained, not rewritten
     resumed = [record for path, record in records.items() if path not in finished and "resumed_from_epoch" in record]
@@ -176,19 +184,19 @@ def test_a_sweep_killed_mid_job_finishes_on_rerun_without_retraining_what_was_do
     assert not list(sweep.rglob("checkpoint.pt"))
 
 
-def test_job_folders_named_by_overrides_stay_inside_the_sweep_folder(tmp_path):
-    rng = np.random.default_rng(1)
-    signals = rng.standard_normal((45, 6))
-    np.savez(tmp_path / "X.npz", signals=signals, labels=np.repeat([0, 1, 2], 15))
-    (tmp_path / "sub").mkdir()
-    # Read from the working folder by a path whose '..' steps would climb out of a folder named after it.
-    climbing = f"sub/../../{tmp_path.name}/X.npz"
-    arguments = ["-m", "data=file", f"data.path={climbing},X.npz", "arch=fc", "train.epochs=1",
-                 "hydra.sweep.dir=results/s", "hydra.sweep.subdir='${safe_dirname:${hydra.job.override_dirname}}'"]
-    result = run("shiftbench", *arguments, cwd=tmp_path)
-    assert result.returncode == 0, result.stderr
-    folders = [path.parent for path in (tmp_path / "results" / "s").rglob("result.json")]
-    assert len(folders) == 2 and all(folder.parent == tmp_path / "results" / "s" for folder in folders)
+def test_two_identical_sweeps_at_once_train_each_config_once(tmp_path):
+    common = ["-m", "arch=fc,line_conv,graph_conv", *FAST, "train.epochs=15"]
+    sweeps = [subprocess.Popen([str(BIN / "shiftbench"), *common], cwd=tmp_path, stdout=subprocess.PIPE,
+                               stderr=subprocess.PIPE, text=True) for _ in range(2)]
+    outputs = [process.communicate(timeout=300) for process in sweeps]
+    assert all(process.returncode == 0 for process in sweeps), outputs
+    from shiftbench.records import read_manifest
+
+    outcomes = [entry["outcome"] for launch in (tmp_path / "results" / "sweeps").iterdir() for entry in read_manifest(launch)]
+    assert len(list((tmp_path / "results" / "store").rglob("record.json"))) == 3
+    # Each config trained by one launch; the other skipped it, done or claimed by the first.
+    assert sorted(outcomes) == sorted(["trained"] * 3 + [outcome for outcome in outcomes if outcome != "trained"])
+    assert outcomes.count("trained") == 3 and len(outcomes) == 6
 
 
 def test_two_sweeps_writing_one_study_folder_and_a_report_reading_it_meanwhile_see_only_whole_records(tmp_path):
@@ -198,7 +206,7 @@ def test_two_sweeps_writing_one_study_folder_and_a_report_reading_it_meanwhile_s
 
     sweep = tmp_path / "results" / "shared"
     common = ["-m", "arch=fc,line_conv,graph_conv", *FAST, "train.epochs=20", "train.checkpoint_every=1",
-              "hydra.sweep.dir=results/shared", "hydra.sweep.subdir=${hydra.job.override_dirname}"]
+              "hydra.sweep.dir=results/shared"]
     sweeps = [subprocess.Popen([str(BIN / "shiftbench"), *common, f"seed={seed}"], cwd=tmp_path,
                                stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True) for seed in (0, 1)]
     reads = 0

@@ -9,6 +9,7 @@ import shiftbench.job
 from shiftbench.config import ConfigError
 from shiftbench.job import run_job
 from shiftbench.records import CURVE_FILE, RECORD_FILE
+from tests.conftest import home
 
 DESIGN_FIELDS = {
     "status", "error", "config", "overrides", "config_hash", "family", "graph", "operator", "data",
@@ -20,26 +21,27 @@ FIGURES = ["train_accuracy", "val_accuracy", "test_accuracy", "test_loss", "best
 
 
 def test_record_holds_every_design_field_and_the_curve_matches(small_config, tmp_path):
-    record = run_job(small_config("arch=graph_conv"), tmp_path, ["arch=graph_conv"], live=False)
-    written = json.loads((tmp_path / RECORD_FILE).read_text())
+    record = run_job(small_config("arch=graph_conv"), None, ["arch=graph_conv"], live=False)
+    written = json.loads((home(record) / RECORD_FILE).read_text())
     assert DESIGN_FIELDS <= set(written)
     assert written["status"] == "completed" and written == record
-    curve = pd.read_csv(tmp_path / CURVE_FILE)
+    curve = pd.read_csv(home(record) / CURVE_FILE)
     assert len(curve) == written["epochs_run"]
     assert curve["val_accuracy"].iloc[written["best_epoch"] - 1] == pytest.approx(written["val_accuracy"])
 
 
 @pytest.mark.parametrize("family", ["fc", "line_conv", "graph_conv"])
 def test_same_config_and_seed_give_identical_figures(small_config, tmp_path, family):
-    first = run_job(small_config(f"arch={family}", "seed=5"), tmp_path / "a", [], live=False)
-    second = run_job(small_config(f"arch={family}", "seed=5"), tmp_path / "b", [], live=False)
+    first = run_job(small_config(f"arch={family}", "seed=5", f"results_dir={tmp_path / 'a'}"), None, [], live=False)
+    second = run_job(small_config(f"arch={family}", "seed=5", f"results_dir={tmp_path / 'b'}"), None, [], live=False)
+    assert "skipped" not in second
     assert [first[key] for key in FIGURES] == [second[key] for key in FIGURES]
-    assert first["config_hash"] == second["config_hash"]
+    assert first["config_hash"] == second["config_hash"] and home(first) != home(second)
 
 
 def test_another_seed_gives_other_figures(small_config, tmp_path):
-    first = run_job(small_config("seed=0"), tmp_path / "a", [], live=False)
-    second = run_job(small_config("seed=1"), tmp_path / "b", [], live=False)
+    first = run_job(small_config("seed=0"), None, [], live=False)
+    second = run_job(small_config("seed=1"), None, [], live=False)
     assert first["test_loss"] != second["test_loss"]
 
 
@@ -48,38 +50,38 @@ def test_a_job_that_fails_in_training_writes_a_failed_record(small_config, tmp_p
         raise RuntimeError("simulated failure")
 
     monkeypatch.setattr(shiftbench.job, "train", explode)
-    record = run_job(small_config(), tmp_path, [], live=False)
-    written = json.loads((tmp_path / RECORD_FILE).read_text())
+    record = run_job(small_config(), None, [], live=False)
+    written = json.loads((home(record) / RECORD_FILE).read_text())
     assert record["status"] == written["status"] == "failed"
     assert written["error"] == "RuntimeError: simulated failure"
 
 
 def test_a_nan_loss_fails_the_job_with_the_reason(small_config, tmp_path):
-    record = run_job(small_config("train.lr=1e30", "train.optimizer=sgd"), tmp_path, [], live=False)
+    record = run_job(small_config("train.lr=1e30", "train.optimizer=sgd"), None, [], live=False)
     assert record["status"] == "failed"
     assert "TrainingDiverged" in record["error"]
 
 
 def test_a_config_error_writes_nothing(small_config, tmp_path):
     with pytest.raises(ConfigError, match="graph.rows"):
-        run_job(small_config("graph=grid", "graph.rows=5"), tmp_path / "job", [], live=False)
-    assert not (tmp_path / "job").exists()
+        run_job(small_config("graph=grid", "graph.rows=5"), None, [], live=False)
+    assert not any(tmp_path.iterdir())
 
 
 def test_a_graph_that_does_not_fit_the_loaded_data_is_a_config_error(small_config, tmp_path, monkeypatch):
     # Datasets whose size is known only once loaded are checked after loading, before training.
     from shiftbench.data import sensor_regimes
 
-    monkeypatch.setattr(shiftbench.job, "load_dataset", lambda config: sensor_regimes(nodes=30, samples_per_class=20))
+    monkeypatch.setattr(shiftbench.job, "load_dataset", lambda config, split: sensor_regimes(nodes=30, samples_per_class=20))
     with pytest.raises(ConfigError, match="equal to the data's 30 nodes"):
-        run_job(small_config("graph=grid", "graph.rows=4", "graph.cols=6"), tmp_path / "job", [], live=False)
-    assert not (tmp_path / "job").exists()
+        run_job(small_config("graph=grid", "graph.rows=4", "graph.cols=6"), None, [], live=False)
+    assert not (tmp_path / "job").exists() and not any((tmp_path / "store").rglob("record.json"))
 
 
 def test_records_say_which_structure_each_family_used(small_config, tmp_path):
-    fc = run_job(small_config("arch=fc"), tmp_path / "fc", [], live=False)
-    line = run_job(small_config("arch=line_conv", "arch.boundary=circular"), tmp_path / "lc", [], live=False)
-    graph = run_job(small_config("graph=sbm", "graph.operator=laplacian"), tmp_path / "gc", [], live=False)
+    fc = run_job(small_config("arch=fc"), None, [], live=False)
+    line = run_job(small_config("arch=line_conv", "arch.boundary=circular"), None, [], live=False)
+    graph = run_job(small_config("graph=sbm", "graph.operator=laplacian"), None, [], live=False)
     assert (fc["graph"], fc["order"]) == ("none", None)
     assert line["graph"] == "cycle"
     assert (graph["graph"], graph["operator"]) == ("sbm", "laplacian")
@@ -88,34 +90,65 @@ def test_records_say_which_structure_each_family_used(small_config, tmp_path):
 def test_graph_notes_report_isolated_nodes(small_config, tmp_path):
     graph_file = tmp_path / "g.csv"
     graph_file.write_text("source,target\n0,1\n1,0\n1,2\n2,1\n")
-    record = run_job(small_config("graph=file", f"graph.path={graph_file}"), tmp_path / "job", [], live=False)
+    record = run_job(small_config("graph=file", f"graph.path={graph_file}"), None, [], live=False)
     assert record["status"] == "completed"
     assert record["graph_notes"] == ["21 isolated nodes (3, 4, 5, 6, 7, 8, 9, 10, 11, 12, ...)"]
 
 
 def test_the_nearest_floor_is_recorded_like_any_run(small_config, tmp_path):
-    record = run_job(small_config("arch=nearest"), tmp_path, [], live=False)
+    record = run_job(small_config("arch=nearest"), None, [], live=False)
     assert (record["status"], record["parameters"], record["graph"]) == ("completed", 0, "none")
     assert 0.0 <= record["test_accuracy"] <= 1.0 and record["epochs_run"] is None
 
 
 def test_a_rerun_of_a_completed_config_is_skipped_and_writes_nothing(small_config, tmp_path):
-    first = run_job(small_config("seed=3"), tmp_path / "job", [], live=False)
-    before = (tmp_path / "job" / RECORD_FILE).stat().st_mtime_ns
-    again = run_job(small_config("seed=3"), tmp_path / "job", [], live=False)
+    first = run_job(small_config("seed=3"), None, [], live=False)
+    before = (home(first) / RECORD_FILE).stat().st_mtime_ns
+    again = run_job(small_config("seed=3"), None, [], live=False)
     assert again["skipped"] is True and again["finished"] == first["finished"]
-    assert (tmp_path / "job" / RECORD_FILE).stat().st_mtime_ns == before
+    assert (home(first) / RECORD_FILE).stat().st_mtime_ns == before
 
 
-def test_a_completed_record_elsewhere_in_the_sweep_folder_also_counts(small_config, tmp_path):
-    run_job(small_config("seed=4"), tmp_path / "sweep" / "0", [], live=False, search_root=tmp_path / "sweep")
-    again = run_job(small_config("seed=4"), tmp_path / "sweep" / "7", [], live=False, search_root=tmp_path / "sweep")
-    assert again["skipped"] is True and not (tmp_path / "sweep" / "7").exists()
+def test_a_completed_config_is_skipped_whichever_launch_asks_and_the_launch_points_at_its_home(small_config, tmp_path):
+    from shiftbench.records import read_manifest
+
+    first = run_job(small_config("seed=4"), tmp_path / "sweep_a", [], live=False)
+    again = run_job(small_config("seed=4"), tmp_path / "sweep_b", [], live=False)
+    assert again["skipped"] is True
+    (entry,) = read_manifest(tmp_path / "sweep_b")
+    assert entry["outcome"] == "skipped" and (tmp_path / "sweep_b" / entry["home"]).resolve() == home(first).resolve()
+    assert sorted(path.name for path in (tmp_path / "sweep_b").iterdir()) == ["jobs.jsonl"]
+
+
+def test_force_keeps_the_earlier_record_aside(small_config, tmp_path):
+    first = run_job(small_config("seed=3"), None, [], live=False)
+    run_job(small_config("seed=3", "force=true"), None, [], live=False)
+    (aside,) = (home(first) / "superseded").rglob(RECORD_FILE)
+    assert json.loads(aside.read_text())["finished"] == first["finished"]
+
+
+def test_a_config_claimed_by_a_live_process_is_not_trained_twice(small_config, tmp_path):
+    import os
+    import socket
+
+    from shiftbench.records import config_hash
+    from shiftbench.config import as_plain_dict, validate
+
+    config = small_config("seed=8")
+    target = tmp_path / "store" / config_hash(as_plain_dict(validate(config)))
+    target.mkdir(parents=True)
+    # The parent of this test process is alive: its claim holds.
+    (target / "claim").write_text(json.dumps({"host": socket.gethostname(), "pid": os.getppid(), "since": "now"}))
+    record = run_job(config, None, [], live=False)
+    assert record["skipped"] is True and not (target / RECORD_FILE).exists()
+    (target / "claim").write_text(json.dumps({"host": socket.gethostname(), "pid": 2**22 + 12345, "since": "then"}))
+    record = run_job(config, None, [], live=False)  # a dead holder's claim is taken over
+    assert record["status"] == "completed" and not (target / "claim").exists()
 
 
 def test_force_recomputes_a_completed_config(small_config, tmp_path):
-    run_job(small_config("seed=3"), tmp_path / "job", [], live=False)
-    again = run_job(small_config("seed=3", "force=true"), tmp_path / "job", [], live=False)
+    run_job(small_config("seed=3"), None, [], live=False)
+    again = run_job(small_config("seed=3", "force=true"), None, [], live=False)
     assert "skipped" not in again and again["status"] == "completed"
 
 
@@ -125,8 +158,8 @@ def test_a_failed_record_is_retried(small_config, tmp_path, monkeypatch):
 
     with monkeypatch.context() as patch:
         patch.setattr(shiftbench.job, "train", explode)
-        assert run_job(small_config("seed=6"), tmp_path / "job", [], live=False)["status"] == "failed"
-    retried = run_job(small_config("seed=6"), tmp_path / "job", [], live=False)
+        assert run_job(small_config("seed=6"), None, [], live=False)["status"] == "failed"
+    retried = run_job(small_config("seed=6"), None, [], live=False)
     assert retried["status"] == "completed" and "skipped" not in retried
 
 
@@ -150,9 +183,9 @@ def test_jobs_in_one_process_build_a_shared_dataset_and_graph_once(small_config,
     calls = {"data": 0, "graph": 0}
     real_load, real_build = shiftbench.job.load_dataset, shiftbench.job.build_graph
 
-    def counting_load(config):
+    def counting_load(config, split):
         calls["data"] += 1
-        return real_load(config)
+        return real_load(config, split)
 
     def counting_build(config, dataset):
         calls["graph"] += 1
@@ -161,12 +194,12 @@ def test_jobs_in_one_process_build_a_shared_dataset_and_graph_once(small_config,
     monkeypatch.setattr(shiftbench.job, "load_dataset", counting_load)
     monkeypatch.setattr(shiftbench.job, "build_graph", counting_build)
     for seed in range(3):
-        run_job(small_config(f"seed={seed}", "graph=sbm"), tmp_path / str(seed), [], live=False)
-    run_job(small_config("arch=fc"), tmp_path / "fc", [], live=False)
+        run_job(small_config(f"seed={seed}", "graph=sbm"), None, [], live=False)
+    run_job(small_config("arch=fc"), None, [], live=False)
     assert calls == {"data": 1, "graph": 1}
 
 
 def test_a_budget_that_cannot_be_met_fails_the_job_with_the_reason_and_keeps_the_budget(small_config, tmp_path):
-    record = run_job(small_config("arch=fc", "arch.budget=10"), tmp_path, [], live=False)
+    record = run_job(small_config("arch=fc", "arch.budget=10"), None, [], live=False)
     assert record["status"] == "failed" and record["budget"] == 10
     assert record["error"].startswith("BudgetError: arch.budget=10 cannot be met")

@@ -16,6 +16,7 @@ from shiftbench.models import build_model
 from shiftbench.records import RECORD_FILE
 from shiftbench.training import Checkpointing, seed_everything, train
 from shiftbench.config import validate
+from tests.conftest import home, home_of_config
 
 
 class Killed(BaseException):
@@ -84,23 +85,24 @@ def test_a_job_killed_after_a_checkpoint_resumes_and_says_so(small_config, tmp_p
         return original(*args, **kwargs)
 
     monkeypatch.setattr(shiftbench.training, "evaluate", dies_in_epoch_five)
+    folder = home_of_config(config)
     with pytest.raises(Killed):
-        run_job(config, tmp_path, [], live=False)
-    assert (tmp_path / CHECKPOINT_FILE).is_file() and not (tmp_path / RECORD_FILE).exists()
+        run_job(config, None, [], live=False)
+    assert (folder / CHECKPOINT_FILE).is_file() and not (folder / RECORD_FILE).exists()
     monkeypatch.setattr(shiftbench.training, "evaluate", original)
-    record = run_job(config, tmp_path, [], live=False)
+    record = run_job(config, None, [], live=False)
     assert record["status"] == "completed" and record["resumed_from_epoch"] == 5
-    assert not (tmp_path / CHECKPOINT_FILE).exists()
+    assert not (folder / CHECKPOINT_FILE).exists()
 
 
 def test_the_checkpoint_interval_does_not_change_what_a_job_is(small_config, tmp_path):
-    first = run_job(small_config("train.checkpoint_every=1"), tmp_path, [], live=False)
-    again = run_job(small_config("train.checkpoint_every=0"), tmp_path, [], live=False)
+    first = run_job(small_config("train.checkpoint_every=1"), None, [], live=False)
+    again = run_job(small_config("train.checkpoint_every=0"), None, [], live=False)
     assert again.get("skipped") and again["config_hash"] == first["config_hash"]
 
 
 def test_a_diverging_job_fails_with_the_reason_and_the_epoch(small_config, tmp_path):
-    record = run_job(small_config("train.lr=1e30", "train.optimizer=sgd"), tmp_path, [], live=False)
+    record = run_job(small_config("train.lr=1e30", "train.optimizer=sgd"), None, [], live=False)
     assert record["status"] == "failed" and record["failed_epoch"] == 1
     assert record["error"] == "TrainingDiverged: the training loss became nan in epoch 1"
 
@@ -115,8 +117,8 @@ def test_a_job_over_its_time_limit_stops_with_the_best_weights_so_far(small_conf
         return clock["now"]
 
     monkeypatch.setattr(shiftbench.training.time, "perf_counter", fake_clock)
-    record = run_job(small_config("train.max_seconds=0.2", "train.epochs=50", "train.patience=50"), tmp_path, [], live=False)
+    record = run_job(small_config("train.max_seconds=0.2", "train.epochs=50", "train.patience=50"), None, [], live=False)
     assert record["status"] == "timed_out" and 1 <= record["epochs_run"] < 50
     assert record["train_seconds"] >= 0.2 and 0.0 <= record["test_accuracy"] <= 1.0
-    written = json.loads((tmp_path / RECORD_FILE).read_text())
+    written = json.loads((home(record) / RECORD_FILE).read_text())
     assert written["status"] == "timed_out" and written["best_epoch"] <= written["epochs_run"]

@@ -12,7 +12,7 @@ from hydra.core.config_store import ConfigStore
 from shiftbench.config import TrainConfig
 from shiftbench.registry import DATASETS, FAMILIES, GRAPH_SOURCES
 
-_registered = False
+_stored: set[tuple[str, str]] = set()
 
 
 def schema_defaults(schema: type) -> dict[str, Any]:
@@ -26,13 +26,13 @@ def schema_defaults(schema: type) -> dict[str, Any]:
 
 def register_defaults() -> None:
     """Store one config node per registered component (``arch=fc``, ``graph=knn``, ...) and
-    ``train=default``; idempotent."""
-    global _registered
-    if _registered:
-        return
-    _registered = True
+    ``train=default``; components registered since the last call are added."""
     store = ConfigStore.instance()
     for group, key, registry in (("data", "source", DATASETS), ("graph", "source", GRAPH_SOURCES), ("arch", "family", FAMILIES)):
         for entry in registry:
-            store.store(group=group, name=entry.name, node={**schema_defaults(entry.schema), key: entry.name})
-    store.store(group="train", name="default", node=schema_defaults(TrainConfig))
+            if (group, entry.name) not in _stored:
+                _stored.add((group, entry.name))
+                store.store(group=group, name=entry.name, node={**schema_defaults(entry.schema), key: entry.name})
+    if ("train", "default") not in _stored:
+        _stored.add(("train", "default"))
+        store.store(group="train", name="default", node=schema_defaults(TrainConfig))

@@ -96,7 +96,7 @@ def fit_family(
             print(f"note: graph {record.graph}: {note}", flush=True)
         shift = shared(f"shift/split{run.split}", key, lambda: shift_operator(graph, run.graph.operator, run.graph.scale))
     arch = run.arch
-    if arch.budget is not None:
+    if getattr(arch, "budget", None) is not None:
         record.budget = arch.budget
         arch, _ = fit_budget(arch, arch.budget, dataset.nodes, dataset.features, dataset.classes)
         record.sized_widths = getattr(arch, width_key(arch.family))

@@ -159,14 +159,12 @@ DATASETS: Registry[DatasetSource] = Registry("dataset", "data.source")
 OPERATORS: Registry[Operator] = Registry("shift operator", "graph.operator")
 TASKS: Registry[Task] = Registry("task", "task")
 
-_loaded = False
+_loaded: set[str] = set()
 
 
 def load_components() -> None:
-    """Import every component module once, so every registry is complete."""
-    global _loaded
-    if _loaded:
-        return
-    _loaded = True
+    """Import every component module not imported yet, so every registry is complete."""
     for module in COMPONENT_MODULES:
-        importlib.import_module(module)
+        if module not in _loaded:
+            _loaded.add(module)
+            importlib.import_module(module)

@@ -208,7 +208,7 @@ def write_report(
     paths = list(paths)
     records = filter_records(load_records(paths), where)
     if records.empty:
-        raise ValueError(f"no records (result.json) found under {', '.join(map(str, paths))}")
+        raise ValueError(f"no records (record.json) found under {', '.join(map(str, paths))}")
     table = summary_table(records, by)
     if curves is not None and not 0 <= curves < len(table):
         raise ValueError(f"--curves {curves} is not accepted; accepted: a row number 0..{len(table) - 1}")

@@ -59,8 +59,8 @@ CONFIG_CASES: list[tuple[list[str], str]] = [
     (["train.batch_size=1.5"], "train.batch_size=1.5 has the wrong type; accepted: an integer"),
     (["arch.foo=1"], "unknown key arch.foo (arch family graph_conv); accepted keys: family, order, channels, "
                      "nonlinearity, readout, dropout, normalization, budget"),
-    (["+foo=1"], "unknown key foo; accepted top-level keys: seed, results_dir, device, force, data, graph, arch, train"),
-    (["arch=cnn"], "arch='cnn' is not accepted; accepted: one of fc, graph_conv, line_conv, nearest"),
+    (["+foo=1"], "unknown key foo; accepted top-level keys: seed, split, task, results_dir, device, force, data, graph, arch, train"),
+    (["arch=cnn"], "arch='cnn' is not accepted; accepted: one of fc, forest, graph_conv, lda, line_conv, logistic, nearest, qda"),
     (["graph=ring"], "graph='ring' is not accepted; accepted: one of correlation, cycle, file, geometric, grid, knn, "
                      "line, native, path, rewired, sbm"),
     (["hydra/launcher=nope"], "hydra/launcher='nope' is not accepted; accepted: one of basic, joblib, slurm_cpu, "
@@ -86,7 +86,7 @@ CONFIG_CASES: list[tuple[list[str], str]] = [
     (["graph=grid", "graph.rows=4"], "graph.rows*graph.cols=4*8=32 is not accepted; accepted: rows*cols equal to the "
                                      "data's 64 nodes"),
     (["graph=knn", "graph.neighbors=64"], "graph.neighbors=64 is not accepted; accepted: fewer than the data's 64 nodes"),
-    (["-m", "arch=fc,cnn"], "arch='cnn' is not accepted; accepted: one of fc, graph_conv, line_conv, nearest"),
+    (["-m", "arch=fc,cnn"], "arch='cnn' is not accepted; accepted: one of fc, forest, graph_conv, lda, line_conv, logistic, nearest, qda"),
     (["-m", "arch.order=1,2,-3"], "arch.order=-3 is not accepted; accepted: an integer >= 0"),
     (["-m", "+experiment=nope"], "experiment='nope' is not accepted; accepted: one of budget, claims, families, "
                                  "graphs, orders, scaling"),

@@ -4,7 +4,9 @@ import numpy as np
 import pytest
 from sklearn.linear_model import LogisticRegression
 
-from shiftbench.config import GraphConvConfig, TrainConfig
+from shiftbench.config import TrainConfig
+
+from shiftbench.models.shift_polynomial_net import GraphConvConfig
 from shiftbench.data.sensor_regimes import regime_responses, sensor_regimes
 from shiftbench.graphs.operators import shift_operator
 from shiftbench.models import build_model

@@ -6,7 +6,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from shiftbench.config import FcConfig, LineConvConfig, TrainConfig
+from shiftbench.config import TrainConfig
+
+from shiftbench.models.fc import FcConfig
+
+from shiftbench.models.line_conv import LineConvConfig
 from shiftbench.data.ucr import shipped_names, ucr
 from shiftbench.errors import ConfigError
 from shiftbench.models import build_model

@@ -7,7 +7,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from shiftbench.config import CorrelationGraphConfig, GeometricGraphConfig, KnnGraphConfig
+from shiftbench.graphs.from_signals import CorrelationGraphConfig
+
+from shiftbench.graphs.sources import GeometricGraphConfig, KnnGraphConfig
 from shiftbench.data import sensor_regimes
 from shiftbench.data.files import load_signal_file
 from shiftbench.graphs.sources import build_graph, geometric_graph

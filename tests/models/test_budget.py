@@ -3,7 +3,11 @@
 import numpy as np
 import pytest
 
-from shiftbench.config import FcConfig, GraphConvConfig, LineConvConfig
+from shiftbench.models.fc import FcConfig
+
+from shiftbench.models.shift_polynomial_net import GraphConvConfig
+
+from shiftbench.models.line_conv import LineConvConfig
 from shiftbench.graphs.operators import shift_operator
 from shiftbench.graphs.sources import knn_graph
 from shiftbench.models import build_model

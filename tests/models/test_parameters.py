@@ -55,7 +55,11 @@ def test_planned_count_equals_the_count_of_the_built_model(arch):
     # Reference: torch's own parameter list (count_parameters sums Parameter.numel()).
     from dataclasses import replace
 
-    from shiftbench.config import FcConfig, GraphConvConfig, LineConvConfig
+    from shiftbench.models.fc import FcConfig
+
+    from shiftbench.models.shift_polynomial_net import GraphConvConfig
+
+    from shiftbench.models.line_conv import LineConvConfig
     from shiftbench.models import build_model
     from shiftbench.models.parameters import planned_parameters
 
