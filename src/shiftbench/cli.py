@@ -112,3 +112,31 @@ def claims_main(arguments: list[str] | None = None) -> None:
     if options.seeds < 1:
         parser.exit(2, f"shiftbench-claims: error: --seeds {options.seeds} is not accepted; accepted: an integer >= 1\n")
     print(write_claims([options.path], options.out or options.path, tuple(range(options.seeds))))
+
+
+def decide_main(arguments: list[str] | None = None) -> None:
+    """``shiftbench-decide [KEY=VALUE ...]``: the decision study (see :mod:`decision`)."""
+    quiet_on_closed_pipe()
+    arguments = sys.argv[1:] if arguments is None else arguments
+    if any(a in ("-h", "--help") for a in arguments):
+        print(DECIDE_HELP)
+        return
+    from shiftbench.decision_study import run_study
+
+    try:
+        print(run_study(arguments, CONFIG_DIR))
+    except ConfigError as error:
+        fail(str(error))
+
+
+DECIDE_HELP = """usage: shiftbench-decide [KEY=VALUE ...]
+
+Tune every candidate on equal budgets, retrain it on random splits x seeds, compare each with the
+best graph-free candidate in pairs, and say in one sentence per candidate whether it earns its keep.
+
+  decision.KEY=VALUE   the study's settings (configs/decision.yaml): trials, splits, seeds, rope,
+                       alpha, sampler_seed, folder, candidates
+  data=A[,B...]        the dataset(s); several give a rank test across datasets
+  KEY=VALUE            any job override, given to every job (train.epochs=50, graph.neighbors=8)
+
+Writes verdict.md, verdict.json, units.csv and plots to results_dir/decision (decision.folder)."""

@@ -314,8 +314,9 @@ def _cost_phrase(cost: dict[str, Any]) -> str:
         size = f"{parameters:,.0f} trainable parameters against none"
     else:
         size = "no trainable parameters"
-    time = cost["train_seconds_ratio"]
-    return size + ("" if time is None else f" and {time:.2g}x the training time")
+    time, inference = cost["train_seconds_ratio"], cost["inference_ratio"]
+    phrase = size + ("" if time is None else f", {time:.2g}x the training time")
+    return phrase + ("" if inference is None else f" and {inference:.2g}x the inference time per sample")
 
 
 def sentence(name: str, reference: str, outcome: str, comparison: Any, holm_p: float, cost: dict[str, Any]) -> str:

@@ -8,6 +8,8 @@ on. ``run_job`` reads as: skip, new record, execute, finish.
 
 from __future__ import annotations
 
+import contextlib
+import io
 import resource
 import traceback
 from collections.abc import Callable
@@ -189,7 +191,9 @@ def finish(record: Record, home: Path, curve: list[dict[str, float]]) -> Path:
     return path
 
 
-def run_job(config: DictConfig, launch: Path | None, overrides: list[str], live: bool) -> dict[str, Any]:
+def run_job(
+    config: DictConfig, launch: Path | None, overrides: list[str], live: bool, quiet: bool = False
+) -> dict[str, Any]:
     """Validate ``config`` and run its job in its home in the store (``results_dir/store/<hash>``),
     then print one summary line and return the record; ``launch`` (a sweep's or study's folder)
     gets a pointer to the home.
@@ -206,7 +210,8 @@ def run_job(config: DictConfig, launch: Path | None, overrides: list[str], live:
     def skip(previous: dict[str, Any], outcome: str, why: str) -> dict[str, Any]:
         if launch is not None:
             note_launch(launch, home, digest, overrides, outcome)
-        print(f"skipped ({why}): {summary_line(previous)}", flush=True)
+        if not quiet:
+            print(f"skipped ({why}): {summary_line(previous)}", flush=True)
         return {**previous, "skipped": True}
 
     done = None if run.force else finished_record(home)
@@ -223,7 +228,8 @@ def run_job(config: DictConfig, launch: Path | None, overrides: list[str], live:
         if run.force and (aside := set_aside(home)) is not None:
             print(f"force: the earlier record is kept in {aside}", flush=True)
         record = new_record(run, plain, digest, overrides)
-        curve = execute(run, record, home, live)
+        with contextlib.redirect_stdout(io.StringIO()) if quiet else contextlib.nullcontext():
+            curve = execute(run, record, home, live)
         finish(record, home, curve)
     finally:
         release(home)
@@ -231,7 +237,8 @@ def run_job(config: DictConfig, launch: Path | None, overrides: list[str], live:
         outcome = "failed" if record.status not in FINAL_STATUSES else "resumed" if record.resumed_from_epoch else "trained"
         note_launch(launch, home, digest, overrides, outcome)
     written = record.as_dict()
-    print(summary_line(written), flush=True)
+    if not quiet:
+        print(summary_line(written), flush=True)
     return written
 
 

@@ -12,10 +12,11 @@ LOG_EVERY = 10
 class EpochProgress:
     """Called with each epoch's curve row; ``live`` rewrites one terminal line in place."""
 
-    def __init__(self, epochs: int, live: bool, stream: TextIO = sys.stdout) -> None:
+    def __init__(self, epochs: int, live: bool, stream: TextIO | None = None) -> None:
         self.epochs = epochs
         self.live = live
-        self.stream = stream
+        # Read at construction, not at import, so a redirected stdout is honoured.
+        self.stream = stream or sys.stdout
 
     def __call__(self, row: dict[str, float]) -> None:
         epoch = int(row["epoch"])

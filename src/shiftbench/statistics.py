@@ -54,7 +54,7 @@ def compare_paired(candidate: np.ndarray, reference: np.ndarray, rope: float) ->
     spread = float(differences.std(ddof=1)) if count > 1 else float("nan")
     if count < 2:
         low = high = t_p = wilcoxon_p = float("nan")
-    elif spread == 0:
+    elif spread < 1e-12:  # equal differences (up to rounding): no spread to test against
         low = high = mean
         t_p = 1.0 if mean == 0 else 0.0
         wilcoxon_p = 1.0 if mean == 0 else float(stats.wilcoxon(differences).pvalue)

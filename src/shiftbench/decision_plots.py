@@ -1,0 +1,98 @@
+"""Plots of the decision study: accuracy against cost (with the Pareto front), paired differences
+per unit, and the critical-difference diagram across datasets. Each returns the file it wrote."""
+
+from __future__ import annotations
+
+import io
+from pathlib import Path
+from typing import Any
+
+import matplotlib
+
+matplotlib.use("Agg")  # files only: no display is needed or assumed
+
+import matplotlib.pyplot as plt  # noqa: E402
+import numpy as np  # noqa: E402
+import pandas as pd  # noqa: E402
+import scikit_posthocs  # noqa: E402
+
+from shiftbench.records import write_atomic  # noqa: E402
+from shiftbench.registry import FAMILIES  # noqa: E402
+
+
+def _save(figure: plt.Figure, path: Path) -> Path:
+    buffer = io.BytesIO()
+    figure.savefig(buffer, format="png", dpi=110, bbox_inches="tight")
+    plt.close(figure)
+    return write_atomic(path, buffer.getvalue())
+
+
+def pareto_front(points: pd.DataFrame) -> list[str]:
+    """Candidates no other beats on both axes (higher accuracy, lower training time)."""
+    front = []
+    for name, row in points.iterrows():
+        dominated = ((points["accuracy"] >= row["accuracy"]) & (points["seconds"] <= row["seconds"])
+                     & ((points["accuracy"] > row["accuracy"]) | (points["seconds"] < row["seconds"]))).any()
+        if not dominated:
+            front.append(name)
+    return front
+
+
+def pareto(units: pd.DataFrame, candidates: list[Any], path: Path) -> Path:
+    """Mean test accuracy (95% t interval, clipped to [0, 1]) against mean training seconds (log),
+    one marker per candidate; the Pareto front joined by a line."""
+    from scipy import stats
+
+    completed = units[units["status"].isin(["completed", "timed_out"])]
+    grouped = completed.groupby("candidate")
+    points = pd.DataFrame({
+        "accuracy": grouped["test_accuracy"].mean(),
+        "seconds": grouped["train_seconds"].mean().clip(lower=1e-3),
+        "half": grouped["test_accuracy"].agg(
+            lambda x: stats.t.ppf(0.975, len(x) - 1) * x.std(ddof=1) / np.sqrt(len(x)) if len(x) > 1 else 0.0
+        ).fillna(0.0),
+    })
+    figure, axis = plt.subplots(figsize=(7, 4.5))
+    for candidate in candidates:
+        if candidate.name not in points.index:
+            continue
+        row = points.loc[candidate.name]
+        low, high = max(0.0, row.accuracy - row.half), min(1.0, row.accuracy + row.half)
+        axis.errorbar(row.seconds, row.accuracy, yerr=[[row.accuracy - low], [high - row.accuracy]],
+                      marker=FAMILIES[candidate.family].marker, linestyle="none", capsize=3, label=candidate.name)
+    front = points.loc[pareto_front(points)].sort_values("seconds")
+    axis.plot(front["seconds"], front["accuracy"], color="grey", linewidth=1, zorder=0, label="Pareto front")
+    axis.set_xscale("log")
+    axis.set_xlabel("training seconds per run (mean, log)")
+    axis.set_ylabel("test accuracy (mean, 95% CI)")
+    axis.legend(fontsize=7, loc="best")
+    axis.grid(alpha=0.3)
+    return _save(figure, path)
+
+
+def paired_differences(result: dict[str, Any], path: Path) -> Path:
+    """Each compared candidate's per-unit differences from the reference, the mean with its
+    interval, and the ROPE as a band."""
+    compared = [entry for entry in result["candidates"] if "comparison" in entry]
+    figure, axis = plt.subplots(figsize=(7, 0.5 + 0.45 * max(len(compared), 1)))
+    rope = result["rope"]
+    axis.axvspan(-rope, rope, color="grey", alpha=0.2, label=f"ROPE ±{rope}")
+    for row, entry in enumerate(compared):
+        comparison = entry["comparison"]
+        differences = np.asarray(comparison["differences"])
+        axis.scatter(differences, np.full(len(differences), row) + np.linspace(-0.15, 0.15, len(differences)), s=10, alpha=0.6)
+        axis.errorbar(comparison["mean"], row, xerr=[[comparison["mean"] - comparison["low"]], [comparison["high"] - comparison["mean"]]],
+                      color="black", marker="|", capsize=4)
+    axis.set_yticks(range(len(compared)), [entry["candidate"] for entry in compared], fontsize=8)
+    axis.axvline(0, color="black", linewidth=0.5)
+    axis.set_xlabel(f"test accuracy minus {result['reference']}'s, per paired unit")
+    axis.legend(fontsize=7, loc="lower right")
+    return _save(figure, path)
+
+
+def critical_difference(test: Any, path: Path) -> Path:
+    """The critical-difference diagram (scikit-posthocs) of a :class:`statistics.RankTest`."""
+    figure, axis = plt.subplots(figsize=(7, 2.5))
+    scikit_posthocs.critical_difference_diagram(test.ranks, test.nemenyi, ax=axis)
+    axis.set_title(f"average ranks; Nemenyi CD = {test.critical_difference:.2f}", fontsize=9)
+    return _save(figure, path)

@@ -1,0 +1,78 @@
+"""The decision study end to end on small budgets: refusals before any job, tuning that never
+reads the test split, and verdicts on planted data."""
+
+import json
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from shiftbench.cli import CONFIG_DIR
+from shiftbench.decision_study import run_study
+from shiftbench.errors import ConfigError
+
+SMALL = ["train.epochs=15", "train.patience=5", "decision.splits=2", "decision.seeds=1", "decision.trials=3"]
+FC_VS_QDA = "decision.candidates=[{name: fc, overrides: [arch=fc]}, {name: qda, overrides: [arch=qda]}]"
+
+
+@pytest.mark.parametrize(("setting", "message"), [
+    ("decision.trials=0", "decision.trials=0 is not accepted; accepted: an integer >= 1"),
+    ("decision.splits=-1", "decision.splits=-1 is not accepted; accepted: an integer >= 1"),
+    ("decision.budget=3", "accepted keys: decision.candidates"),
+    ("decision.rope=2", "decision.rope=2 is not accepted"),
+    ("decision.candidates=[{name: g, overrides: [arch=graph_conv]}]", "at least one graph-free candidate"),
+])
+def test_bad_settings_are_refused_in_one_line_before_any_job(tmp_path, setting, message):
+    with pytest.raises(ConfigError, match=message.replace("[", r"\[")):
+        run_study([f"results_dir={tmp_path}", setting], CONFIG_DIR)
+    assert not (tmp_path / "store").exists()
+
+
+def planted_file(path: Path, poison_test: bool) -> Path:
+    """Signals whose class shifts the mean of the first nodes; a fixed split. With
+    ``poison_test`` the test labels are shuffled: the study must tune exactly as before."""
+    rng = np.random.default_rng(0)
+    labels = np.repeat([0, 1, 2], 40)
+    signals = rng.standard_normal((120, 12)) + labels[:, None] * (np.arange(12) < 4)
+    split = np.tile([0, 0, 0, 1, 2], 24)
+    if poison_test:
+        test = split == 2
+        labels = labels.copy()
+        labels[test] = rng.permutation(labels[test])
+    np.savez(path, signals=signals.astype(np.float32), labels=labels, split=split)
+    return path
+
+
+def test_tuning_never_reads_the_test_split(tmp_path):
+    chosen = []
+    for poison in (False, True):
+        data = planted_file(tmp_path / f"data_{poison}.npz", poison)
+        folder = tmp_path / f"run_{poison}"
+        run_study([f"results_dir={folder}", "data=file", f"data.path={data}", *SMALL, "decision.splits=1", FC_VS_QDA],
+                  CONFIG_DIR, say=lambda line: None)
+        result = json.loads((folder / "decision" / "verdict.json").read_text())
+        chosen.append((result["tuning"]["fc"]["chosen"], result["tuning"]["fc"]["best_val_accuracy"]))
+    assert chosen[0] == chosen[1]
+
+
+def test_a_badly_configured_family_is_judged_by_its_tuned_figure(tmp_path):
+    # fc's configured learning rate is far off (10); the tuner searches train.lr, and the verdict
+    # reads the evaluation of the tuned setting, not the default's.
+    data = planted_file(tmp_path / "data.npz", poison_test=False)
+    run_study([f"results_dir={tmp_path}", "data=file", f"data.path={data}", "train.lr=10", *SMALL, FC_VS_QDA],
+              CONFIG_DIR, say=lambda line: None)
+    result = json.loads((tmp_path / "decision" / "verdict.json").read_text())
+    (lr,) = [line for line in result["tuning"]["fc"]["chosen"] if line.startswith("train.lr=")]
+    assert float(lr.split("=")[1]) < 0.05
+    assert result["mean_test_accuracy"]["fc"] > 0.6  # chance is 1/3; lr=10 diverges or sits at chance
+
+
+def test_a_rerun_of_the_study_trains_nothing(tmp_path):
+    data = planted_file(tmp_path / "data.npz", poison_test=False)
+    arguments = [f"results_dir={tmp_path}", "data=file", f"data.path={data}", *SMALL, FC_VS_QDA]
+    run_study(arguments, CONFIG_DIR, say=lambda line: None)
+    records = {path: path.stat().st_mtime_ns for path in (tmp_path / "store").rglob("record.json")}
+    first = (tmp_path / "decision" / "verdict.json").read_text()
+    run_study(arguments, CONFIG_DIR, say=lambda line: None)
+    assert {path: path.stat().st_mtime_ns for path in (tmp_path / "store").rglob("record.json")} == records
+    assert json.loads((tmp_path / "decision" / "verdict.json").read_text())["candidates"] == json.loads(first)["candidates"]
