@@ -57,3 +57,26 @@ def test_records_of_the_old_layout_are_read_with_a_note(tmp_path):
     with pytest.warns(UserWarning, match="1 records of the old layout"):
         frame = load_records([tmp_path])
     assert sorted(frame["schema_version"]) == [1, 2]
+
+
+def test_an_old_results_folder_moves_into_the_store_and_a_rerun_skips_its_jobs(small_config, tmp_path):
+    # A record written before the store (version 1, result.json in a job folder), made by hand
+    # from a real run's record with the keys version 2 added taken out.
+    from shiftbench.job import run_job
+    from shiftbench.store import migrate
+
+    config = small_config("arch=fc", f"results_dir={tmp_path / 'scratch'}")
+    fresh = run_job(config, None, [], live=False)
+    old_config = {k: v for k, v in fresh["config"].items() if k not in ("split", "task")}
+    old_record = {**fresh, "schema_version": 1, "config": old_config}
+    for key in ("split", "task"):
+        old_record.pop(key)
+    (tmp_path / "old" / "job0").mkdir(parents=True)
+    (tmp_path / "old" / "job0" / "result.json").write_text(json.dumps(old_record))
+    assert migrate(tmp_path / "old", tmp_path / "scratch") == (0, 1)  # the same config is already there
+    (tmp_path / "old" / "job1").mkdir()
+    (tmp_path / "old" / "job1" / "result.json").write_text(json.dumps(old_record))
+    assert migrate(tmp_path / "old", tmp_path / "new") == (1, 0)
+    assert not list((tmp_path / "old").rglob("result.json"))
+    again = run_job(small_config("arch=fc", f"results_dir={tmp_path / 'new'}"), None, [], live=False)
+    assert again["skipped"] is True and (tmp_path / "new" / "store" / again["config_hash"] / "record.json").is_file()

@@ -18,6 +18,7 @@ from shiftbench.config import ConfigError
 from shiftbench.job import run_job
 from shiftbench.preflight import preflight
 from shiftbench.config_store import register_defaults
+from shiftbench.records import MANIFEST_FILE as MANIFEST
 from shiftbench.report import write_report
 from shiftbench.runtime import keep_freed_memory, share_cores
 
@@ -140,3 +141,21 @@ best graph-free candidate in pairs, and say in one sentence per candidate whethe
   KEY=VALUE            any job override, given to every job (train.epochs=50, graph.neighbors=8)
 
 Writes verdict.md, verdict.json, units.csv and plots to results_dir/decision (decision.folder)."""
+
+
+def migrate_main(arguments: list[str] | None = None) -> None:
+    """``shiftbench-migrate OLD_FOLDER RESULTS_DIR``: move records of the old layout into the store."""
+    from shiftbench.store import migrate
+
+    parser = argparse.ArgumentParser(
+        prog="shiftbench-migrate",
+        description="Move the records of an old results folder (result.json in job folders) into the store.",
+    )
+    parser.add_argument("old", type=Path, help="a folder of the old layout (a study or sweep folder)")
+    parser.add_argument("results_dir", type=Path, help="the results_dir whose store receives them")
+    options = parser.parse_args(arguments)
+    if not options.old.is_dir():
+        parser.exit(2, f"shiftbench-migrate: error: no such folder: {options.old}\n")
+    moved, already = migrate(options.old, options.results_dir)
+    print(f"moved {moved} records into {options.results_dir / 'store'}; {already} were there already; "
+          f"{options.old} now points at their homes ({MANIFEST})")

@@ -15,8 +15,13 @@ import numpy as np  # noqa: E402
 import pandas as pd  # noqa: E402
 
 from shiftbench.records import CURVE_FILE, write_atomic  # noqa: E402
+from shiftbench.registry import FAMILIES  # noqa: E402
 
-MARKERS = {"fc": "s", "line_conv": "^", "graph_conv": "o", "nearest": "x"}
+
+
+def marker(family: str) -> str:
+    """The family's marker as its registry entry declares it (``d`` for names not registered)."""
+    return FAMILIES[family].marker if family in FAMILIES else "d"
 
 
 def _save(figure: plt.Figure, path: Path) -> Path:
@@ -40,7 +45,7 @@ def accuracy_vs_parameters(table: pd.DataFrame, path: Path) -> tuple[Path, pd.Da
     for family, group in points.groupby("family", sort=True):
         axis.errorbar(
             group["x"], group["test_accuracy_mean"], yerr=group["test_accuracy_ci95"].fillna(0).to_numpy(),
-            marker=MARKERS.get(family, "d"), linestyle="none", capsize=3, label=family,
+            marker=marker(family), linestyle="none", capsize=3, label=family,
         )
     axis.set_xscale("log")
     axis.set_xlabel("trainable parameters (log)")
@@ -60,7 +65,7 @@ def accuracy_vs_order(table: pd.DataFrame, path: Path) -> tuple[Path, pd.DataFra
         group = group.sort_values("order")
         axis.errorbar(
             group["order"].astype(float), group["test_accuracy_mean"], yerr=group["test_accuracy_ci95"].fillna(0).to_numpy(),
-            marker=MARKERS.get(group["family"].iloc[0], "d"), capsize=3,
+            marker=marker(group["family"].iloc[0]), capsize=3,
             label=_label(group.iloc[0], ["family", "graph", "operator"]),
         )
     axis.set_xlabel("filter order K")
@@ -78,12 +83,12 @@ def scaling(table: pd.DataFrame, path: Path) -> tuple[Path, pd.DataFrame]:
     figure, (accuracy, parameters) = plt.subplots(1, 2, figsize=(10, 4))
     for family, group in points.groupby("family", sort=True):
         group = group.sort_values("nodes")
-        marker = MARKERS.get(family, "d")
+        shape = marker(family)
         accuracy.errorbar(
             group["nodes"].astype(float), group["test_accuracy_mean"], yerr=group["test_accuracy_ci95"].fillna(0).to_numpy(),
-            marker=marker, capsize=3, label=family,
+            marker=shape, capsize=3, label=family,
         )
-        parameters.plot(group["nodes"].astype(float), group["parameters"].astype(float).clip(lower=1), marker=marker, label=family)
+        parameters.plot(group["nodes"].astype(float), group["parameters"].astype(float).clip(lower=1), marker=shape, label=family)
     for axis in (accuracy, parameters):
         axis.set_xscale("log")
         axis.set_xlabel("nodes (log)")

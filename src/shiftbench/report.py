@@ -12,7 +12,7 @@ import pandas as pd
 from scipy import stats
 
 from shiftbench import plots
-from shiftbench.records import FINAL_STATUSES, computed_content, load_records, write_atomic
+from shiftbench.records import FINAL_STATUSES, MANIFEST_FILE, computed_content, load_records, read_manifest, write_atomic
 
 # What tells settings apart, in the order tables show it.
 DESCRIBE = ["data", "nodes", "graph", "operator", "family", "order", "budget"]
@@ -190,6 +190,28 @@ def format_terminal(table: pd.DataFrame) -> str:
     return "\n".join([line(headers), line(["-" * w for w in widths]), *map(line, rows)])
 
 
+OUTCOMES = ("trained", "resumed", "skipped", "claimed", "failed")
+
+
+def launch_outcomes(paths: Iterable[Path]) -> dict[str, int]:
+    """What the launches under ``paths`` did, counting each config once per launch folder (its
+    latest line): trained, resumed, skipped (done before), claimed (trained by another process
+    at the time), failed."""
+    counts = dict.fromkeys(OUTCOMES, 0)
+    for path in paths:
+        manifests = [path / MANIFEST_FILE] if (path / MANIFEST_FILE).is_file() else list(path.rglob(MANIFEST_FILE)) if path.is_dir() else []
+        for manifest in manifests:
+            latest = {entry["config_hash"]: entry.get("outcome") for entry in read_manifest(manifest.parent)}
+            for outcome in latest.values():
+                if outcome in counts:
+                    counts[outcome] += 1
+    return counts
+
+
+def _outcomes_line(counts: dict[str, int]) -> str:
+    return "jobs: " + ", ".join(f"{counts[name]} {name}" for name in OUTCOMES) if any(counts.values()) else ""
+
+
 def _constants_line(constants: dict[str, str]) -> str:
     return "  ".join(f"{key}={value}" for key, value in constants.items())
 
@@ -219,7 +241,8 @@ def write_report(
     if curves is not None:
         figures.append(plots.learning_curves(table.loc[curves, "paths"], out / f"curves_row{curves}.png")[0])
     constants, shown = split_constants(table)
-    markdown = ["# Summary", ""]
+    outcomes = _outcomes_line(launch_outcomes(paths))
+    markdown = ["# Summary", ""] + ([outcomes + ".", ""] if outcomes else [])
     if constants:
         markdown += [f"All rows: {', '.join(f'`{k}={v}`' for k, v in constants.items())}.", ""]
     markdown += [format_markdown(shown)]
@@ -228,4 +251,4 @@ def write_report(
     text = format_terminal(shown)
     head = _constants_line(constants)
     written = ", ".join(figure.name for figure in figures)
-    return "\n".join(filter(None, [head, text, f"plots: {written}" if written else ""]))
+    return "\n".join(filter(None, [outcomes, head, text, f"plots: {written}" if written else ""]))

@@ -23,7 +23,10 @@ from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any
 
-from shiftbench.records import CURVE_FILE, FINAL_STATUSES, MANIFEST_FILE, RECORD_FILE
+from shiftbench.records import (
+    CURVE_FILE, FINAL_STATUSES, MANIFEST_FILE, OLD_RECORD_FILE, RECORD_FILE, SCHEMA_VERSION, config_hash, write_atomic,
+    write_record,
+)
 
 STORE_FOLDER = "store"
 CLAIM_FILE = "claim"
@@ -141,3 +144,38 @@ def note_launch(launch: Path, home: Path, config_hash: str, overrides: list[str]
         os.fsync(handle)
     finally:
         os.close(handle)
+
+
+def migrate(old: Path, results_dir: Path) -> tuple[int, int]:
+    """Move every record of the old layout (``result.json`` in job folders) under ``old`` into
+    the store under ``results_dir``, and leave ``old`` a launch folder pointing at the homes.
+
+    A version-1 config gains the keys version 2 added with the values that reproduce it
+    (``split: 0``, ``task: classification``), so its hash is the one a rerun would compute.
+    Returns how many records were moved, and how many were already in the store (those old
+    files are removed too: the store's record wins).
+    """
+    moved = already = 0
+    for path in sorted(old.rglob(OLD_RECORD_FILE)):
+        try:
+            record = json.loads(path.read_text(encoding="utf-8"))
+        except (OSError, ValueError):
+            continue
+        if not isinstance(record, dict) or record.get("schema_version") != 1 or not isinstance(record.get("config"), dict):
+            continue
+        config = {"split": 0, "task": "classification", **record["config"]}
+        digest = config_hash(config)
+        home = home_of(results_dir, digest)
+        upgraded = {**record, "schema_version": SCHEMA_VERSION, "config": config, "config_hash": digest, "split": 0,
+                    "task": "classification"}
+        if finished_record(home) is None:
+            write_record(home, upgraded)
+            if (path.parent / CURVE_FILE).is_file():
+                write_atomic(home / CURVE_FILE, (path.parent / CURVE_FILE).read_bytes())
+            moved += 1
+        else:
+            already += 1
+        note_launch(old, home, digest, record.get("overrides", []), "migrated")
+        path.unlink()
+        (path.parent / CURVE_FILE).unlink(missing_ok=True)
+    return moved, already
