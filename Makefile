@@ -1,5 +1,5 @@
 # Three commands: `make run` (the families study and its table), `make test`, and `make bench`
-# (layer and end-to-end benchmarks, written to results/benchmarks/).
+# (layer, end-to-end and decision-study benchmarks, written to results/benchmarks/).
 # Both create .venv when it is missing and install the CPU build of torch before the package,
 # so that no dependency pulls a CUDA build.
 PYTHON ?= python3
@@ -25,11 +25,12 @@ run: setup
 	$(BIN)/shiftbench-report results/families
 
 test: setup
-	$(BIN)/python -m pytest -q
+	$(BIN)/python -m pytest -q -n 2
 
 bench: setup
 	$(BIN)/python -m benchmarks.layers
 	$(BIN)/python -m benchmarks.end_to_end
+	$(BIN)/python -m benchmarks.decision
 
 clean:
-	rm -rf $(VENV) results/runs results/multirun results/families
+	rm -rf $(VENV) results/store results/sweeps results/families/jobs.jsonl

@@ -18,7 +18,8 @@ from shiftbench.data.dataset import Dataset
 from shiftbench.graphs.operators import operator_matrix, shift_operator
 from shiftbench.graphs.sources import cycle_graph, line_graph, path_graph
 from shiftbench.models import FullyConnected, ShiftPolynomialNet, LineConv
-from shiftbench.models.mapping import conv_weight_to_taps, line_conv_to_graph_conv
+from shiftbench.models.mapping import line_conv_to_graph_conv
+from shiftbench.models.shift_polynomial import kernel_to_taps
 from shiftbench.report import t_interval
 from shiftbench.training import seed_everything, train
 
@@ -85,7 +86,7 @@ def _parity(dataset: Dataset, seed: int, config: TrainConfig, taps_from: Callabl
 
 
 def line_graph_equivalence(
-    dataset: Dataset, seeds: tuple[int, ...] = (0, 1, 2), epochs: int = 20, taps_from: Callable = conv_weight_to_taps
+    dataset: Dataset, seeds: tuple[int, ...] = (0, 1, 2), epochs: int = 20, taps_from: Callable = kernel_to_taps
 ) -> Claim:
     """(a) weight transfer on the line graph, (b) training parity, (c) transfer on the cycle."""
     config = TrainConfig(epochs=epochs, patience=epochs)

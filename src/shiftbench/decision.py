@@ -167,10 +167,29 @@ def suggest(trial: Any, space: list[Dimension]) -> list[str]:
 RunJob = Callable[[list[str]], dict[str, Any]]
 
 
-def tune(candidate: Candidate, settings: Settings, run: RunJob, say: Callable[[str], None]) -> tuple[list[str], dict]:
+def configured_values(space: list[Dimension], configured: DictConfig) -> dict[str, Any]:
+    """The configured value of each dimension that the space can hold (a choice it lists, or a
+    number inside its range): the first trial starts from what the user configured."""
+    values = {}
+    for dimension in space:
+        value = OmegaConf.select(configured, dimension.key)
+        value = OmegaConf.to_container(value) if OmegaConf.is_config(value) else value
+        if dimension.choices:
+            if override_text(value) in dimension.choices:
+                values[dimension.key] = override_text(value)
+        elif isinstance(value, (int, float)) and dimension.low <= value <= dimension.high:
+            values[dimension.key] = int(value) if dimension.integer else float(value)
+    return values
+
+
+def tune(
+    candidate: Candidate, settings: Settings, run: RunJob, say: Callable[[str], None], configured: DictConfig | None = None
+) -> tuple[list[str], dict]:
     """Choose ``candidate``'s setting on validation accuracy; returns the chosen overrides and a
-    summary (trials run, failed trials, the best validation accuracy). Floors are not tuned
-    here: they choose on validation inside their own job."""
+    summary (trials run, failed trials, the best validation accuracy). The first trial is the
+    configured setting where the space holds it (``configured``: the candidate's composed
+    config), so tuning never ends below the default on validation. Floors are not tuned here:
+    they choose on validation inside their own job."""
     if FAMILIES[candidate.family].fit is not None:
         return [], {"trials": 0, "failed": 0, "best_val_accuracy": None, "note": "chooses its setting on validation itself"}
     import optuna
@@ -178,6 +197,8 @@ def tune(candidate: Candidate, settings: Settings, run: RunJob, say: Callable[[s
     optuna.logging.set_verbosity(optuna.logging.WARNING)
     sampler = optuna.samplers.TPESampler(seed=settings.sampler_seed)
     study = optuna.create_study(direction="maximize", sampler=sampler)
+    if configured is not None:
+        study.enqueue_trial(configured_values(settings.spaces[candidate.family], configured))
     failed = 0
     for number in range(settings.trials):
         trial = study.ask()
@@ -306,17 +327,21 @@ def _reference_sentence(name: str, means: pd.DataFrame) -> str:
     return f"{name} is the strongest graph-free candidate on validation (mean test accuracy {accuracy:.3f}): the others are compared with it."
 
 
+def _times(ratio: float) -> str:
+    return f"{ratio:,.0f}x" if ratio >= 10 else f"{ratio:.2g}x"
+
+
 def _cost_phrase(cost: dict[str, Any]) -> str:
     parameters, reference = cost["parameters"], cost["reference_parameters"]
     if parameters and reference:
-        size = f"{parameters / reference:.2g}x the parameters"
+        size = f"{_times(parameters / reference)} the parameters"
     elif parameters:
         size = f"{parameters:,.0f} trainable parameters against none"
     else:
         size = "no trainable parameters"
     time, inference = cost["train_seconds_ratio"], cost["inference_ratio"]
-    phrase = size + ("" if time is None else f", {time:.2g}x the training time")
-    return phrase + ("" if inference is None else f" and {inference:.2g}x the inference time per sample")
+    phrase = size + ("" if time is None else f", {_times(time)} the training time")
+    return phrase + ("" if inference is None else f" and {_times(inference)} the inference time per sample")
 
 
 def sentence(name: str, reference: str, outcome: str, comparison: Any, holm_p: float, cost: dict[str, Any]) -> str:

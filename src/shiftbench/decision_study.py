@@ -74,7 +74,8 @@ def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, c
     tables, tuning = [], {}
     for candidate in settings.candidates:
         say(f"tuning {candidate.name}")
-        chosen, summary = tune(candidate, settings, run, say)
+        configured = composed([f"data={dataset}", *common, *candidate.overrides])
+        chosen, summary = tune(candidate, settings, run, say, configured)
         tuning[candidate.name] = {**summary, "chosen": chosen}
         say(f"evaluating {candidate.name} ({' '.join(chosen) or 'as configured'})")
         tables.append(evaluate(candidate, chosen, settings, run))

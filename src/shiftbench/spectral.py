@@ -14,27 +14,18 @@ import torch
 
 from shiftbench.graphs.operators import is_symmetric
 from shiftbench.models.shift_polynomial_net import ShiftPolynomialNet
+from shiftbench.models.shift_products import as_scipy
 
 # Up to this many nodes the eigenvalues are computed exactly; beyond, a grid spans the extremes.
 EXACT_LIMIT = 2000
 GRID_POINTS = 400
 
 
-def _to_scipy(shift: torch.Tensor) -> sp.csr_matrix:
-    """A torch sparse CSR (or dense) shift as scipy CSR, float64."""
-    if shift.layout == torch.sparse_csr:
-        return sp.csr_matrix(
-            (shift.values().double().numpy(), shift.col_indices().numpy(), shift.crow_indices().numpy()),
-            shape=tuple(shift.shape),
-        )
-    return sp.csr_matrix(shift.to_dense().double().numpy())
-
-
 def frequencies(shift: torch.Tensor) -> np.ndarray:
     """The eigenvalues of ``shift`` (sorted; complex for a non-symmetric operator), exactly for
     up to 2,000 nodes; beyond, ``GRID_POINTS`` values between the extreme eigenvalues of a
     symmetric operator from scipy's sparse eigensolver."""
-    matrix = _to_scipy(shift)
+    matrix = as_scipy(shift)
     symmetric = is_symmetric(matrix)
     if matrix.shape[0] <= EXACT_LIMIT:
         if symmetric:

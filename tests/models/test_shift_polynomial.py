@@ -71,3 +71,24 @@ def test_graph_filter_gradient_matches_finite_differences():
     layer = ShiftPolynomialLayer(shift, 2, 2, 3).double()
     x = torch.randn(2, 12, 2, dtype=torch.double, requires_grad=True)
     assert torch.autograd.gradcheck(layer, (x,))
+
+
+def test_a_negative_order_is_a_one_line_error_not_a_division_by_zero():
+    from shiftbench.graphs.standard import line_graph
+
+    shift = shift_operator(line_graph(5), "adjacency", "none")
+    with pytest.raises(ValueError, match=r"^order=-1 is not accepted; accepted: an integer >= 0$"):
+        ShiftPolynomialLayer(shift, 1, 2, order=-1)
+
+
+def test_reprs_say_what_each_layer_computes():
+    # What print(model) shows (torch's extra_repr convention): order, plan, causality, readout kind.
+    from shiftbench.graphs.standard import cycle_graph, path_graph
+    from shiftbench.models import LineConv, ShiftPolynomialNet
+
+    delay = ShiftPolynomialNet(shift_operator(cycle_graph(6), "adjacency", "none"), 1, [4], 2, order=2)
+    sparse = ShiftPolynomialNet(shift_operator(path_graph(6), "adjacency", "none"), 1, [4], 2, order=3, readout="max")
+    line = LineConv(6, 1, [4], 2, order=2, boundary="circular", readout="flatten")
+    assert "ShiftPolynomialLayer(1, 4, order=2, nodes=6, plan=delay (circular boundary), bias=True)" in repr(delay)
+    assert "plan=sparse" in repr(sparse) and "kind=max" in repr(sparse)
+    assert "1, 4, order=2, causal, boundary=circular" in repr(line) and "kind=flatten" in repr(line)

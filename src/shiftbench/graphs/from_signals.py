@@ -13,7 +13,7 @@ from sklearn.neighbors import kneighbors_graph
 
 from shiftbench.config import require
 from shiftbench.errors import ConfigError
-from shiftbench.graphs.graph import Graph
+from shiftbench.graphs.graph import Graph, symmetrized
 from shiftbench.graphs.operators import GraphConfig
 from shiftbench.registry import GRAPH_SOURCES, GraphSource
 
@@ -66,7 +66,7 @@ def correlation_graph(signals: np.ndarray, neighbors: int) -> Graph:
     strongest = np.argpartition(-strength, keep - 1, axis=1)[:, :keep]
     rows = np.repeat(np.arange(nodes), keep)
     chosen = sp.csr_matrix((strength[rows, strongest.ravel()], (rows, strongest.ravel())), shape=(nodes, nodes))
-    return Graph.from_adjacency(chosen.maximum(chosen.T), name="correlation")
+    return Graph.from_adjacency(symmetrized(chosen), name="correlation")
 
 
 def signal_knn_graph(signals: np.ndarray, neighbors: int) -> Graph:
@@ -77,7 +77,7 @@ def signal_knn_graph(signals: np.ndarray, neighbors: int) -> Graph:
         signals: ``(samples, nodes, features)``, the training split only.
     """
     directed = kneighbors_graph(node_profiles(signals), n_neighbors=neighbors, mode="connectivity")
-    return Graph.from_adjacency(directed.maximum(directed.T), name="knn")
+    return Graph.from_adjacency(symmetrized(directed), name="knn")
 
 
 GRAPH_SOURCES.add(

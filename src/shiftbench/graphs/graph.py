@@ -15,6 +15,11 @@ import scipy.sparse as sp
 import torch
 
 
+def symmetrized(matrix: sp.spmatrix) -> sp.spmatrix:
+    """``max(A, A^T)`` entrywise: an edge either way becomes an edge both ways."""
+    return matrix.maximum(matrix.T)
+
+
 @dataclass(frozen=True)
 class Graph:
     """A graph on ``nodes`` nodes.

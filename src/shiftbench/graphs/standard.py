@@ -10,7 +10,7 @@ import numpy as np
 import scipy.sparse as sp
 from sklearn.neighbors import kneighbors_graph, radius_neighbors_graph
 
-from shiftbench.graphs.graph import Graph
+from shiftbench.graphs.graph import Graph, symmetrized
 
 
 def line_graph(nodes: int) -> Graph:
@@ -45,7 +45,7 @@ def knn_graph(positions: np.ndarray, neighbors: int) -> Graph:
         positions: ``(nodes, dims)`` coordinates.
     """
     directed = kneighbors_graph(positions, n_neighbors=neighbors, mode="connectivity")
-    symmetric = directed.maximum(directed.T)
+    symmetric = symmetrized(directed)
     return Graph.from_adjacency(symmetric, name="knn", positions=positions)
 
 
@@ -56,4 +56,4 @@ def geometric_graph(positions: np.ndarray, radius: float) -> Graph:
         positions: ``(nodes, dims)`` coordinates.
     """
     linked = radius_neighbors_graph(positions, radius=radius, mode="connectivity", include_self=False)
-    return Graph.from_adjacency(linked.maximum(linked.T), name="geometric", positions=positions)
+    return Graph.from_adjacency(symmetrized(linked), name="geometric", positions=positions)

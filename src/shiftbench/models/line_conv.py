@@ -57,6 +57,9 @@ class CausalConv1d(nn.Module):
     def forward(self, x: torch.Tensor) -> torch.Tensor:
         return causal_convolution(x, self.conv.weight, self.conv.bias, self.boundary)
 
+    def extra_repr(self) -> str:
+        return f"{self.conv.in_channels}, {self.conv.out_channels}, order={self.order}, causal, boundary={self.boundary}"
+
 
 class LineConv(FilterStack):
     """A stack of causal Conv1d layers (widths ``channels``), each followed by ``sigma``, then a

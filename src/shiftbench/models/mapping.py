@@ -9,16 +9,12 @@ from __future__ import annotations
 
 import torch
 
-from shiftbench.models.shift_polynomial_net import ShiftPolynomialNet
 from shiftbench.models.line_conv import LineConv
+from shiftbench.models.shift_polynomial import kernel_to_taps
+from shiftbench.models.shift_polynomial_net import ShiftPolynomialNet
 
 
-def conv_weight_to_taps(weight: torch.Tensor) -> torch.Tensor:
-    """Conv1d weight ``(out, in, K + 1)`` -> taps ``(K + 1, in, out)`` with ``H_k = W[:, :, K - k]^T``."""
-    return weight.permute(2, 1, 0).flip(0)
-
-
-def line_conv_to_graph_conv(model: LineConv, shift: torch.Tensor, taps_from=conv_weight_to_taps) -> ShiftPolynomialNet:
+def line_conv_to_graph_conv(model: LineConv, shift: torch.Tensor, taps_from=kernel_to_taps) -> ShiftPolynomialNet:
     """A ShiftPolynomialNet on ``shift`` (the line graph's or cycle's adjacency) carrying ``model``'s
     weights: the taps from each Conv1d kernel, and the same biases, norms and readout. The
     graph_conv runs the generic sparse plan, so that comparing the two checks the algebra, not

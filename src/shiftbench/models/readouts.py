@@ -26,6 +26,9 @@ class Readout(nn.Module):
         width = nodes * channels if kind == "flatten" else channels
         self.linear = nn.Linear(width, classes)
 
+    def extra_repr(self) -> str:
+        return f"kind={self.kind}"
+
     def forward(self, x: torch.Tensor) -> torch.Tensor:
         if self.kind == "mean":
             pooled = x.mean(dim=1)

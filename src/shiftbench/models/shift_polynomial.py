@@ -26,6 +26,22 @@ def chunk_size(batch: int, nodes: int, channels: int, element_bytes: int) -> int
     return max(1, min(batch, max(MIN_CHUNK, fitting)))
 
 
+def taps_to_kernel(taps: torch.Tensor, weight: float | torch.Tensor = 1.0) -> torch.Tensor:
+    """Taps ``(K + 1, in, out)`` of a filter on a delay ``S x = w x_{n-1}`` -> the equivalent
+    causal convolution kernel ``(out, in, K + 1)``: ``W[:, :, K - k] = w^k H_k^T``."""
+    powers = torch.as_tensor(weight, dtype=taps.dtype, device=taps.device) ** torch.arange(
+        taps.shape[0], dtype=taps.dtype, device=taps.device
+    )
+    # (K + 1, in, out) -> (out, in, K + 1), then reversed along the kernel so tap k sits at K - k.
+    return (taps * powers[:, None, None]).permute(2, 1, 0).flip(-1)
+
+
+def kernel_to_taps(kernel: torch.Tensor) -> torch.Tensor:
+    """A causal convolution kernel ``(out, in, K + 1)`` -> taps ``(K + 1, in, out)`` on the
+    unit delay: ``H_k = W[:, :, K - k]^T`` (the inverse of :func:`taps_to_kernel` at ``w = 1``)."""
+    return kernel.permute(2, 1, 0).flip(0)
+
+
 class SparsePolynomial(torch.autograd.Function):
     """``Y = sum_{k=0..K} S^k X H_k + b`` by Horner's rule, chunk by chunk over the batch.
 
@@ -112,6 +128,8 @@ class ShiftPolynomialLayer(nn.Module):
         structured: bool = True,
     ) -> None:
         super().__init__()
+        if not isinstance(order, int) or order < 0:
+            raise ValueError(f"order={order!r} is not accepted; accepted: an integer >= 0")
         self.in_channels = in_channels
         self.out_channels = out_channels
         self.order = order
@@ -133,10 +151,12 @@ class ShiftPolynomialLayer(nn.Module):
 
     def forward(self, x: torch.Tensor) -> torch.Tensor:
         if isinstance(self.plan, Delay):
-            powers = self.plan.weight ** torch.arange(self.order + 1, dtype=x.dtype, device=x.device)
-            kernel = (self.taps * powers[:, None, None]).permute(2, 1, 0).flip(-1)
-            return causal_convolution(x, kernel, self.bias, self.plan.boundary)
+            return causal_convolution(x, taps_to_kernel(self.taps, self.plan.weight), self.bias, self.plan.boundary)
         return SparsePolynomial.apply(x, self.taps, self.bias, self.plan)
 
     def extra_repr(self) -> str:
-        return f"{self.in_channels}, {self.out_channels}, order={self.order}, bias={self.bias is not None}"
+        plan_name = f"delay ({self.plan.boundary} boundary)" if isinstance(self.plan, Delay) else "sparse"
+        return (
+            f"{self.in_channels}, {self.out_channels}, order={self.order}, nodes={self.shift.shape[0]}, "
+            f"plan={plan_name}, bias={self.bias is not None}"
+        )
