@@ -86,7 +86,8 @@ def paired_differences(result: dict[str, Any], path: Path) -> Path:
     axis.set_yticks(range(len(compared)), [entry["candidate"] for entry in compared], fontsize=8)
     axis.axvline(0, color="black", linewidth=0.5)
     axis.set_xlabel(f"test accuracy minus {result['reference']}'s, per paired unit")
-    axis.legend(fontsize=7, loc="lower right")
+    axis.set_ylim(-0.6, len(compared) + 0.2)
+    axis.legend(fontsize=7, loc="upper left")
     return _save(figure, path)
 
 

@@ -114,7 +114,7 @@ def candidates_table(units: pd.DataFrame) -> str:
     for name, row in table.iterrows():
         lines.append(
             f"| {name} | {row.test_accuracy:.3f} | {row['std']:.3f} | {row.val_accuracy:.3f} | {row.parameters:,.0f} | "
-            f"{row.train_seconds:.2f} | {row.units} |"
+            f"{row.train_seconds:.2f} | {int(row.units)} |"
         )
     return "\n".join(lines) + "\n"
 
