@@ -30,7 +30,6 @@ def records_under(folder: Path) -> list[dict]:
 @pytest.mark.parametrize(
     ("arguments", "family", "order"),
     [
-        ([], "graph_conv", 3),
         (["arch=line_conv", "arch.order=4", "seed=2"], "line_conv", 4),
     ],
 )
@@ -51,9 +50,9 @@ def test_real_and_user_data_run_from_any_folder(tmp_path):
     np.savez(tmp_path / "X.npz", signals=signals, labels=(signals[:, :5].sum(axis=1) > 0).astype(int))
     edges = "".join(f"{i},{i + 1}\n{i + 1},{i}\n" for i in range(9))
     (tmp_path / "G.csv").write_text("source,target\n" + edges)
+    # digits and GunPoint through the job runner are in tests/data; here, the user's files and a
+    # published figure through a real process.
     commands = [
-        ["data=digits", "train.epochs=2"],
-        ["data=ucr", "data.name=GunPoint", "arch=line_conv", "train.epochs=2"],
         ["data=file", "data.path=X.npz", "graph=file", "graph.path=G.csv", "train.epochs=2"],
         ["data=ucr", "data.name=ItalyPowerDemand", "arch=nearest"],
     ]
@@ -61,7 +60,7 @@ def test_real_and_user_data_run_from_any_folder(tmp_path):
         result = run("shiftbench", *arguments, cwd=tmp_path)
         assert result.returncode == 0, result.stderr
     records = records_under(tmp_path / "results")
-    assert sorted(r["data"] for r in records) == ["GunPoint", "ItalyPowerDemand", "X", "digits"]
+    assert sorted(r["data"] for r in records) == ["ItalyPowerDemand", "X"]
     assert all(r["status"] == "completed" for r in records)
     (nearest,) = [r for r in records if r["family"] == "nearest"]
     assert nearest["parameters"] == 0 and round(1 - nearest["test_accuracy"], 4) == 0.0447
@@ -110,9 +109,8 @@ def test_the_families_study_runs_its_five_setups_over_three_seeds_and_a_rerun_tr
     }
 
 
-@pytest.mark.parametrize(
-    "arguments", [["arch=cnn"], ["train.lr=0"], ["+arch.extra=1"], ["-m", "arch.order=2,-1"], ["arch.order=x"]]
-)
+# One case through a real process; tests/bad_inputs runs the whole corpus through the entry point in-process.
+@pytest.mark.parametrize("arguments", [["-m", "arch.order=2,-1"]])
 def test_a_bad_config_prints_one_line_exits_2_and_writes_nothing(tmp_path, arguments):
     result = run("shiftbench", *arguments, cwd=tmp_path)
     assert result.returncode == 2
@@ -127,9 +125,9 @@ def test_report_on_a_folder_without_records_is_a_one_line_error(tmp_path):
     assert result.stderr.strip() == f"shiftbench-report: error: no records (record.json) found under {tmp_path}"
 
 
-@pytest.mark.parametrize(("launcher", "seeds", "jobs"), [("joblib", "0,1", 6), ("submitit_local", "0", 3)])
-def test_parallel_launchers_write_every_record_and_a_rerun_trains_nothing(tmp_path, launcher, seeds, jobs):
-    arguments = ["-m", "arch=fc,line_conv,graph_conv", f"seed={seeds}", *FAST, f"hydra/launcher={launcher}",
+@pytest.mark.parametrize(("launcher", "families", "jobs"), [("joblib", "fc,line_conv,graph_conv", 3), ("submitit_local", "fc,graph_conv", 2)])
+def test_parallel_launchers_write_every_record_and_a_rerun_trains_nothing(tmp_path, launcher, families, jobs):
+    arguments = ["-m", f"arch={families}", "seed=0", *FAST, f"hydra/launcher={launcher}",
                  "hydra.sweep.dir=results/sweep"]
     if launcher == "joblib":
         arguments.append("hydra.launcher.n_jobs=2")

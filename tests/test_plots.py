@@ -1,6 +1,7 @@
 """Plots exist as non-empty PNGs and draw exactly the table's rows."""
 
 import pandas as pd
+import pytest
 
 from shiftbench import plots
 from shiftbench.records import SCHEMA_VERSION, write_record
@@ -72,3 +73,9 @@ def test_standard_plots_pick_what_the_rows_vary_in(tmp_path):
     ]
     single = table[(table["nodes"] == 16) & (table["order"] == 1)]
     assert [p.name for p in plots.standard_plots(single, tmp_path)] == ["accuracy_vs_parameters.png"]
+
+
+def test_accuracy_intervals_are_clipped_to_zero_and_one():
+    # An accuracy lies in [0, 1] (common practice, no source): bars never leave it.
+    errors = plots.clipped_error(pd.Series([0.98, 0.02, 0.5]), pd.Series([0.05, 0.05, float("nan")]))
+    assert errors.ravel().tolist() == pytest.approx([0.05, 0.02, 0.0, 0.02, 0.05, 0.0])

@@ -4,6 +4,7 @@ and ``shiftbench-report``. Wiring only: the work lives in :mod:`job` and :mod:`r
 from __future__ import annotations
 
 import argparse
+import shutil
 import signal
 import sys
 from pathlib import Path
@@ -13,13 +14,11 @@ from hydra.core.hydra_config import HydraConfig
 from hydra.types import RunMode
 from omegaconf import DictConfig, OmegaConf
 
-from shiftbench.claims_report import write_claims
 from shiftbench.config import ConfigError
 from shiftbench.job import run_job
 from shiftbench.preflight import preflight
 from shiftbench.config_store import register_defaults
 from shiftbench.records import MANIFEST_FILE as MANIFEST
-from shiftbench.report import write_report
 from shiftbench.runtime import keep_freed_memory, share_cores
 
 # The groups' options come from the components' schemas (see config_store); registered on import,
@@ -60,6 +59,9 @@ def _job(config: DictConfig) -> dict:
 def main() -> None:
     if not CONFIG_DIR.is_dir():
         fail(f"config folder {CONFIG_DIR} not found; install shiftbench from its source tree (pip install -e .)")
+    if "hydra/launcher=slurm_cpu" in sys.argv[1:] and shutil.which("srun") is None:
+        fail("hydra/launcher=slurm_cpu: no SLURM on this machine (srun not found); run with "
+             "hydra/launcher=joblib here, or on a cluster's login node")
     try:
         preflight(sys.argv[1:], CONFIG_DIR)
     except ConfigError as error:
@@ -92,6 +94,8 @@ def report_main(arguments: list[str] | None = None) -> None:
     if missing:
         parser.exit(2, f"shiftbench-report: error: no such file or folder: {missing[0]}\n")
     out = options.out or (options.paths[0] if options.paths[0].is_dir() else options.paths[0].parent)
+    from shiftbench.report import write_report  # here, not at import: the job entry point does not need it
+
     try:
         text = write_report(options.paths, out, options.where, options.by, options.curves)
     except ValueError as error:
@@ -112,6 +116,8 @@ def claims_main(arguments: list[str] | None = None) -> None:
         parser.exit(2, f"shiftbench-claims: error: no such folder: {options.path}\n")
     if options.seeds < 1:
         parser.exit(2, f"shiftbench-claims: error: --seeds {options.seeds} is not accepted; accepted: an integer >= 1\n")
+    from shiftbench.claims_report import write_claims  # here, not at import: jobs do not need it
+
     print(write_claims([options.path], options.out or options.path, tuple(range(options.seeds))))
 
 

@@ -36,21 +36,35 @@ def _label(row: pd.Series, keys: list[str]) -> str:
     return " ".join(str(row[key]) for key in keys if not pd.isna(row[key]))
 
 
+def clipped_error(mean: pd.Series, half_width: pd.Series) -> np.ndarray:
+    """``(2, rows)`` error bar lengths of ``mean +- half_width`` clipped to accuracy's [0, 1]."""
+    half = half_width.fillna(0).to_numpy(dtype=float)
+    centre = mean.to_numpy(dtype=float)
+    return np.vstack([np.minimum(half, centre), np.minimum(half, 1.0 - centre)])
+
+
 def accuracy_vs_parameters(table: pd.DataFrame, path: Path) -> tuple[Path, pd.DataFrame]:
-    """Mean test accuracy (with its 95% interval) against trainable parameters, log x, one marker
-    per family. Rows without parameters (the 0-parameter floor) are drawn at x = 1."""
-    points = table[["family", "parameters", "test_accuracy_mean", "test_accuracy_ci95"]].dropna(subset=["test_accuracy_mean"])
-    points = points.assign(x=points["parameters"].fillna(0).clip(lower=1).astype(float))
+    """Mean test accuracy (with its 95% interval, clipped to [0, 1]) against trainable parameters,
+    log x, one marker and colour per family and graph. Parameter-free rows (the floors) are drawn
+    as labelled horizontal lines, not at some parameter count."""
+    points = table[["family", "graph", "parameters", "test_accuracy_mean", "test_accuracy_ci95"]].dropna(subset=["test_accuracy_mean"])
+    points = points.assign(x=points["parameters"].astype(float))
     figure, axis = plt.subplots(figsize=(6, 4))
-    for family, group in points.groupby("family", sort=True):
+    trained = points[points["x"] > 0]
+    for (family, graph), group in trained.groupby(["family", "graph"], sort=True):
+        label = family if graph in ("none", "line", "cycle") and family != "graph_conv" else f"{family} on {graph}"
         axis.errorbar(
-            group["x"], group["test_accuracy_mean"], yerr=group["test_accuracy_ci95"].fillna(0).to_numpy(),
-            marker=marker(family), linestyle="none", capsize=3, label=family,
+            group["x"], group["test_accuracy_mean"], yerr=clipped_error(group["test_accuracy_mean"], group["test_accuracy_ci95"]),
+            marker=marker(family), linestyle="none", capsize=3, label=label,
         )
+    for family, group in points[~(points["x"] > 0)].groupby("family", sort=True):
+        axis.axhline(group["test_accuracy_mean"].mean(), linestyle="--", linewidth=1, color="grey")
+        axis.annotate(f"{family} (no parameters)", (0.01, group["test_accuracy_mean"].mean()), xycoords=("axes fraction", "data"),
+                      fontsize=7, va="bottom", color="dimgrey")
     axis.set_xscale("log")
     axis.set_xlabel("trainable parameters (log)")
     axis.set_ylabel("test accuracy (mean, 95% CI)")
-    axis.legend()
+    axis.legend(fontsize=8)
     axis.grid(alpha=0.3)
     return _save(figure, path), points.reset_index(drop=True)
 

@@ -60,8 +60,14 @@ def toy_module(tmp_path, monkeypatch):
     monkeypatch.syspath_prepend(str(tmp_path))
     monkeypatch.setattr(registry, "COMPONENT_MODULES", [*registry.COMPONENT_MODULES, "toy_components"])
     yield
-    for table, name in ((registry.FAMILIES, "toy_mean"), (registry.GRAPH_SOURCES, "star")):
+    from hydra.core.config_store import ConfigStore
+
+    from shiftbench import config_store
+
+    for table, group, name in ((registry.FAMILIES, "arch", "toy_mean"), (registry.GRAPH_SOURCES, "graph", "star")):
         table.entries.pop(name, None)
+        ConfigStore.instance().repo.get(group, {}).pop(f"{name}.yaml", None)
+        config_store._stored.discard((group, name))
     registry._loaded.discard("toy_components")
     sys.modules.pop("toy_components", None)
 

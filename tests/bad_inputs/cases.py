@@ -65,6 +65,8 @@ CONFIG_CASES: list[tuple[list[str], str]] = [
                      "line, native, path, rewired, sbm"),
     (["hydra/launcher=nope"], "hydra/launcher='nope' is not accepted; accepted: one of basic, joblib, slurm_cpu, "
                               "submitit_local, submitit_slurm"),
+    (["hydra/launcher=slurm_cpu"], "hydra/launcher=slurm_cpu: no SLURM on this machine (srun not found); run with "
+                                   "hydra/launcher=joblib here, or on a cluster's login node"),
     (["arch.order=-1"], "arch.order=-1 is not accepted; accepted: an integer >= 0"),
     (["train.epochs=0"], "train.epochs=0 is not accepted; accepted: an integer >= 1"),
     (["train.lr=0"], "train.lr=0.0 is not accepted; accepted: a number > 0"),
