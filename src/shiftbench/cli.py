@@ -82,7 +82,7 @@ def report_main(arguments: list[str] | None = None) -> None:
     parser = argparse.ArgumentParser(
         prog="shiftbench-report", description="Tabulate the records found under one or more folders."
     )
-    parser.add_argument("paths", nargs="+", type=Path, help="folders (searched recursively) or result.json files")
+    parser.add_argument("paths", nargs="+", type=Path, help="launch folders, results folders (searched recursively) or record.json files")
     parser.add_argument("--out", type=Path, help="where to write the tables and plots (default: the first path)")
     parser.add_argument(
         "--where", action="append", default=[], metavar="KEY=VALUE", help="keep records with this field value (repeatable)"

@@ -11,8 +11,8 @@ import shiftbench.job
 from shiftbench.cli import main
 from tests.bad_inputs.cases import CONFIG_CASES, DATA_CASES, GRAPH_CASES, OPERATOR_CASES, write_good_data
 
-EARLIER = {"results/earlier/result.json": b'{"schema_version": 1, "status": "completed"}\n',
-           "results/earlier/curve.csv": b"epoch,train_loss\n1,0.5\n"}
+EARLIER = {"results/store/0123456789abcdef/record.json": b'{"schema_version": 2, "status": "completed"}\n',
+           "results/store/0123456789abcdef/curve.csv": b"epoch,train_loss\n1,0.5\n"}
 
 
 @pytest.fixture
