@@ -42,10 +42,6 @@ def refused(workspace: Path, arguments: list[str], capsys, monkeypatch) -> str:
     return printed
 
 
-def test_the_corpus_holds_at_least_forty_cases():
-    assert len(CONFIG_CASES) + len(DATA_CASES) + len(GRAPH_CASES) + len(OPERATOR_CASES) >= 40
-
-
 @pytest.mark.parametrize(("arguments", "message"), CONFIG_CASES, ids=[" ".join(case[0]) for case in CONFIG_CASES])
 def test_a_bad_config_gets_its_one_line(workspace, capsys, monkeypatch, arguments, message):
     assert refused(workspace, arguments, capsys, monkeypatch) == f"shiftbench: error: {message}\n"

@@ -70,11 +70,18 @@ def test_graph_loader_answers_any_zip_members_with_its_own_error(tmp_path, conte
     loads_or_refuses(lambda: load_graph_file(str(path), nodes=5))
 
 
-@pytest.mark.parametrize("rows", [1, 2, 50])
-def test_signal_loader_accepts_a_good_csv_of_any_length_or_refuses_it_in_one_line(tmp_path, rows):
-    # A sanity anchor for the fuzz: well-formed files still load.
+def write_csv(path, rows: int):
     labels = np.arange(rows) % 2
-    lines = ["label,a,b", *[f"{label},{index},{index * 2}" for index, label in enumerate(labels)]]
-    path = tmp_path / "ok.csv"
-    path.write_text("\n".join(lines) + "\n")
-    loads_or_refuses(lambda: load_signal_file(str(path)))
+    path.write_text("\n".join(["label,a,b", *[f"{label},{index},{index * 2}" for index, label in enumerate(labels)]]) + "\n")
+    return path
+
+
+def test_a_well_formed_csv_still_loads(tmp_path):
+    # The fuzz's anchor: refusing everything would pass the fuzz, not this.
+    dataset = load_signal_file(str(write_csv(tmp_path / "ok.csv", 50)))
+    assert (dataset.samples, dataset.nodes, dataset.features) == (50, 2, 1)
+
+
+def test_a_csv_too_short_to_split_is_refused_in_one_line(tmp_path):
+    with pytest.raises(ConfigError, match=r"each class needs at least 3 for a stratified train/val/test split"):
+        load_signal_file(str(write_csv(tmp_path / "short.csv", 2)))
