@@ -98,3 +98,22 @@ def test_rows_sort_by_the_requested_column():
 def test_records_that_differ_beyond_the_described_fields_are_separate_rows():
     differing = [dict(entry, config={"train": {"lr": lr}, "seed": entry["seed"]}) for entry in RECORDS[:3] for lr in (0.1, 0.01)]
     assert len(summary_table(pd.DataFrame(differing))) == 2
+
+
+def test_every_config_key_that_varies_is_a_column_of_every_table(tmp_path):
+    # Rows differing only in readout and learning rate must say so (common practice, no source).
+    from shiftbench.job import run_job
+    from shiftbench.report import write_report
+    from tests.conftest import composed
+
+    small = ["data.samples_per_class=20", "data.nodes=12", "train.epochs=2", f"results_dir={tmp_path}"]
+    for readout in ("mean", "flatten"):
+        for lr in ("0.01", "0.001"):
+            run_job(composed([*small, f"arch.readout={readout}", f"train.lr={lr}"]), tmp_path / "sweep", [], live=False)
+    text = write_report([tmp_path / "sweep"], tmp_path / "out")
+    csv = pd.read_csv(tmp_path / "out" / "summary.csv")
+    markdown = (tmp_path / "out" / "summary.md").read_text()
+    assert {"arch.readout", "train.lr"} <= set(csv.columns) and len(csv) == 4
+    assert sorted(zip(csv["arch.readout"], csv["train.lr"])) == [("flatten", 0.001), ("flatten", 0.01), ("mean", 0.001), ("mean", 0.01)]
+    assert "arch.readout" in text.splitlines()[2] and "train.lr" in text.splitlines()[2]
+    assert "| arch.readout | train.lr |" in markdown

@@ -63,6 +63,36 @@ def setting_of(record: pd.Series) -> str:
     return json.dumps(content, sort_keys=True, default=str)
 
 
+# Config keys the describing fields already show (or that tell seeds and splits apart).
+DESCRIBED_KEYS = {"seed", "split", "data.source", "data.name", "graph.source", "graph.operator", "arch.family",
+                  "arch.order", "arch.budget"}
+
+
+def flat_config(config: object, prefix: str = "") -> dict[str, str]:
+    """A config's leaves as ``dotted.key -> value text`` (lists as JSON)."""
+    if not isinstance(config, dict):
+        return {}
+    leaves: dict[str, str] = {}
+    for key, value in config.items():
+        name = f"{prefix}{key}"
+        if isinstance(value, dict):
+            leaves.update(flat_config(value, name + "."))
+        else:
+            leaves[name] = json.dumps(value) if isinstance(value, (list, tuple)) else str(value)
+    return leaves
+
+
+def varied_keys(records: pd.DataFrame) -> tuple[list[str], list[dict[str, str]]]:
+    """The config keys (beyond the describing fields) that hold two or more values among the
+    records that have them, in config order, and each record's flat config."""
+    configs = [flat_config(computed_content(c)) if isinstance(c, dict) else {} for c in records.get("config", [])]
+    values: dict[str, set[str]] = {}
+    for config in configs:
+        for key, value in config.items():
+            values.setdefault(key, set()).add(value)
+    return [key for key, seen in values.items() if len(seen) > 1 and key not in DESCRIBED_KEYS], configs
+
+
 def filter_records(records: pd.DataFrame, where: Iterable[str]) -> pd.DataFrame:
     """Keep the records whose ``key`` column reads ``value`` for every ``key=value`` given."""
     for condition in where:
@@ -79,6 +109,8 @@ def summary_table(records: pd.DataFrame, by: Iterable[str] = ()) -> pd.DataFrame
     """Aggregate records over seeds: one row per setting.
 
     Columns: the describing fields (``data, nodes, graph, operator, family, order, budget``),
+    every other config key whose value differs between records (named by its dotted key, such
+    as ``arch.readout`` or ``train.lr``; ``-`` where a record's config lacks it),
     ``parameters`` (median over completed jobs), ``test_accuracy_mean`` and ``_std`` (sample
     standard deviation), the 95% Student t interval of the mean (``_ci95_low``, ``_ci95_high``
     and half-width ``_ci95``), ``seeds`` (completed jobs), ``train_seconds_mean``,
@@ -90,6 +122,9 @@ def summary_table(records: pd.DataFrame, by: Iterable[str] = ()) -> pd.DataFrame
         if column not in frame:
             frame[column] = float("nan")
     frame["setting"] = [setting_of(row) for _, row in frame.iterrows()]
+    varied, configs = varied_keys(frame)
+    for key in varied:
+        frame[key] = [config.get(key, "-") for config in configs]
     completed = frame["status"].isin(FINAL_STATUSES)
     frame["completed"] = completed
     frame["is_failed"] = ~completed
@@ -99,7 +134,7 @@ def summary_table(records: pd.DataFrame, by: Iterable[str] = ()) -> pd.DataFrame
     table = (
         frame.groupby("setting", sort=False)
         .agg(
-            **{column: (column, "first") for column in DESCRIBE},
+            **{column: (column, "first") for column in [*DESCRIBE, *varied]},
             parameters=("parameters", "median"),
             test_accuracy_mean=("test_accuracy", "mean"),
             test_accuracy_std=("test_accuracy", "std"),
@@ -120,12 +155,13 @@ def summary_table(records: pd.DataFrame, by: Iterable[str] = ()) -> pd.DataFrame
     table["test_accuracy_ci95_low"] = [low for low, _ in intervals]
     table["test_accuracy_ci95_high"] = [high for _, high in intervals]
     table["test_accuracy_ci95"] = (table["test_accuracy_ci95_high"] - table["test_accuracy_ci95_low"]) / 2
-    order = list(by) or DESCRIBE
+    order = list(by) or [*DESCRIBE, *varied]
     unknown = [column for column in order if column not in table.columns]
     if unknown:
-        raise ValueError(f"--by {unknown[0]!r} is not accepted; accepted: {', '.join(DESCRIBE + FIGURES)}")
+        raise ValueError(f"--by {unknown[0]!r} is not accepted; accepted: {', '.join(DESCRIBE + varied + FIGURES)}")
     table = table.sort_values(order, na_position="last", kind="stable").reset_index(drop=True)
-    return table[[*DESCRIBE, *FIGURES, "paths"]]
+    table.attrs["varied"] = varied
+    return table[[*DESCRIBE, *varied, *FIGURES, "paths"]]
 
 
 # Figures that, when equal in every row (all seeds done, none failed), are said once instead.
@@ -145,7 +181,8 @@ def split_constants(table: pd.DataFrame) -> tuple[dict[str, str], pd.DataFrame]:
             value = table[column].iloc[0]
             if not pd.isna(value):  # a field no row has is not worth a word
                 constants[column] = str(value)
-    return constants, table[[column for column in [*DESCRIBE, *SHOWN] if column not in single]]
+    varied = table.attrs.get("varied", [])
+    return constants, table[[column for column in [*DESCRIBE, *varied, *SHOWN] if column not in single]]
 
 
 def _cells(table: pd.DataFrame) -> list[list[str]]:
