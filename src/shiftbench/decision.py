@@ -25,6 +25,7 @@ import numpy as np
 import pandas as pd
 from omegaconf import DictConfig, OmegaConf
 
+from shiftbench.config import validate
 from shiftbench.errors import ConfigError
 from shiftbench.registry import FAMILIES
 from shiftbench.statistics import compare_paired, holm
@@ -122,7 +123,13 @@ def read_settings(config_dir: Path, overrides: list[str], compose: Callable[[lis
         raise ConfigError(f"decision.alpha={merged.alpha!r} is not accepted; accepted: a number in (0, 1)")
     candidates, spaces = [], {}
     for entry in merged.candidates:
-        composed = compose(list(entry.overrides))
+        try:
+            composed = compose(list(entry.overrides))
+            validate(composed)
+        except ConfigError as error:
+            raise ConfigError(f"candidate {entry.name!r}: {error}") from None
+        except Exception as error:  # Hydra's refusal of an override it cannot compose
+            raise ConfigError(f"candidate {entry.name!r}: {_first_line(error)}") from None
         family = composed.arch.family
         candidates.append(Candidate(str(entry.name), tuple(entry.overrides), family, FAMILIES[family].uses_graph))
         if FAMILIES[family].fit is None and family not in spaces:

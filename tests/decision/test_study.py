@@ -21,6 +21,9 @@ FC_VS_QDA = "decision.candidates=[{name: fc, overrides: [arch=fc]}, {name: qda, 
     ("decision.budget=3", "accepted keys: decision.candidates"),
     ("decision.rope=2", "decision.rope=2 is not accepted"),
     ("decision.candidates=[{name: g, overrides: [arch=graph_conv]}]", "at least one graph-free candidate"),
+    ("decision.candidates=[{name: q, overrides: [arch=qda]}, {name: g, overrides: [arch=gnn]}]", "candidate 'g': "),
+    ("decision.candidates=[{name: q, overrides: [arch=qda]}, {name: g, overrides: [arch.order=-2]}]",
+     "candidate 'g': arch.order=-2 is not accepted; accepted: an integer >= 0"),
 ])
 def test_bad_settings_are_refused_in_one_line_before_any_job(tmp_path, setting, message):
     with pytest.raises(ConfigError, match=message.replace("[", r"\[")):
