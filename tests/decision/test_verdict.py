@@ -92,3 +92,14 @@ def test_a_bad_search_space_is_one_line_naming_the_key(tmp_path, text, message):
     path.write_text(text)
     with pytest.raises(ConfigError, match=message.replace("[", r"\[").replace("]", r"\]")):
         read_space(path)
+
+
+def test_across_datasets_writes_the_rank_test_and_its_critical_difference_diagram(tmp_path):
+    # Friedman + Nemenyi over datasets (Demsar 2006), drawn by scikit-posthocs.
+    from shiftbench.decision_study import across_datasets
+
+    scores = pd.DataFrame({"graph_conv": [0.97, 0.95, 0.90, 0.93], "fc": [0.77, 0.90, 0.85, 0.80], "qda": [0.93, 0.80, 0.88, 0.91]},
+                          index=["a", "b", "c", "d"])
+    markdown = across_datasets(scores, tmp_path, alpha=0.05)
+    assert "Average ranks (1 is best): graph_conv 1.00" in markdown
+    assert (tmp_path / "critical_difference.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
