@@ -7,7 +7,6 @@ weights, optimizer moments and every generator replays the uninterrupted arithme
 import json
 
 import pytest
-import torch
 
 from shiftbench.checkpoints import CHECKPOINT_FILE, load_checkpoint, save_checkpoint
 from shiftbench.data import load_dataset

@@ -261,7 +261,6 @@ def verdict(units: pd.DataFrame, candidates: list[Candidate], rope: float, alpha
     A candidate missing units that the others have is not compared; its entry names them.
     """
     completed = units[units["status"].isin(["completed", "timed_out"])]
-    by_name = {c.name: c for c in candidates}
     all_units = sorted({(int(s), int(d)) for s, d in zip(units["split"], units["seed"])})
     present = {
         name: {(int(s), int(d)) for s, d in zip(group["split"], group["seed"])}

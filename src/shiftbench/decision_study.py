@@ -15,7 +15,6 @@ from omegaconf import DictConfig, OmegaConf
 from shiftbench import decision_plots
 from shiftbench.config_store import register_defaults
 from shiftbench.decision import Settings, evaluate, read_settings, tune, verdict, write_verdict
-from shiftbench.errors import ConfigError
 from shiftbench.job import run_job
 from shiftbench.preflight import preflight
 from shiftbench.records import write_atomic

@@ -8,7 +8,6 @@ multiplies by ``h(lambda)``.
 from __future__ import annotations
 
 import numpy as np
-import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 import torch
 

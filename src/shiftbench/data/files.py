@@ -25,7 +25,7 @@ from shiftbench.data.dataset import Dataset, Splits, keyword_loader
 from shiftbench.data.labels import encode_labels
 from shiftbench.config import require
 from shiftbench.data.splits import RandomSplitConfig, stratified_splits
-from shiftbench.errors import ConfigError, file_error
+from shiftbench.errors import file_error
 from shiftbench.graphs.standard import line_graph
 from shiftbench.registry import DATASETS, DatasetSource
 

@@ -25,7 +25,7 @@ import scipy.sparse as sp
 
 from shiftbench.config import require
 from shiftbench.csv_input import read_user_csv
-from shiftbench.errors import ConfigError, file_error
+from shiftbench.errors import file_error
 from shiftbench.graphs.graph import Graph
 from shiftbench.graphs.operators import GraphConfig
 from shiftbench.registry import GRAPH_SOURCES, GraphSource
