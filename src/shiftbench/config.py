@@ -13,7 +13,8 @@ This module reads the registry and imports nothing of the data, graph or model l
 from __future__ import annotations
 
 import typing
-from dataclasses import asdict, dataclass, fields
+from collections.abc import Callable, Iterable
+from dataclasses import MISSING, asdict, dataclass, field, fields
 from pathlib import PurePath
 from typing import Any
 
@@ -48,43 +49,75 @@ def require_choice(key: str, value: Any, choices: typing.Iterable[str]) -> None:
     require(key, value, value in choices, "one of " + ", ".join(choices))
 
 
-def require_budget(budget: int | None) -> None:
-    require("budget", budget, budget is None or budget >= 1, "null (widths as configured) or an integer >= 1")
+@dataclass(frozen=True)
+class Check:
+    """A constraint declared on a schema field: ``test(value)`` must hold; ``accepted`` (text, or
+    a function giving it, for choices known only once the registry is loaded) says what would."""
+
+    test: Callable[[Any], bool]
+    accepted: str | Callable[[], str]
+
+    def text(self) -> str:
+        return self.accepted if isinstance(self.accepted, str) else self.accepted()
 
 
-def require_fraction(key: str, value: float) -> None:
-    require(key, value, 0.0 < value < 1.0, "a number strictly between 0 and 1")
+def declared(check: Check, default: Any = MISSING, default_factory: Any = MISSING) -> Any:
+    """A dataclass field carrying ``check`` in its metadata (see :class:`Schema`)."""
+    return field(default=default, default_factory=default_factory, metadata={"check": check})
+
+
+def at_least(low: int, kind: str = "an integer") -> Check:
+    return Check(lambda value: value >= low, f"{kind} >= {low}")
+
+
+def one_of(choices: Iterable[str] | Callable[[], Iterable[str]]) -> Check:
+    names = choices if callable(choices) else (lambda fixed=tuple(choices): fixed)
+    return Check(lambda value: value in tuple(names()), lambda: "one of " + ", ".join(names()))
+
+
+POSITIVE = Check(lambda value: value > 0, "a number > 0")
+FRACTION = Check(lambda value: 0.0 < value < 1.0, "a number strictly between 0 and 1")
+PROBABILITY = Check(lambda value: 0.0 <= value <= 1.0, "a probability in [0, 1]")
+DROPOUT = Check(lambda value: 0.0 <= value < 1.0, "a probability in [0, 1)")
+BUDGET = Check(lambda value: value is None or value >= 1, "null (widths as configured) or an integer >= 1")
+
+
+class Schema:
+    """The base of every config schema: on construction, one generic validator checks each
+    field's declared :class:`Check` (in field order), then :meth:`check` runs the checks that
+    involve several fields. Every refusal is a one-line :class:`ConfigError`."""
+
+    def __post_init__(self) -> None:
+        for item in fields(self):  # type: ignore[arg-type]
+            check = item.metadata.get("check")
+            if check is not None:
+                value = getattr(self, item.name)
+                require(item.name, value, check.test(value), check.text())
+        self.check()
+
+    def check(self) -> None:
+        """Checks across fields; none by default."""
 
 
 # ---------------------------------------------------------------------------------------- train
 
 
 @dataclass
-class TrainConfig:
+class TrainConfig(Schema):
     """Optimizer, batches, and early stopping on validation accuracy."""
 
-    optimizer: str = "adam"
-    lr: float = 0.01
-    momentum: float = 0.9
-    weight_decay: float = 0.0
-    batch_size: int = 64
-    epochs: int = 100
+    optimizer: str = declared(one_of(OPTIMIZERS), "adam")
+    lr: float = declared(POSITIVE, 0.01)
+    momentum: float = declared(Check(lambda value: 0.0 <= value < 1.0, "a number in [0, 1)"), 0.9)
+    weight_decay: float = declared(at_least(0, "a number"), 0.0)
+    batch_size: int = declared(at_least(1), 64)
+    epochs: int = declared(at_least(1), 100)
     # Epochs without improvement before stopping; 0 trains every epoch (no early stopping).
-    patience: int = 15
-    checkpoint_every: int = 10
-    max_seconds: float | None = None
-
-    def __post_init__(self) -> None:
-        require_choice("optimizer", self.optimizer, OPTIMIZERS)
-        require("lr", self.lr, self.lr > 0, "a number > 0")
-        require("momentum", self.momentum, 0.0 <= self.momentum < 1.0, "a number in [0, 1)")
-        require("weight_decay", self.weight_decay, self.weight_decay >= 0, "a number >= 0")
-        require("batch_size", self.batch_size, self.batch_size >= 1, "an integer >= 1")
-        require("epochs", self.epochs, self.epochs >= 1, "an integer >= 1")
-        require("patience", self.patience, self.patience >= 0, "an integer >= 0 (0: no early stopping)")
-        require("checkpoint_every", self.checkpoint_every, self.checkpoint_every >= 0, "an integer >= 0 (0: never)")
-        if self.max_seconds is not None:
-            require("max_seconds", self.max_seconds, self.max_seconds > 0, "a number of seconds > 0, or null")
+    patience: int = declared(Check(lambda value: value >= 0, "an integer >= 0 (0: no early stopping)"), 15)
+    checkpoint_every: int = declared(Check(lambda value: value >= 0, "an integer >= 0 (0: never)"), 10)
+    max_seconds: float | None = declared(
+        Check(lambda value: value is None or value > 0, "a number of seconds > 0, or null"), None
+    )
 
 
 # ----------------------------------------------------------------------------------------- root

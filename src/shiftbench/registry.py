@@ -68,12 +68,14 @@ class Family:
 @dataclass(frozen=True)
 class GraphSource:
     """A way to make a graph on a dataset's nodes: ``build(config, dataset) -> Graph``.
-    ``schema`` subclasses the graph group's base (operator and scale)."""
+    ``schema`` subclasses the graph group's base (operator and scale); ``needs`` names what the
+    data must carry beyond its node count and signals (``positions``)."""
 
     name: str
     schema: type
     build: Callable[..., Any]
     display: str = ""
+    needs: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)

@@ -7,21 +7,17 @@ from dataclasses import asdict, dataclass
 
 import numpy as np
 
-from shiftbench.config import require, require_fraction
+from shiftbench.config import FRACTION, Schema, at_least, declared
 from shiftbench.graphs.graph import Graph
 
 
 @dataclass
-class DataConfig:
+class DataConfig(Schema):
     """What every data source has: the data seed and the validation share."""
 
     source: str = "sensor_regimes"
-    seed: int = 0
-    val_fraction: float = 0.2
-
-    def __post_init__(self) -> None:
-        require("seed", self.seed, self.seed >= 0, "an integer >= 0")
-        require_fraction("val_fraction", self.val_fraction)
+    seed: int = declared(at_least(0), 0)
+    val_fraction: float = declared(FRACTION, 0.2)
 
     def known_nodes(self) -> int | None:
         """The node count, when the config alone tells it (else it is known once loaded)."""

@@ -23,7 +23,7 @@ import torch
 from shiftbench.csv_input import read_user_csv
 from shiftbench.data.dataset import Dataset, Splits, keyword_loader
 from shiftbench.data.labels import encode_labels
-from shiftbench.config import require
+from shiftbench.config import Check, declared
 from shiftbench.data.splits import RandomSplitConfig, stratified_splits
 from shiftbench.errors import file_error
 from shiftbench.graphs.standard import line_graph
@@ -197,11 +197,7 @@ class FileDataConfig(RandomSplitConfig):
     brings no ``split``)."""
 
     source: str = "file"
-    path: str = ""
-
-    def __post_init__(self) -> None:
-        super().__post_init__()
-        require("path", self.path, self.path != "", "the path of a .npz or .csv file (data.path=...)")
+    path: str = declared(Check(lambda value: value != "", "the path of a .npz or .csv file (data.path=...)"), "")
 
 
 DATASETS.add(DatasetSource("file", FileDataConfig, keyword_loader(load_signal_file), "signal file"))

@@ -23,7 +23,7 @@ import numpy as np
 import scipy.sparse as sp
 from numpy.polynomial import chebyshev
 
-from shiftbench.config import require
+from shiftbench.config import at_least, declared, require
 from shiftbench.data.dataset import Dataset, keyword_loader
 from shiftbench.data.splits import RandomSplitConfig, stratified_splits
 from shiftbench.graphs.operators import normalized_adjacency
@@ -123,20 +123,15 @@ class SensorRegimesConfig(RandomSplitConfig):
     """The demo scenario's size, noise and process (see the module's description)."""
 
     source: str = "sensor_regimes"
-    nodes: int = 64
-    classes: int = 4
-    samples_per_class: int = 200
-    noise: float = 0.5
-    process_order: int = 6
+    nodes: int = declared(at_least(2), 64)
+    classes: int = declared(at_least(2), 4)
+    samples_per_class: int = declared(at_least(10), 200)
+    noise: float = declared(at_least(0, "a number"), 0.5)
+    process_order: int = declared(at_least(0), 6)
     neighbors: int = 6
 
-    def __post_init__(self) -> None:
-        super().__post_init__()
-        require("nodes", self.nodes, self.nodes >= 2, "an integer >= 2")
-        require("classes", self.classes, self.classes >= 2, "an integer >= 2")
-        require("samples_per_class", self.samples_per_class, self.samples_per_class >= 10, "an integer >= 10")
-        require("noise", self.noise, self.noise >= 0, "a number >= 0")
-        require("process_order", self.process_order, self.process_order >= 0, "an integer >= 0")
+    def check(self) -> None:
+        super().check()
         require(
             "neighbors", self.neighbors, 1 <= self.neighbors < self.nodes, f"an integer in 1..{self.nodes - 1}"
         )

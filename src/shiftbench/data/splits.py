@@ -7,7 +7,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 from sklearn.model_selection import train_test_split
 
-from shiftbench.config import require, require_fraction
+from shiftbench.config import FRACTION, declared, require
 from shiftbench.data.dataset import DataConfig, Dataset, Splits
 
 
@@ -15,11 +15,10 @@ from shiftbench.data.dataset import DataConfig, Dataset, Splits
 class RandomSplitConfig(DataConfig):
     """A data source split at random (stratified) into train, validation and test."""
 
-    test_fraction: float = 0.2
+    test_fraction: float = declared(FRACTION, 0.2)
 
-    def __post_init__(self) -> None:
-        super().__post_init__()
-        require_fraction("test_fraction", self.test_fraction)
+    def check(self) -> None:
+        super().check()
         require(
             "test_fraction",
             self.test_fraction,

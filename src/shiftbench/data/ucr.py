@@ -15,7 +15,7 @@ from pathlib import Path
 import numpy as np
 from sklearn.model_selection import train_test_split
 
-from shiftbench.config import require_choice
+from shiftbench.config import declared, one_of
 from shiftbench.data.dataset import DataConfig, Dataset, Splits, keyword_loader
 from shiftbench.data.labels import encode_labels
 from shiftbench.errors import ConfigError
@@ -104,11 +104,7 @@ class UcrConfig(DataConfig):
     """A UCR/UEA series shipped with aeon; the archive's own train/test split is kept."""
 
     source: str = "ucr"
-    name: str = "GunPoint"
-
-    def __post_init__(self) -> None:
-        super().__post_init__()
-        require_choice("name", self.name, shipped_names())
+    name: str = declared(one_of(shipped_names), "GunPoint")
 
 
 DATASETS.add(DatasetSource("ucr", UcrConfig, keyword_loader(ucr), "UCR series"))

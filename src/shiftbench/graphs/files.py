@@ -23,7 +23,7 @@ import numpy as np
 import pandas as pd
 import scipy.sparse as sp
 
-from shiftbench.config import require
+from shiftbench.config import Check, declared
 from shiftbench.csv_input import read_user_csv
 from shiftbench.errors import file_error
 from shiftbench.graphs.graph import Graph
@@ -121,11 +121,7 @@ class FileGraphConfig(GraphConfig):
     """The user's graph file (edge-list .csv, scipy .npz, .graphml, .gml)."""
 
     source: str = "file"
-    path: str = ""
-
-    def __post_init__(self) -> None:
-        super().__post_init__()
-        require("path", self.path, self.path != "", "the path of a graph file (graph.path=...)")
+    path: str = declared(Check(lambda value: value != "", "the path of a graph file (graph.path=...)"), "")
 
 
 GRAPH_SOURCES.add(

@@ -11,7 +11,7 @@ import numpy as np
 import scipy.sparse as sp
 from sklearn.neighbors import kneighbors_graph
 
-from shiftbench.config import require
+from shiftbench.config import at_least, declared
 from shiftbench.errors import ConfigError
 from shiftbench.graphs.graph import Graph, symmetrized
 from shiftbench.graphs.operators import GraphConfig
@@ -22,11 +22,7 @@ from shiftbench.registry import GRAPH_SOURCES, GraphSource
 class NeighborsGraphConfig(GraphConfig):
     """A graph linking each node to ``neighbors`` others."""
 
-    neighbors: int = 6
-
-    def __post_init__(self) -> None:
-        super().__post_init__()
-        require("neighbors", self.neighbors, self.neighbors >= 1, "an integer >= 1")
+    neighbors: int = declared(at_least(1), 6)
 
     def check_fits(self, nodes: int) -> None:
         if self.neighbors >= nodes:

@@ -23,7 +23,7 @@ import scipy.sparse.linalg as spla
 from scipy.sparse.csgraph import connected_components
 import torch
 
-from shiftbench.config import require_choice
+from shiftbench.config import Schema, declared, one_of
 from shiftbench.errors import ConfigError
 from shiftbench.graphs.graph import Graph
 from shiftbench.registry import OPERATORS, Operator
@@ -86,17 +86,13 @@ def operator_matrix(graph: Graph, operator: str) -> sp.csr_matrix:
 
 
 @dataclass
-class GraphConfig:
+class GraphConfig(Schema):
     """What every graph config has: its source, the shift operator and its scaling. A source
     with no parameters of its own (``native``, ``line``, ``cycle``, ``path``) uses it as is."""
 
     source: str = "native"
-    operator: str = "adjacency"
-    scale: str = "spectral"
-
-    def __post_init__(self) -> None:
-        require_choice("operator", self.operator, OPERATORS.names())
-        require_choice("scale", self.scale, SCALES)
+    operator: str = declared(one_of(OPERATORS.names), "adjacency")
+    scale: str = declared(one_of(SCALES), "spectral")
 
     def check_fits(self, nodes: int) -> None:
         """Refuse (ConfigError) a graph that cannot be built on ``nodes`` nodes."""

@@ -11,7 +11,7 @@ from typing import TYPE_CHECKING
 
 import networkx as nx
 
-from shiftbench.config import require
+from shiftbench.config import PROBABILITY, POSITIVE, at_least, declared
 from shiftbench.errors import ConfigError
 from shiftbench.graphs.from_signals import NeighborsGraphConfig, signal_knn_graph
 from shiftbench.graphs.graph import Graph
@@ -54,13 +54,8 @@ def sbm_graph(nodes: int, blocks: int, p_in: float, p_out: float, seed: int) -> 
 @dataclass
 class GridGraphConfig(GraphConfig):
     source: str = "grid"
-    rows: int = 8
-    cols: int = 8
-
-    def __post_init__(self) -> None:
-        super().__post_init__()
-        require("rows", self.rows, self.rows >= 1, "an integer >= 1")
-        require("cols", self.cols, self.cols >= 1, "an integer >= 1")
+    rows: int = declared(at_least(1), 8)
+    cols: int = declared(at_least(1), 8)
 
     def check_fits(self, nodes: int) -> None:
         if self.rows * self.cols != nodes:
@@ -83,11 +78,7 @@ class GeometricGraphConfig(GraphConfig):
     """Nodes closer than ``radius`` on their positions."""
 
     source: str = "geometric"
-    radius: float = 0.2
-
-    def __post_init__(self) -> None:
-        super().__post_init__()
-        require("radius", self.radius, self.radius > 0, "a number > 0")
+    radius: float = declared(POSITIVE, 0.2)
 
 
 @dataclass
@@ -95,29 +86,17 @@ class RewiredGraphConfig(GraphConfig):
     """The native graph with its edges scrambled, every node keeping its degree."""
 
     source: str = "rewired"
-    swaps_per_edge: float = 5.0
-    seed: int = 0
-
-    def __post_init__(self) -> None:
-        super().__post_init__()
-        require("swaps_per_edge", self.swaps_per_edge, self.swaps_per_edge >= 0, "a number >= 0")
-        require("seed", self.seed, self.seed >= 0, "an integer >= 0")
+    swaps_per_edge: float = declared(at_least(0, "a number"), 5.0)
+    seed: int = declared(at_least(0), 0)
 
 
 @dataclass
 class SbmGraphConfig(GraphConfig):
     source: str = "sbm"
-    blocks: int = 4
-    p_in: float = 0.3
-    p_out: float = 0.02
-    seed: int = 0
-
-    def __post_init__(self) -> None:
-        super().__post_init__()
-        require("blocks", self.blocks, self.blocks >= 1, "an integer >= 1")
-        require("p_in", self.p_in, 0.0 <= self.p_in <= 1.0, "a probability in [0, 1]")
-        require("p_out", self.p_out, 0.0 <= self.p_out <= 1.0, "a probability in [0, 1]")
-        require("seed", self.seed, self.seed >= 0, "an integer >= 0")
+    blocks: int = declared(at_least(1), 4)
+    p_in: float = declared(PROBABILITY, 0.3)
+    p_out: float = declared(PROBABILITY, 0.02)
+    seed: int = declared(at_least(0), 0)
 
 
 def _knn(config: KnnGraphConfig, dataset: Dataset) -> Graph:
@@ -128,13 +107,7 @@ def _knn(config: KnnGraphConfig, dataset: Dataset) -> Graph:
 
 
 def _geometric(config: GeometricGraphConfig, dataset: Dataset) -> Graph:
-    positions = dataset.native_graph.positions
-    if positions is None:
-        raise ConfigError(
-            f"graph=geometric needs node positions and data {dataset.name!r} has none; "
-            "accepted: data with positions (sensor_regimes, digits, a .npz with 'positions')"
-        )
-    return geometric_graph(positions.numpy(), config.radius)
+    return geometric_graph(dataset.native_graph.positions.numpy(), config.radius)
 
 
 for _entry in (
@@ -144,7 +117,7 @@ for _entry in (
     GraphSource("path", GraphConfig, lambda config, dataset: path_graph(dataset.nodes), "path"),
     GraphSource("grid", GridGraphConfig, lambda config, dataset: grid_graph(config.rows, config.cols), "grid"),
     GraphSource("knn", KnnGraphConfig, _knn, "k-NN graph"),
-    GraphSource("geometric", GeometricGraphConfig, _geometric, "radius graph"),
+    GraphSource("geometric", GeometricGraphConfig, _geometric, "radius graph", needs=("positions",)),
     GraphSource(
         "rewired", RewiredGraphConfig,
         lambda config, dataset: rewired_graph(dataset.native_graph, config.swaps_per_edge, config.seed),
@@ -161,5 +134,15 @@ for _entry in (
 
 def build_graph(config: GraphConfig, dataset: Dataset) -> Graph:
     """The graph that ``config.source`` names, on ``dataset``'s nodes. Sources learned from
-    signals see the training split only."""
-    return GRAPH_SOURCES[config.source].build(config, dataset)
+    signals see the training split only.
+
+    Raises:
+        ConfigError: the data lacks what the source declares it needs.
+    """
+    source = GRAPH_SOURCES[config.source]
+    if "positions" in source.needs and dataset.native_graph.positions is None:
+        raise ConfigError(
+            f"graph={source.name} needs node positions and data {dataset.name!r} has none; "
+            "accepted: data with positions (sensor_regimes, digits, a .npz with 'positions')"
+        )
+    return source.build(config, dataset)

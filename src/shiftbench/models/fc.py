@@ -3,13 +3,13 @@
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Optional
 
 import torch
 from torch import nn
 
-from shiftbench.config import require, require_budget, require_choice
+from shiftbench.config import BUDGET, DROPOUT, Check, Schema, declared, one_of
 from shiftbench.models.nonlinearities import NONLINEARITIES
 from shiftbench.models.nonlinearities import nonlinearity as make_nonlinearity
 from shiftbench.registry import FAMILIES, Family
@@ -47,20 +47,16 @@ class FullyConnected(nn.Module):
 
 
 @dataclass
-class FcConfig:
+class FcConfig(Schema):
     """The MLP: hidden widths, nonlinearity, dropout."""
 
     family: str = "fc"
-    hidden: list[int] = field(default_factory=lambda: [64])
-    nonlinearity: str = "relu"
-    dropout: float = 0.0
-    budget: Optional[int] = None
-
-    def __post_init__(self) -> None:
-        require_budget(self.budget)
-        require("hidden", self.hidden, all(w >= 1 for w in self.hidden), "a list of integers >= 1")
-        require_choice("nonlinearity", self.nonlinearity, NONLINEARITIES)
-        require("dropout", self.dropout, 0.0 <= self.dropout < 1.0, "a probability in [0, 1)")
+    hidden: list[int] = declared(
+        Check(lambda value: all(w >= 1 for w in value), "a list of integers >= 1"), default_factory=lambda: [64]
+    )
+    nonlinearity: str = declared(one_of(NONLINEARITIES), "relu")
+    dropout: float = declared(DROPOUT, 0.0)
+    budget: Optional[int] = declared(BUDGET, None)
 
 
 def planned_fc_parameters(arch: FcConfig, nodes: int, features: int, classes: int) -> int:

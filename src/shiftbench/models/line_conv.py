@@ -8,7 +8,7 @@ from dataclasses import dataclass
 import torch
 from torch import nn
 
-from shiftbench.config import require_choice
+from shiftbench.config import declared, one_of
 from shiftbench.models.readouts import Readout
 from shiftbench.models.stack import ConvConfig, FilterStack, planned_stack_parameters, widths
 from shiftbench.registry import FAMILIES, Family
@@ -92,11 +92,7 @@ class LineConvConfig(ConvConfig):
     """A stack of causal Conv1d layers with kernel size ``order + 1``."""
 
     family: str = "line_conv"
-    boundary: str = "zero"
-
-    def __post_init__(self) -> None:
-        super().__post_init__()
-        require_choice("boundary", self.boundary, BOUNDARIES)
+    boundary: str = declared(one_of(BOUNDARIES), "zero")
 
 
 FAMILIES.add(

@@ -4,13 +4,13 @@ nonlinearity, then a readout."""
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Optional
 
 import torch
 from torch import nn
 
-from shiftbench.config import require, require_budget, require_choice
+from shiftbench.config import BUDGET, DROPOUT, Check, Schema, at_least, declared, one_of
 from shiftbench.models.nonlinearities import NONLINEARITIES
 from shiftbench.models.nonlinearities import nonlinearity as make_nonlinearity
 from shiftbench.models.readouts import READOUTS, Readout
@@ -86,32 +86,21 @@ def widths(features: int, channels: Sequence[int]) -> list[tuple[int, int]]:
 
 
 @dataclass
-class ConvConfig:
+class ConvConfig(Schema):
     """What the convolutional families share: ``order``, widths ``channels``, the nonlinearity,
     the readout, dropout, normalization, and an optional parameter budget."""
 
     family: str = "graph_conv"
-    order: int = 3
-    channels: list[int] = field(default_factory=lambda: [16, 16])
-    nonlinearity: str = "relu"
-    readout: str = "mean"
-    dropout: float = 0.0
-    normalization: str = "none"
-    budget: Optional[int] = None
-
-    def __post_init__(self) -> None:
-        require_budget(self.budget)
-        require("order", self.order, self.order >= 0, "an integer >= 0")
-        require(
-            "channels",
-            self.channels,
-            len(self.channels) >= 1 and all(c >= 1 for c in self.channels),
-            "a non-empty list of integers >= 1",
-        )
-        require_choice("nonlinearity", self.nonlinearity, NONLINEARITIES)
-        require_choice("readout", self.readout, READOUTS)
-        require("dropout", self.dropout, 0.0 <= self.dropout < 1.0, "a probability in [0, 1)")
-        require_choice("normalization", self.normalization, NORMALIZATIONS)
+    order: int = declared(at_least(0), 3)
+    channels: list[int] = declared(
+        Check(lambda value: len(value) >= 1 and all(c >= 1 for c in value), "a non-empty list of integers >= 1"),
+        default_factory=lambda: [16, 16],
+    )
+    nonlinearity: str = declared(one_of(NONLINEARITIES), "relu")
+    readout: str = declared(one_of(READOUTS), "mean")
+    dropout: float = declared(DROPOUT, 0.0)
+    normalization: str = declared(one_of(NORMALIZATIONS), "none")
+    budget: Optional[int] = declared(BUDGET, None)
 
 
 def planned_stack_parameters(arch: ConvConfig, nodes: int, features: int, classes: int) -> int:
