@@ -148,9 +148,9 @@ def undirected_path_symmetry(nodes: int = 64, order: int = ORDER, samples: int =
     causal = torch.nn.Conv1d(1, 1, order + 1, bias=False).double()
     symmetric = torch.nn.Conv1d(1, 1, 2 * order + 1, bias=False, padding=order).double()
     with torch.no_grad():
-        causal.weight.copy_(torch.from_numpy(rng.standard_normal(order + 1)).view(1, 1, -1))
+        causal.weight.copy_(torch.from_numpy(rng.standard_normal(order + 1)).view(1, 1, -1))  # (K + 1,) -> (out 1, in 1, K + 1)
         half = rng.standard_normal(order + 1)
-        symmetric.weight.copy_(torch.from_numpy(np.r_[half[:0:-1], half]).view(1, 1, -1))
+        symmetric.weight.copy_(torch.from_numpy(np.r_[half[:0:-1], half]).view(1, 1, -1))  # (K + 1,) -> (out 1, in 1, K + 1)
         causal_out = causal(torch.nn.functional.pad(batch, (order, 0)))[:, 0].numpy()
         symmetric_out = symmetric(batch)[:, 0].numpy()
     causal_residual = _fit_residual(shift, signals, causal_out, order, order)

@@ -59,7 +59,7 @@ def layer_responses(model: ShiftPolynomialNet, eigenvalues: np.ndarray) -> list[
 
 def summarize(responses: np.ndarray) -> dict[str, np.ndarray]:
     """Median and 10-90% band of ``|h(lambda)|`` over channel pairs, per frequency."""
-    magnitude = np.abs(responses).reshape(len(responses), -1)
+    magnitude = np.abs(responses).reshape(len(responses), -1)  # (frequencies, in, out) -> (frequencies, in * out)
     return {
         "median": np.median(magnitude, axis=1),
         "low": np.quantile(magnitude, 0.1, axis=1),

@@ -81,7 +81,7 @@ def ucr(name: str = "GunPoint", seed: int = 0, val_fraction: float = 0.2) -> Dat
         raise ConfigError(f"data.name={name!r} is not a UCR dataset shipped with aeon; accepted: {accepted}")
     train_series, train_labels = _load_split(name, "train", folder)
     test_series, test_labels = _load_split(name, "test", folder)
-    series = np.concatenate([train_series, test_series]).transpose(0, 2, 1).astype(np.float32)
+    series = np.concatenate([train_series, test_series]).transpose(0, 2, 1).astype(np.float32)  # (samples, channels, steps) -> (samples, steps, channels)
     labels, _ = encode_labels(np.concatenate([train_labels, test_labels]))
 
     archive_train = np.arange(len(train_labels))

@@ -42,7 +42,7 @@ def node_profiles(signals: np.ndarray) -> np.ndarray:
     """Each node's training signals as one row: ``(samples, nodes, features)`` ->
     ``(nodes, samples * features)``."""
     samples, nodes, features = signals.shape
-    return signals.transpose(1, 0, 2).reshape(nodes, samples * features).astype(np.float64)
+    return signals.transpose(1, 0, 2).reshape(nodes, samples * features).astype(np.float64)  # (samples, nodes, features) -> (nodes, samples * features)
 
 
 def correlation_graph(signals: np.ndarray, neighbors: int) -> Graph:

@@ -77,7 +77,7 @@ def fit_floor(name: str, dataset: Dataset, seed: int) -> TrainingResult:
     """Choose the floor's hyperparameter on validation accuracy, then score every split.
     ``train_seconds`` covers the whole grid."""
     floor = FLOORS[name]
-    flat = dataset.signals.reshape(dataset.samples, -1).astype(np.float64)
+    flat = dataset.signals.reshape(dataset.samples, -1).astype(np.float64)  # (samples, nodes * features)
     labels = dataset.labels
     train, val, test = dataset.splits.train, dataset.splits.val, dataset.splits.test
     started = time.perf_counter()

@@ -34,8 +34,8 @@ def causal_convolution(x: torch.Tensor, weight: torch.Tensor, bias: torch.Tensor
     else:
         nodes = x.shape[1]
         x = x.index_select(1, torch.arange(-order, nodes, device=x.device) % nodes)
-    view = x.contiguous().transpose(1, 2).unsqueeze(2)
-    return nn.functional.conv2d(view, weight.unsqueeze(2), bias).squeeze(2).transpose(1, 2)
+    view = x.contiguous().transpose(1, 2).unsqueeze(2)  # (batch, in, 1, nodes), channels-last in memory
+    return nn.functional.conv2d(view, weight.unsqueeze(2), bias).squeeze(2).transpose(1, 2)  # -> (batch, nodes, out)
 
 
 class CausalConv1d(nn.Module):

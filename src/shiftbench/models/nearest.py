@@ -20,7 +20,7 @@ from shiftbench.training_result import TrainingResult
 
 def _accuracy(reference: np.ndarray, queries: np.ndarray, dataset: Dataset) -> float:
     """Accuracy on ``queries`` of 1-NN with ``reference`` samples (index arrays)."""
-    flat = dataset.signals.reshape(dataset.samples, -1)
+    flat = dataset.signals.reshape(dataset.samples, -1)  # (samples, nodes * features)
     classifier = KNeighborsClassifier(n_neighbors=1, algorithm="brute").fit(flat[reference], dataset.labels[reference])
     return float(classifier.score(flat[queries], dataset.labels[queries]))
 

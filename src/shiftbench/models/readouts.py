@@ -35,5 +35,5 @@ class Readout(nn.Module):
         elif self.kind == "max":
             pooled = x.amax(dim=1)
         else:
-            pooled = x.flatten(start_dim=1)
+            pooled = x.flatten(start_dim=1)  # (batch, nodes, channels) -> (batch, nodes * channels)
         return self.linear(pooled)

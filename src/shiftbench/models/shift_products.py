@@ -66,21 +66,23 @@ class SparseShift:
     def _product(self, which: str, local: torch.Tensor) -> torch.Tensor:
         # torch's CSR "sum" reduction kernel: measured 1.5x ahead of the plain CSR product on
         # these shapes, which zero-fills and copies its result.
+        # (nodes * chunk, channels) -> (nodes, chunk * channels)
         product = torch.sparse.mm(self._matrix(which, local.dtype), local.view(self.nodes, -1), "sum")
-        return product.view(local.shape)
+        return product.view(local.shape)  # back to (nodes * chunk, channels)
 
     def gather(self, samples: torch.Tensor) -> torch.Tensor:
         """``(chunk, nodes, channels)`` -> ``(nodes * chunk, channels)``, renumbered, node-major."""
         chunk, nodes, channels = samples.shape
         # Copy first, then permute rows: the copy streams from memory, the permutation's
         # scattered reads then hit the cache.
-        node_major = samples.transpose(0, 1).contiguous()
-        return node_major.index_select(0, self.order).view(nodes * chunk, channels)
+        node_major = samples.transpose(0, 1).contiguous()  # (chunk, nodes, channels) -> (nodes, chunk, channels)
+        return node_major.index_select(0, self.order).view(nodes * chunk, channels)  # renumbered, (nodes * chunk, channels)
 
     def scatter(self, local: torch.Tensor, into: torch.Tensor) -> None:
         """Write ``(nodes * chunk, channels)`` (renumbered, node-major) into ``into``
         ``(chunk, nodes, channels)`` in the original numbering."""
         chunk, nodes, channels = into.shape
+        # (nodes * chunk, channels) -> (chunk, nodes, channels)
         into.transpose(0, 1).copy_(local.view(nodes, chunk, channels).index_select(0, self.inverse))
 
     def apply(self, local: torch.Tensor) -> torch.Tensor:

@@ -28,7 +28,7 @@ class ChannelBatchNorm(nn.Module):
         self.norm = nn.BatchNorm1d(channels)
 
     def forward(self, x: torch.Tensor) -> torch.Tensor:
-        return self.norm(x.transpose(1, 2)).transpose(1, 2)
+        return self.norm(x.transpose(1, 2)).transpose(1, 2)  # via (batch, channels, nodes)
 
 
 class FilterStack(nn.Module):
