@@ -141,7 +141,7 @@ DECIDE_HELP = """usage: shiftbench-decide [KEY=VALUE ...]
 Tune every candidate on equal budgets, retrain it on random splits x seeds, compare each with the
 best graph-free candidate in pairs, and say in one sentence per candidate whether it earns its keep.
 
-  decision.KEY=VALUE   the study's settings (configs/decision.yaml): trials, splits, seeds, rope,
+  decision.KEY=VALUE   the study's settings (decision/settings.yaml): trials, splits, seeds, rope,
                        alpha, sampler_seed, folder, candidates
   data=A[,B...]        the dataset(s); several give a rank test across datasets
   KEY=VALUE            any job override, given to every job (train.epochs=50, graph.neighbors=8)

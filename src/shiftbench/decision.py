@@ -59,7 +59,7 @@ class Dimension:
 
 @dataclass
 class Settings:
-    """The study's settings (``configs/decision.yaml``, overridden by ``decision.KEY=VALUE``)."""
+    """The study's settings (``decision/settings.yaml``, overridden by ``decision.KEY=VALUE``)."""
 
     candidates: list[Candidate]
     trials: int
@@ -103,10 +103,10 @@ def read_space(path: Path) -> list[Dimension]:
     return dimensions
 
 
-def read_settings(config_dir: Path, overrides: list[str], compose: Callable[[list[str]], DictConfig]) -> Settings:
+def read_settings(settings_dir: Path, overrides: list[str], compose: Callable[[list[str]], DictConfig]) -> Settings:
     """The study's settings with ``decision.*`` overrides applied, every candidate composed once
     and its search space read and checked against its config, before any job runs."""
-    base = OmegaConf.load(config_dir / "decision.yaml")
+    base = OmegaConf.load(settings_dir / "settings.yaml")
     try:
         changes = OmegaConf.from_dotlist([line.removeprefix("decision.") for line in overrides])
         OmegaConf.set_struct(base, True)
@@ -133,7 +133,7 @@ def read_settings(config_dir: Path, overrides: list[str], compose: Callable[[lis
         family = composed.arch.family
         candidates.append(Candidate(str(entry.name), tuple(entry.overrides), family, FAMILIES[family].uses_graph))
         if FAMILIES[family].fit is None and family not in spaces:
-            path = config_dir / "search" / f"{family}.yaml"
+            path = settings_dir / "search" / f"{family}.yaml"
             if not path.is_file():
                 raise ConfigError(f"candidate {entry.name!r}: no search space {path}; accepted: a search/<family>.yaml file")
             spaces[family] = read_space(path)

@@ -44,7 +44,9 @@ def run_study(arguments: list[str], config_dir: Path, say=print) -> str:
             OmegaConf.set_struct(config, False)
             return config
 
-        settings = read_settings(config_dir, own, lambda lines: composed([f"data={datasets[0]}", *common, *lines]))
+        # The study's settings and search spaces sit beside the Hydra tree, not in it: they are
+        # not job configs, and Hydra would offer them as config groups.
+        settings = read_settings(config_dir.parent / "decision", own, lambda lines: composed([f"data={datasets[0]}", *common, *lines]))
         results_dir = Path(composed([f"data={datasets[0]}", *common]).results_dir)
         outputs, scores = [], {}
         for dataset in datasets:
