@@ -128,11 +128,12 @@ def decide_main(arguments: list[str] | None = None) -> None:
     if any(a in ("-h", "--help") for a in arguments):
         print(DECIDE_HELP)
         return
+    from shiftbench.decision import DecisionError
     from shiftbench.decision_study import run_study
 
     try:
         print(run_study(arguments, CONFIG_DIR))
-    except ConfigError as error:
+    except (ConfigError, DecisionError) as error:
         fail(str(error))
 
 

@@ -30,6 +30,11 @@ from shiftbench.errors import ConfigError
 from shiftbench.registry import FAMILIES
 from shiftbench.statistics import compare_paired, holm
 
+class DecisionError(RuntimeError):
+    """The study cannot reach a verdict (every trial of a candidate failed, or no graph-free
+    candidate completed every unit); the message says which."""
+
+
 # Record figures the verdict reads, per unit.
 UNIT_FIELDS = ("test_accuracy", "val_accuracy", "parameters", "train_seconds", "inference_seconds_per_sample")
 
@@ -220,7 +225,7 @@ def tune(
         study.tell(trial, float(value))
         say(f"  trial {number + 1}/{settings.trials} of {candidate.name}: val accuracy {value:.3f}  {' '.join(lines)}")
     if failed == settings.trials:
-        raise RuntimeError(f"every tuning trial of {candidate.name} failed")
+        raise DecisionError(f"every tuning trial of {candidate.name} failed; see the failed records in the store")
     best = study.best_trial
     chosen = [f"{key}={override_text(value)}" for key, value in best.params.items()]
     return chosen, {"trials": settings.trials, "failed": failed, "best_val_accuracy": best.value}
@@ -269,7 +274,7 @@ def verdict(units: pd.DataFrame, candidates: list[Candidate], rope: float, alpha
     missing = {c.name: sorted(set(all_units) - present.get(c.name, set())) for c in candidates}
     floors = [c for c in candidates if not c.uses_graph and not missing[c.name]]
     if not floors:
-        raise ValueError("no graph-free candidate has every unit; accepted: at least one complete graph-free candidate")
+        raise DecisionError("no graph-free candidate completed every unit; rerun the study to fill the failed ones")
     means = completed.groupby("candidate")[list(UNIT_FIELDS)].mean(numeric_only=True)
     reference = max(floors, key=lambda c: (means.loc[c.name, "val_accuracy"], -candidates.index(c))).name
 
