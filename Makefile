@@ -25,7 +25,7 @@ run: setup
 	$(BIN)/shiftbench-report results/families
 
 test: setup
-	$(BIN)/python -m pytest -q -n 2
+	$(BIN)/python -m pytest -q -n 2 --dist worksteal
 
 bench: setup
 	$(BIN)/python -m benchmarks.layers
