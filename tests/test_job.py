@@ -8,7 +8,7 @@ import pytest
 import shiftbench.job
 from shiftbench.config import ConfigError
 from shiftbench.job import run_job
-from shiftbench.records import CURVE_FILE, RECORD_FILE
+from shiftbench.records import CURVE_FILE, RECORD_FILE, REQUIRED_FIELDS
 from tests.conftest import home
 
 DESIGN_FIELDS = {
@@ -24,6 +24,7 @@ def test_record_holds_every_design_field_and_the_curve_matches(small_config, tmp
     record = run_job(small_config("arch=graph_conv"), None, ["arch=graph_conv"], live=False)
     written = json.loads((home(record) / RECORD_FILE).read_text())
     assert DESIGN_FIELDS <= set(written)
+    assert DESIGN_FIELDS <= set(REQUIRED_FIELDS) <= set(written)  # the record's declared fields are all written
     assert written["status"] == "completed" and written == record
     curve = pd.read_csv(home(record) / CURVE_FILE)
     assert len(curve) == written["epochs_run"]
