@@ -164,17 +164,17 @@ def test_a_failed_record_is_retried(small_config, tmp_path, monkeypatch):
     assert retried["status"] == "completed" and "skipped" not in retried
 
 
-def test_parallel_jobs_share_the_cores_without_oversubscribing(monkeypatch):
+def test_a_job_computes_with_the_configured_thread_count_and_records_it(small_config):
     import torch
 
-    from shiftbench import runtime
-
-    monkeypatch.setattr(runtime, "available_cores", lambda: 8)
     before = torch.get_num_threads()
     try:
-        assert [runtime.share_cores(jobs) for jobs in (1, 2, 3, 8, 16, -1, None)] == [8, 4, 2, 1, 1, 1, 1]
+        record = run_job(small_config("threads=2"), None, [], live=False, quiet=True)
     finally:
         torch.set_num_threads(before)
+    assert record["torch_threads"] == 2
+    # The thread count is how a job runs, not what it computes: the same config is not redone.
+    assert run_job(small_config("threads=1"), None, [], live=False, quiet=True).get("skipped")
 
 
 def test_jobs_in_one_process_build_a_shared_dataset_and_graph_once(small_config, tmp_path, monkeypatch):

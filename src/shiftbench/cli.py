@@ -19,7 +19,7 @@ from shiftbench.job import run_job
 from shiftbench.preflight import preflight
 from shiftbench.config_store import register_defaults
 from shiftbench.records import MANIFEST_FILE as MANIFEST
-from shiftbench.runtime import keep_freed_memory, share_cores
+from shiftbench.runtime import keep_freed_memory
 
 # The groups' options come from the components' schemas (see config_store); registered on import,
 # before Hydra composes anything.
@@ -42,7 +42,6 @@ def _job(config: DictConfig) -> dict:
     in_sweep = hydra_config.mode == RunMode.MULTIRUN
     overrides = list(OmegaConf.to_container(hydra_config.overrides.task))  # type: ignore[arg-type]
     keep_freed_memory()
-    share_cores(hydra_config.launcher.get("n_jobs", 1))
     try:
         record = run_job(
             config,

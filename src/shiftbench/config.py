@@ -134,13 +134,14 @@ class RunConfig:
     results_dir: str
     device: str
     force: bool
+    threads: int
     data: Any
     graph: Any
     arch: Any
     train: TrainConfig
 
 
-ROOT_KEYS = ("seed", "split", "task", "results_dir", "device", "force", "data", "graph", "arch", "train")
+ROOT_KEYS = ("seed", "split", "task", "results_dir", "device", "force", "threads", "data", "graph", "arch", "train")
 GROUPS: dict[str, tuple[str, Registry | None]] = {
     "data": ("source", DATASETS),
     "graph": ("source", GRAPH_SOURCES),
@@ -170,10 +171,12 @@ def validate(config: DictConfig) -> RunConfig:
     require("results_dir", results_dir, isinstance(results_dir, str) and results_dir != "", "a folder path")
     require_inside("results_dir", results_dir)
     require("force", config.force, isinstance(config.force, bool), "true or false")
+    threads = config.threads
+    require("threads", threads, isinstance(threads, int) and not isinstance(threads, bool) and threads >= 1, "an integer >= 1")
     groups = {group: _validate_group(group, config[group]) for group in GROUPS}
     run = RunConfig(
         seed=config.seed, split=config.split, task=config.task, results_dir=results_dir, device=device,
-        force=config.force, **groups,
+        force=config.force, threads=threads, **groups,
     )
     nodes = run.data.known_nodes()
     if nodes is not None:

@@ -145,6 +145,7 @@ def execute(run: RunConfig, record: Record, home: Path, live: bool) -> list[dict
     """Load the data, fit the family and fill ``record`` with what it measured; a failure after
     validation is noted in the record, never raised (the other jobs of a sweep go on). Returns
     the learning curve."""
+    torch.set_num_threads(run.threads)
     try:
         dataset = load_data(run)
         check_graph_fits(run.graph, run.arch.family, dataset.nodes)

@@ -32,9 +32,9 @@ CURVE_FILE = "curve.csv"
 MANIFEST_FILE = "jobs.jsonl"
 # Record fields that only some jobs have; the rest are in every record of this version.
 OPTIONAL_FIELDS = ("graph_notes", "budget", "sized_widths", "chosen", "resumed_from_epoch", "failed_epoch", "traceback")
-# Keys of the config that say where output goes, whether to recompute, or how often to save
-# progress, not what is computed.
-OUTPUT_KEYS = ("results_dir", "force")
+# Keys of the config that say where output goes, whether to recompute, how many threads compute
+# it (the record keeps the count), or how often to save progress, not what is computed.
+OUTPUT_KEYS = ("results_dir", "force", "threads")
 TRAIN_RUN_KEYS = ("checkpoint_every",)
 # A job in one of these states is done: a rerun skips it.
 FINAL_STATUSES = ("completed", "timed_out")

@@ -1,4 +1,4 @@
-"""Process-wide settings that training speed depends on: torch's thread count and the C
+"""Process-wide settings that training speed depends on: the cores at hand and the C
 allocator's treatment of large blocks."""
 
 from __future__ import annotations
@@ -41,17 +41,6 @@ def available_cores() -> int:
     if hasattr(os, "sched_getaffinity"):
         return len(os.sched_getaffinity(0))
     return os.cpu_count() or 1
-
-
-def share_cores(parallel_jobs: int | None) -> int:
-    """Give this job ``cores // parallel_jobs`` torch threads (at least 1), so parallel jobs
-    together use no more threads than the machine has cores; ``None`` or ``-1`` mean one job
-    per core. Returns the thread count set."""
-    cores = available_cores()
-    jobs = cores if parallel_jobs in (None, -1) else max(1, parallel_jobs)
-    threads = max(1, cores // jobs)
-    torch.set_num_threads(threads)
-    return threads
 
 
 def available_memory_bytes() -> int:

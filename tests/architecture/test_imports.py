@@ -21,6 +21,7 @@ STAGES = {
     "shiftbench.graphs.graph": 2,
     "shiftbench.graphs.standard": 2,
     "shiftbench.graphs.operators": 2,
+    "shiftbench.graphs.files": 2,  # signal files carry their graph file (data.graph)
     "shiftbench.data": 3,
     "shiftbench.graphs": 4,
     "shiftbench.training_result": 5,

@@ -85,9 +85,23 @@ def test_rewiring_keeps_every_degree_and_changes_the_edges():
     assert len(edge_set(rewired) & edge_set(native)) < 0.5 * len(edge_set(native))
 
 
-def test_rewiring_a_directed_graph_is_refused_with_the_reason():
+def test_rewiring_a_directed_graph_keeps_every_in_and_out_degree():
+    # Reference: networkx.directed_edge_swap preserves in- and out-degrees (its documentation).
+    from shiftbench.graphs.graph import Graph
+    from shiftbench.graphs.sources import rewired_graph
+
+    native = Graph.from_networkx(nx.gnp_random_graph(60, 0.08, seed=3, directed=True), name="roads")
+    rewired = rewired_graph(native, swaps_per_edge=5, seed=1)
+    degrees = lambda graph: (sorted(graph.to_networkx().in_degree()), sorted(graph.to_networkx().out_degree()))
+    assert degrees(rewired) == degrees(native)
+    assert not rewired.is_symmetric()
+    assert rewired.name == "roads rewired"
+    assert len(edge_set(rewired) & edge_set(native)) < 0.5 * len(edge_set(native))
+
+
+def test_rewiring_a_graph_without_swappable_edges_is_refused_with_the_reason():
     from shiftbench.errors import ConfigError
     from shiftbench.graphs.sources import line_graph, rewired_graph
 
-    with pytest.raises(ConfigError, match="graph=rewired needs an undirected native graph"):
-        rewired_graph(line_graph(10), swaps_per_edge=1, seed=0)
+    with pytest.raises(ConfigError, match="graph=rewired cannot rewire 'line'"):
+        rewired_graph(line_graph(3), swaps_per_edge=1, seed=0)

@@ -26,6 +26,7 @@ from shiftbench.data.labels import encode_labels
 from shiftbench.config import Check, declared
 from shiftbench.data.splits import RandomSplitConfig, stratified_splits
 from shiftbench.errors import file_error
+from shiftbench.graphs.files import load_graph_file
 from shiftbench.graphs.standard import line_graph
 from shiftbench.registry import DATASETS, DatasetSource
 
@@ -150,13 +151,15 @@ def _random_splits(path: Path, labels: np.ndarray, val_fraction: float, test_fra
 
 
 def load_signal_file(
-    path: str, seed: int = 0, val_fraction: float = 0.2, test_fraction: float = 0.2
+    path: str, seed: int = 0, val_fraction: float = 0.2, test_fraction: float = 0.2, graph: str = ""
 ) -> Dataset:
-    """Read and check a user's signal file.
+    """Read and check a user's signal file, and the graph file ``graph`` that comes with it.
 
     Returns:
-        A dataset with signals ``(samples, nodes, features)``; its native graph is the directed
-        line graph in the file's node order, carrying ``positions`` when the file has them.
+        A dataset with signals ``(samples, nodes, features)``. Its native graph is the graph
+        file when one is given, else the directed line graph in the file's column order (named
+        ``column_order``: no structure beyond the order of the columns); it carries
+        ``positions`` when the signal file has them.
     """
     file = Path(path).expanduser()
     if file.suffix.lower() not in SUFFIXES:
@@ -176,8 +179,7 @@ def load_signal_file(
     nodes = signals.shape[1]
     positions = _check_positions(file, arrays["positions"], nodes) if "positions" in arrays else None
     native = replace(
-        line_graph(nodes),
-        name="column_order",
+        load_graph_file(graph, nodes, key="data.graph") if graph else replace(line_graph(nodes), name="column_order"),
         positions=None if positions is None else torch.as_tensor(positions, dtype=torch.float32),
     )
     return Dataset(
@@ -194,10 +196,12 @@ def load_signal_file(
 @dataclass
 class FileDataConfig(RandomSplitConfig):
     """The user's signals in a ``.npz`` or ``.csv`` file (``test_fraction`` applies when the file
-    brings no ``split``)."""
+    brings no ``split``), and the graph they live on (``graph``: a graph file, which becomes the
+    native graph; empty: the line graph in column order)."""
 
     source: str = "file"
     path: str = declared(Check(lambda value: value != "", "the path of a .npz or .csv file (data.path=...)"), "")
+    graph: str = ""
 
 
 DATASETS.add(DatasetSource("file", FileDataConfig, keyword_loader(load_signal_file), "signal file"))

@@ -14,6 +14,7 @@ Duplicate edges are summed and self-loops kept (both noted in the record). Every
 from __future__ import annotations
 
 import zipfile
+from collections.abc import Callable
 from functools import partial
 from dataclasses import dataclass, replace
 from pathlib import Path
@@ -33,62 +34,62 @@ from shiftbench.registry import GRAPH_SOURCES, GraphSource
 SUFFIXES = (".csv", ".npz", ".graphml", ".gml")
 
 
-_fail = partial(file_error, "graph.path")
+Fail = Callable[[Path, str], Exception]
 
 
-def read_edge_list(path: Path, nodes: int) -> Graph:
-    table = read_user_csv(path, _fail, "write a header source,target[,weight] and one edge a row")
+def read_edge_list(path: Path, nodes: int, fail: Fail) -> Graph:
+    table = read_user_csv(path, fail, "write a header source,target[,weight] and one edge a row")
     columns = [str(column).strip() for column in table.columns]
     if columns not in (["source", "target"], ["source", "target", "weight"]):
-        raise _fail(path, f"has columns {columns}; accepted: a header source,target or source,target,weight")
+        raise fail(path, f"has columns {columns}; accepted: a header source,target or source,target,weight")
     table.columns = columns
     if table.empty:
-        raise _fail(path, "has a header but no edges; accepted: one edge a row")
+        raise fail(path, "has a header but no edges; accepted: one edge a row")
     ids = table[["source", "target"]]
     if not all(pd.api.types.is_integer_dtype(ids[column]) for column in ids):
-        raise _fail(path, "source and target must be integer node ids 0..nodes-1")
+        raise fail(path, "source and target must be integer node ids 0..nodes-1")
     index = ids.to_numpy(dtype=np.int64).T
     if index.size and (index.min() < 0 or index.max() >= nodes):
         bad = int(index.max()) if index.max() >= nodes else int(index.min())
-        raise _fail(path, f"node id {bad} is outside the data's {nodes} nodes; accepted: ids 0..{nodes - 1}")
+        raise fail(path, f"node id {bad} is outside the data's {nodes} nodes; accepted: ids 0..{nodes - 1}")
     repeated = ids.duplicated(keep=False)
     if repeated.any():
         # File lines: the header is line 1, the first edge line 2.
         lines = [int(row) + 2 for row in np.flatnonzero(repeated.to_numpy())]
         first = ids[repeated].iloc[0]
-        raise _fail(path, f"lists edge {first['source']} -> {first['target']} more than once (lines "
+        raise fail(path, f"lists edge {first['source']} -> {first['target']} more than once (lines "
                     f"{', '.join(map(str, lines[:6]))}{', ...' if len(lines) > 6 else ''}); accepted: each edge once")
     weight = None
     if "weight" in table:
         if not pd.api.types.is_numeric_dtype(table["weight"]) or not np.isfinite(table["weight"]).all():
-            raise _fail(path, "weight column holds values that are not finite numbers")
+            raise fail(path, "weight column holds values that are not finite numbers")
         weight = table["weight"].to_numpy(dtype=np.float64)
     return Graph.from_edge_index(index, weight, nodes=nodes, name="file")
 
 
-def read_sparse_matrix(path: Path) -> Graph:
+def read_sparse_matrix(path: Path, fail: Fail) -> Graph:
     try:
         matrix = sp.load_npz(path)
     except (OSError, ValueError, KeyError, EOFError, zipfile.BadZipFile):
-        raise _fail(path, "is not a matrix saved with scipy.sparse.save_npz") from None
+        raise fail(path, "is not a matrix saved with scipy.sparse.save_npz") from None
     if matrix.shape[0] != matrix.shape[1]:
-        raise _fail(path, f"holds a {matrix.shape[0]}x{matrix.shape[1]} matrix; accepted: a square adjacency")
+        raise fail(path, f"holds a {matrix.shape[0]}x{matrix.shape[1]} matrix; accepted: a square adjacency")
     if not np.isfinite(matrix.data).all():
-        raise _fail(path, "holds weights that are not finite numbers")
+        raise fail(path, "holds weights that are not finite numbers")
     return Graph.from_adjacency(matrix, name="file")
 
 
-def read_networkx(path: Path) -> Graph:
+def read_networkx(path: Path, fail: Fail) -> Graph:
     reader = nx.read_graphml if path.suffix.lower() == ".graphml" else nx.read_gml
     try:
         graph = reader(path)
     except (OSError, nx.NetworkXError, ValueError, SyntaxError) as error:
         kind = "GraphML" if reader is nx.read_graphml else "GML"
-        raise _fail(path, f"cannot be read as {kind} ({str(error).splitlines()[0]})") from None
+        raise fail(path, f"cannot be read as {kind} ({str(error).splitlines()[0]})") from None
     try:
         loaded = Graph.from_networkx(graph, name="file")
     except (TypeError, ValueError):
-        raise _fail(path, "has edge weights that are not numbers") from None
+        raise fail(path, "has edge weights that are not numbers") from None
     if not graph.is_multigraph():
         return loaded
     # networkx sums parallel edges when it builds the matrix; say so in the record.
@@ -97,23 +98,26 @@ def read_networkx(path: Path) -> Graph:
     return replace(loaded, notes=(*loaded.notes, f"{parallel} duplicate edges summed") if parallel else loaded.notes)
 
 
-def load_graph_file(path: str, nodes: int) -> Graph:
-    """Read and check a user's graph for data with ``nodes`` nodes."""
+def load_graph_file(path: str, nodes: int, key: str = "graph.path") -> Graph:
+    """Read and check a user's graph for data with ``nodes`` nodes; errors name it as ``key``
+    (``graph.path`` for the ``file`` source, ``data.graph`` for the graph that signal files carry).
+    The graph is named by its file's name."""
+    fail = partial(file_error, key)
     file = Path(path).expanduser()
     suffix = file.suffix.lower()
     if suffix not in SUFFIXES:
-        raise _fail(file, f"has suffix {file.suffix!r}; accepted: {', '.join(SUFFIXES)}")
+        raise fail(file, f"has suffix {file.suffix!r}; accepted: {', '.join(SUFFIXES)}")
     if not file.is_file():
-        raise _fail(file, "no such file; give the path of an edge-list .csv, a scipy .npz, .graphml or .gml")
+        raise fail(file, "no such file; give the path of an edge-list .csv, a scipy .npz, .graphml or .gml")
     if suffix == ".csv":
-        graph = read_edge_list(file, nodes)
+        graph = read_edge_list(file, nodes, fail)
     elif suffix == ".npz":
-        graph = read_sparse_matrix(file)
+        graph = read_sparse_matrix(file, fail)
     else:
-        graph = read_networkx(file)
+        graph = read_networkx(file, fail)
     if graph.nodes != nodes:
-        raise _fail(file, f"has {graph.nodes} nodes but the data has {nodes}; they must agree")
-    return graph
+        raise fail(file, f"has {graph.nodes} nodes but the data has {nodes}; they must agree")
+    return replace(graph, name=file.name)
 
 
 @dataclass

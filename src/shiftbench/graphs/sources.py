@@ -10,6 +10,7 @@ from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 import networkx as nx
+import scipy.sparse as sp
 
 from shiftbench.config import PROBABILITY, POSITIVE, at_least, declared
 from shiftbench.errors import ConfigError
@@ -24,16 +25,32 @@ if TYPE_CHECKING:
 
 
 def rewired_graph(graph: Graph, swaps_per_edge: float, seed: int) -> Graph:
-    """The undirected ``graph`` randomly rewired by degree-preserving double edge swaps
-    (networkx's ``double_edge_swap``: ``u-v, x-y -> u-x, v-y``), ``swaps_per_edge`` per edge;
-    every node keeps its degree, the structure is scrambled. Weights become 1."""
-    if not graph.is_symmetric():
-        raise ConfigError(f"graph=rewired needs an undirected native graph, and {graph.name!r} is directed; accepted: data with an undirected native graph")
-    simple = graph.to_undirected_simple()
-    simple.remove_edges_from(nx.selfloop_edges(simple))
-    swap_edges(simple, int(swaps_per_edge * simple.number_of_edges()), seed)
+    """``graph`` randomly rewired, every node keeping its degrees, ``swaps_per_edge`` swaps per
+    edge; weights become 1 and self-loops are dropped. An undirected graph gets networkx's
+    ``double_edge_swap`` (``u-v, x-y -> u-x, v-y``: degrees kept); a directed one its
+    ``directed_edge_swap`` (``u->v->x->y -> u->x->v->y``: in- and out-degrees kept). The
+    structure is scrambled: the control for "does this graph matter, or would any graph with
+    these degrees do?"."""
     positions = None if graph.positions is None else graph.positions.numpy()
-    return Graph.from_undirected_simple(simple, graph.nodes, "rewired", positions)
+    name = f"{graph.name} rewired"
+    undirected = graph.is_symmetric()
+    simple = graph.to_undirected_simple() if undirected else nx.DiGraph(graph.to_networkx())
+    simple.remove_edges_from(nx.selfloop_edges(simple))
+    swaps = int(swaps_per_edge * simple.number_of_edges())
+    try:
+        if undirected:
+            swap_edges(simple, swaps, seed)
+        elif swaps:
+            nx.directed_edge_swap(simple, nswap=swaps, max_tries=swaps * 100, seed=seed)
+    except nx.NetworkXException as error:
+        raise ConfigError(
+            f"graph=rewired cannot rewire {graph.name!r} ({error}); accepted: a graph with edges that can be "
+            "swapped (two disjoint edges, or a directed path of 3 edges), or graph.swaps_per_edge=0"
+        ) from None
+    if undirected:
+        return Graph.from_undirected_simple(simple, graph.nodes, name, positions)
+    matrix = nx.to_scipy_sparse_array(simple, nodelist=range(graph.nodes), weight=None, format="csr")
+    return Graph.from_adjacency(sp.csr_matrix(matrix.T), name=name, positions=positions)
 
 
 def swap_edges(graph: nx.Graph, swaps: int, seed: int) -> None:
@@ -121,7 +138,7 @@ for _entry in (
     GraphSource(
         "rewired", RewiredGraphConfig,
         lambda config, dataset: rewired_graph(dataset.native_graph, config.swaps_per_edge, config.seed),
-        "rewired native graph",
+        "native graph rewired",
     ),
     GraphSource(
         "sbm", SbmGraphConfig,
