@@ -13,10 +13,13 @@ import io
 import resource
 import traceback
 from collections.abc import Callable
+from dataclasses import dataclass, field
 from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+import pandas as pd
 import torch
 from omegaconf import DictConfig
 
@@ -29,7 +32,9 @@ from shiftbench.models import build_model, count_parameters
 from shiftbench.models.budget import fit_budget, width_key
 from shiftbench.models.parameters import require_memory_for
 from shiftbench.progress import EpochProgress
-from shiftbench.records import FINAL_STATUSES, Record, config_hash, versions, write_curve, write_record
+from shiftbench.records import (
+    FINAL_STATUSES, Record, config_hash, versions, write_curve, write_predictions, write_record, write_weights,
+)
 from shiftbench.registry import FAMILIES, TASKS
 from shiftbench.runtime import available_memory_bytes
 from shiftbench.store import claim, finished_record, home_of, note_launch, release, set_aside, touch_claim
@@ -93,6 +98,7 @@ def fit_family(
     if family.uses_graph:
         key = (run.data, run.graph)
         graph = shared(f"graph/split{run.split}", key, lambda: build_graph(run.graph, dataset))
+        record.graph_name = graph.name
         record.graph_notes = graph_notes(graph)
         for note in record.graph_notes:
             print(f"note: graph {record.graph}: {note}", flush=True)
@@ -141,10 +147,29 @@ def new_record(run: RunConfig, plain: dict[str, Any], digest: str, overrides: li
     )
 
 
-def execute(run: RunConfig, record: Record, home: Path, live: bool) -> list[dict[str, float]]:
+@dataclass
+class JobOutputs:
+    """What a job leaves beside its record: the learning curve, the test predictions and a
+    network's final weights (empty or None where the job did not reach them)."""
+
+    curve: list[dict[str, float]] = field(default_factory=list)
+    predictions: pd.DataFrame | None = None
+    weights: dict[str, np.ndarray] | None = None
+
+
+def judge(run: RunConfig, dataset: Dataset, record: Record, result: TrainingResult) -> pd.DataFrame:
+    """Fill ``record`` with the task's further figures and flags; return the test predictions
+    as a table ``sample, label, predicted`` (``sample`` indexes the dataset)."""
+    test, train = dataset.splits.test, dataset.splits.train
+    judged = TASKS[run.task].judge(dataset.labels[test], result.test_predictions, dataset.labels[train], result.curve)
+    for key, value in judged.items():
+        setattr(record, key, value)
+    return pd.DataFrame({"sample": test, "label": dataset.labels[test], "predicted": result.test_predictions})
+
+
+def execute(run: RunConfig, record: Record, home: Path, live: bool) -> JobOutputs:
     """Load the data, fit the family and fill ``record`` with what it measured; a failure after
-    validation is noted in the record, never raised (the other jobs of a sweep go on). Returns
-    the learning curve."""
+    validation is noted in the record, never raised (the other jobs of a sweep go on)."""
     torch.set_num_threads(run.threads)
     try:
         dataset = load_data(run)
@@ -155,7 +180,8 @@ def execute(run: RunConfig, record: Record, home: Path, live: bool) -> list[dict
         result = fit_family(run, dataset, record, live, checkpointing, on_epoch=lambda row: touch_claim(home))
         if result.resumed_from_epoch is not None:
             record.resumed_from_epoch = result.resumed_from_epoch
-            print(f"resumed after epoch {result.resumed_from_epoch - 1} (its checkpoint), at epoch {result.resumed_from_epoch}", flush=True)
+            print(f"resumed at epoch {result.resumed_from_epoch} (the checkpoint holds epochs 1 to "
+                  f"{result.resumed_from_epoch - 1})", flush=True)
         record.status = result.status
         record.train_accuracy = result.train_accuracy
         record.val_accuracy = result.val_accuracy
@@ -167,7 +193,8 @@ def execute(run: RunConfig, record: Record, home: Path, live: bool) -> list[dict
         record.samples_per_second = result.samples_per_second
         record.inference_seconds_per_sample = result.inference_seconds_per_sample
         record.chosen = result.chosen
-        return result.curve
+        predictions = judge(run, dataset, record, result) if result.test_predictions is not None else None
+        return JobOutputs(result.curve, predictions, result.weights)
     except ConfigError:
         raise
     except TrainingDiverged as error:
@@ -176,16 +203,21 @@ def execute(run: RunConfig, record: Record, home: Path, live: bool) -> list[dict
     except Exception as error:  # a failed job is recorded, never lost, and the sweep goes on
         record.error = f"{type(error).__name__}: {error}"
         record.traceback = traceback.format_exc()
-    return []
+    return JobOutputs()
 
 
-def finish(record: Record, home: Path, curve: list[dict[str, float]]) -> Path:
-    """Write the record and curve into the job's home; a finished job leaves no checkpoint."""
+def finish(record: Record, home: Path, outputs: JobOutputs) -> Path:
+    """Write the curve, predictions, weights and, last, the record into the job's home; a
+    finished job leaves no checkpoint."""
     record.peak_rss_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     record.torch_threads = torch.get_num_threads()
     record.versions = versions()
     record.finished = datetime.now(timezone.utc).isoformat(timespec="seconds")
-    write_curve(home, curve)
+    write_curve(home, outputs.curve)
+    if outputs.predictions is not None:
+        write_predictions(home, outputs.predictions)
+    if outputs.weights is not None:
+        write_weights(home, outputs.weights)
     path = write_record(home, record.as_dict())
     if record.status in FINAL_STATUSES:
         remove_checkpoint(home)
@@ -230,8 +262,8 @@ def run_job(
             print(f"force: the earlier record is kept in {aside}", flush=True)
         record = new_record(run, plain, digest, overrides)
         with contextlib.redirect_stdout(io.StringIO()) if quiet else contextlib.nullcontext():
-            curve = execute(run, record, home, live)
-        finish(record, home, curve)
+            outputs = execute(run, record, home, live)
+        finish(record, home, outputs)
     finally:
         release(home)
     if launch is not None:

@@ -16,6 +16,7 @@ from dataclasses import asdict, dataclass, field, fields
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 import pandas as pd
 import torch
 
@@ -28,10 +29,17 @@ RECORD_FILE = "record.json"
 OLD_RECORD_FILE = "result.json"
 READABLE_VERSIONS = (1, 2)
 CURVE_FILE = "curve.csv"
+# Each finished run's test predictions (sample, label, predicted) and a network's final weights
+# (numpy arrays by state_dict key: numpy.load(..., allow_pickle=False) reads them, no pickle).
+PREDICTIONS_FILE = "predictions.csv"
+WEIGHTS_FILE = "weights.npz"
 # A launch folder's list of the jobs it asked for: one JSON object a line, pointing at homes.
 MANIFEST_FILE = "jobs.jsonl"
 # Record fields that only some jobs have; the rest are in every record of this version.
-OPTIONAL_FIELDS = ("graph_notes", "budget", "sized_widths", "chosen", "resumed_from_epoch", "failed_epoch", "traceback")
+OPTIONAL_FIELDS = (
+    "graph_name", "graph_notes", "budget", "sized_widths", "chosen", "chance_accuracy", "balanced_accuracy", "macro_f1",
+    "confusion_matrix", "flags", "resumed_from_epoch", "failed_epoch", "traceback",
+)
 # Keys of the config that say where output goes, whether to recompute, how many threads compute
 # it (the record keeps the count), or how often to save progress, not what is computed.
 OUTPUT_KEYS = ("results_dir", "force", "threads")
@@ -94,10 +102,16 @@ class Record:
     torch_threads: int | None = None
     versions: dict[str, str | None] = field(default_factory=dict)
     finished: str | None = None
+    graph_name: str | None = None
     graph_notes: list[str] | None = None
     budget: int | None = None
     sized_widths: list[int] | None = None
     chosen: dict[str, Any] | None = None
+    chance_accuracy: float | None = None
+    balanced_accuracy: float | None = None
+    macro_f1: float | None = None
+    confusion_matrix: list[list[int]] | None = None
+    flags: list[str] | None = None
     resumed_from_epoch: int | None = None
     failed_epoch: int | None = None
     traceback: str | None = None
@@ -121,6 +135,18 @@ def write_curve(folder: Path, curve: list[dict[str, float]]) -> Path:
         buffer, index=False
     )
     return write_atomic(folder / CURVE_FILE, buffer.getvalue())
+
+
+def write_predictions(folder: Path, predictions: pd.DataFrame) -> Path:
+    buffer = io.StringIO()
+    predictions.to_csv(buffer, index=False)
+    return write_atomic(folder / PREDICTIONS_FILE, buffer.getvalue())
+
+
+def write_weights(folder: Path, weights: dict[str, np.ndarray]) -> Path:
+    buffer = io.BytesIO()
+    np.savez(buffer, **weights)
+    return write_atomic(folder / WEIGHTS_FILE, buffer.getvalue())
 
 
 def computed_content(config: dict[str, Any]) -> dict[str, Any]:

@@ -103,6 +103,9 @@ class Task:
     Attributes:
         loss: ``(outputs, targets) -> scalar tensor``, averaged over the batch.
         correct: ``(outputs, targets) -> tensor`` of per-sample scores summed into the metric.
+        predict: ``outputs -> tensor`` of predicted targets (class indices).
+        judge: ``(targets, predicted, train_targets, curve) -> dict`` of the record's further
+            figures (per-class metrics, the chance level) and its ``flags`` on a suspect run.
         metric: the primary metric's name in records (``accuracy``).
         higher_is_better: the metric's direction.
         head: ``pooled`` (one output per signal) or ``nodes`` (one per node).
@@ -112,6 +115,8 @@ class Task:
     name: str
     loss: Callable[..., Any]
     correct: Callable[..., Any]
+    predict: Callable[..., Any]
+    judge: Callable[..., dict[str, Any]]
     metric: str
     higher_is_better: bool
     head: str

@@ -63,6 +63,14 @@ def make_optimizer(model: nn.Module, config: TrainConfig) -> torch.optim.Optimiz
 
 
 @torch.no_grad()
+def outputs_of(model: nn.Module, signals: torch.Tensor, batch_size: int) -> torch.Tensor:
+    """``model``'s outputs in eval mode, ``batch_size`` samples at a time.
+
+    Shapes: signals ``(samples, nodes, features)`` -> ``(samples, outputs)``."""
+    model.eval()
+    return torch.cat([model(signals[start : start + batch_size]) for start in range(0, len(signals), batch_size)])
+
+
 def evaluate(
     model: nn.Module, signals: torch.Tensor, labels: torch.Tensor, batch_size: int, task: Task = CLASSIFICATION
 ) -> tuple[float, float]:
@@ -71,14 +79,8 @@ def evaluate(
     Args:
         signals: ``(samples, nodes, features)``; labels: ``(samples,)``.
     """
-    model.eval()
-    loss_sum, correct = 0.0, 0
-    for start in range(0, len(labels), batch_size):
-        outputs = model(signals[start : start + batch_size])
-        target = labels[start : start + batch_size]
-        loss_sum += task.loss(outputs, target, reduction="sum").item()
-        correct += int(task.correct(outputs, target).sum())
-    return loss_sum / len(labels), correct / len(labels)
+    outputs = outputs_of(model, signals, batch_size)
+    return task.loss(outputs, labels, reduction="sum").item() / len(labels), int(task.correct(outputs, labels).sum()) / len(labels)
 
 
 @dataclass
@@ -260,8 +262,11 @@ def final_result(
     train_x, train_y = signals[split["train"]], labels[split["train"]]
     _, train_accuracy = evaluate(model, train_x, train_y, config.batch_size, task)
     predicting = time.perf_counter()
-    test_loss, test_accuracy = evaluate(model, signals[split["test"]], labels[split["test"]], config.batch_size, task)
+    test_outputs = outputs_of(model, signals[split["test"]], config.batch_size)
     inference = (time.perf_counter() - predicting) / max(len(split["test"]), 1)
+    test_y = labels[split["test"]]
+    test_loss = task.loss(test_outputs, test_y, reduction="sum").item() / len(test_y)
+    test_accuracy = int(task.correct(test_outputs, test_y).sum()) / len(test_y)
     curve = state.curve
     if curve:
         val_accuracy = state.stopping.best[0]
@@ -280,4 +285,6 @@ def final_result(
         status=status,
         resumed_from_epoch=state.resumed_from,
         inference_seconds_per_sample=inference,
+        test_predictions=task.predict(test_outputs).cpu().numpy(),
+        weights={name: tensor.detach().cpu().numpy() for name, tensor in model.state_dict().items()},
     )

@@ -5,13 +5,17 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
+import numpy as np
+
 
 @dataclass
 class TrainingResult:
     """What a finished training run measured. ``curve`` holds one dict per epoch with keys
     ``epoch, train_loss, train_accuracy, val_loss, val_accuracy, seconds``. Figures that a
     family does not have (the 1-NN floor has no loss and no epochs) are None. ``chosen`` holds the
-    setting a self-tuning floor picked on the validation split."""
+    setting a self-tuning floor picked on the validation split. ``test_predictions`` holds the
+    predicted class of each test sample (in the order of the split's indices), ``weights`` the
+    trained network's final ``state_dict`` as numpy arrays (None for the floors)."""
 
     train_accuracy: float
     val_accuracy: float
@@ -26,3 +30,5 @@ class TrainingResult:
     resumed_from_epoch: int | None = None
     inference_seconds_per_sample: float | None = None
     chosen: dict[str, Any] | None = None
+    test_predictions: np.ndarray | None = None
+    weights: dict[str, np.ndarray] | None = None

@@ -59,7 +59,7 @@ CONFIG_CASES: list[tuple[list[str], str]] = [
     (["train.batch_size=1.5"], "train.batch_size=1.5 has the wrong type; accepted: an integer"),
     (["arch.foo=1"], "unknown key arch.foo (arch family graph_conv); accepted keys: family, order, channels, "
                      "nonlinearity, readout, dropout, normalization, budget"),
-    (["+foo=1"], "unknown key foo; accepted top-level keys: seed, split, task, results_dir, device, force, data, graph, arch, train"),
+    (["+foo=1"], "unknown key foo; accepted top-level keys: seed, split, task, results_dir, device, force, threads, data, graph, arch, train"),
     (["arch=cnn"], "arch='cnn' is not accepted; accepted: one of fc, forest, graph_conv, lda, line_conv, logistic, nearest, qda"),
     (["graph=ring"], "graph='ring' is not accepted; accepted: one of correlation, cycle, file, geometric, grid, knn, "
                      "line, native, path, rewired, sbm"),
@@ -68,6 +68,7 @@ CONFIG_CASES: list[tuple[list[str], str]] = [
     (["hydra/launcher=slurm_cpu"], "hydra/launcher=slurm_cpu: no SLURM on this machine (srun not found); run with "
                                    "hydra/launcher=joblib here, or on a cluster's login node"),
     (["arch.order=-1"], "arch.order=-1 is not accepted; accepted: an integer >= 0"),
+    (["threads=0"], "threads=0 is not accepted; accepted: an integer >= 1"),
     (["train.epochs=0"], "train.epochs=0 is not accepted; accepted: an integer >= 1"),
     (["train.lr=0"], "train.lr=0.0 is not accepted; accepted: a number > 0"),
     (["train.max_seconds=-5"], "train.max_seconds=-5.0 is not accepted; accepted: a number of seconds > 0, or null"),

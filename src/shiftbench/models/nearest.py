@@ -18,11 +18,16 @@ from shiftbench.registry import FAMILIES, Family
 from shiftbench.training_result import TrainingResult
 
 
-def _accuracy(reference: np.ndarray, queries: np.ndarray, dataset: Dataset) -> float:
-    """Accuracy on ``queries`` of 1-NN with ``reference`` samples (index arrays)."""
+def _predict(reference: np.ndarray, queries: np.ndarray, dataset: Dataset) -> np.ndarray:
+    """The 1-NN class of each of ``queries`` with ``reference`` samples (index arrays)."""
     flat = dataset.signals.reshape(dataset.samples, -1)  # (samples, nodes * features)
     classifier = KNeighborsClassifier(n_neighbors=1, algorithm="brute").fit(flat[reference], dataset.labels[reference])
-    return float(classifier.score(flat[queries], dataset.labels[queries]))
+    return classifier.predict(flat[queries])
+
+
+def _accuracy(reference: np.ndarray, queries: np.ndarray, dataset: Dataset) -> float:
+    """Accuracy on ``queries`` of 1-NN with ``reference`` samples (index arrays)."""
+    return float((_predict(reference, queries, dataset) == dataset.labels[queries]).mean())
 
 
 def fit_nearest(dataset: Dataset) -> TrainingResult:
@@ -30,8 +35,9 @@ def fit_nearest(dataset: Dataset) -> TrainingResult:
     splits = dataset.splits
     labelled = np.concatenate([splits.train, splits.val])
     started = time.perf_counter()
-    test_accuracy = _accuracy(labelled, splits.test, dataset)
+    predicted = _predict(labelled, splits.test, dataset)
     seconds = time.perf_counter() - started
+    test_accuracy = float((predicted == dataset.labels[splits.test]).mean())
     return TrainingResult(
         train_accuracy=_accuracy(splits.train, splits.train, dataset),
         val_accuracy=_accuracy(splits.train, splits.val, dataset),
@@ -43,6 +49,7 @@ def fit_nearest(dataset: Dataset) -> TrainingResult:
         samples_per_second=len(labelled) / max(seconds, 1e-9),
         curve=[],
         inference_seconds_per_sample=seconds / max(len(splits.test), 1),
+        test_predictions=predicted,
     )
 
 
