@@ -59,11 +59,11 @@ def test_scaling_plot_draws_accuracy_and_parameters_per_node_count(tmp_path):
     assert sorted(zip(points["family"], points["nodes"], points["parameters"], points["test_accuracy_mean"])) == expected
 
 
-def test_learning_curves_draw_each_seed_of_a_row(tmp_path):
+def test_learning_curves_draw_each_seed_of_a_row_labelled_by_seed(tmp_path):
     table = records(tmp_path)
     path, points = plots.learning_curves(table.loc[0, "paths"], tmp_path / "c.png")
     assert is_png(path)
-    assert points["folder"].nunique() == 2 and len(points) == 4
+    assert sorted(points["run"].unique()) == ["seed 0", "seed 1"] and len(points) == 4
 
 
 def test_standard_plots_pick_what_the_rows_vary_in(tmp_path):

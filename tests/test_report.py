@@ -117,3 +117,42 @@ def test_every_config_key_that_varies_is_a_column_of_every_table(tmp_path):
     assert sorted(zip(csv["arch.readout"], csv["train.lr"])) == [("flatten", 0.001), ("flatten", 0.01), ("mean", 0.001), ("mean", 0.01)]
     assert "arch.readout" in text.splitlines()[2] and "train.lr" in text.splitlines()[2]
     assert "| arch.readout | train.lr |" in markdown
+
+
+def test_flagged_seeds_are_counted_in_their_row_and_kept_in_the_figures():
+    flagged = [dict(entry, flags=["at_chance"] if entry["seed"] == 0 else []) for entry in RECORDS[:3]]
+    table = summary_table(pd.DataFrame(flagged))
+    assert table.loc[0, "flags"] == "1 of 3 seeds at chance"
+    assert table.loc[0, "test_accuracy_mean"] == np.mean([0.70, 0.80, 0.75])
+
+
+def test_a_family_near_chance_beside_a_better_one_gets_a_note_naming_its_readout(tmp_path):
+    def config(family, readout):
+        arch = {"family": family, **({"readout": readout} if readout else {})}
+        return {"seed": 0, "arch": arch, "train": {"lr": 0.01}}
+
+    entries = [
+        dict(record("fc", "none", None, seed, accuracy), chance_accuracy=0.25, config=config("fc", None))
+        for seed, accuracy in ((0, 0.95), (1, 0.93))
+    ] + [
+        dict(record("graph_conv", "native", 3, seed, accuracy), chance_accuracy=0.25, config=config("graph_conv", "mean"))
+        for seed, accuracy in ((0, 0.26), (1, 0.27))
+    ]
+    for number, entry in enumerate(entries):
+        write_record(tmp_path / str(number), entry)
+    text = write_report([tmp_path], tmp_path)
+    assert "note: graph_conv's best row scores 0.265, near chance (0.250), while fc reaches 0.940" in text
+    assert "arch.readout=mean" in text and "try arch.readout=flatten" in text
+    assert "near chance" in (tmp_path / "summary.md").read_text()
+
+
+def test_no_note_when_every_family_is_near_chance(tmp_path):
+    entries = [dict(record(family, "native", 3, 0, 0.26), chance_accuracy=0.25) for family in ("fc", "graph_conv")]
+    for number, entry in enumerate(entries):
+        write_record(tmp_path / str(number), entry)
+    assert "near chance" not in write_report([tmp_path], tmp_path)
+
+
+def test_a_native_graph_row_names_the_graph_it_stood_for():
+    table = summary_table(pd.DataFrame([dict(RECORDS[3], graph_name="roads.csv")]))
+    assert table.loc[0, "graph"] == "native: roads.csv"

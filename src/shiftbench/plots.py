@@ -14,7 +14,7 @@ import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 import pandas as pd  # noqa: E402
 
-from shiftbench.records import CURVE_FILE, write_atomic  # noqa: E402
+from shiftbench.records import CURVE_FILE, RECORD_FILE, read_record, write_atomic  # noqa: E402
 from shiftbench.registry import FAMILIES  # noqa: E402
 
 
@@ -114,19 +114,30 @@ def scaling(table: pd.DataFrame, path: Path) -> tuple[Path, pd.DataFrame]:
     return _save(figure, path), points.reset_index(drop=True)
 
 
+def run_label(folder: Path) -> str:
+    """``seed 2`` (``seed 2, split 1`` on a redrawn split) from the record in ``folder``; the
+    folder's name when it holds no readable record."""
+    try:
+        record = read_record(folder / RECORD_FILE)
+    except (OSError, ValueError):
+        return folder.name
+    split = record.get("split") or 0
+    return f"seed {record.get('seed')}" + (f", split {split}" if split else "")
+
+
 def learning_curves(folders: list[str], path: Path) -> tuple[Path, pd.DataFrame]:
-    """Training loss and validation accuracy per epoch, one line per seed of a table row."""
+    """Training loss and validation accuracy per epoch, one line per seed of a table row,
+    labelled by seed."""
     curves = []
     for folder in folders:
         file = Path(folder) / CURVE_FILE
         if file.is_file():
             curve = pd.read_csv(file)
             if not curve.empty:
-                curves.append(curve.assign(folder=folder))
-    points = pd.concat(curves, ignore_index=True) if curves else pd.DataFrame(columns=["epoch", "folder"])
+                curves.append(curve.assign(run=run_label(Path(folder))))
+    points = pd.concat(curves, ignore_index=True) if curves else pd.DataFrame(columns=["epoch", "run"])
     figure, (loss, accuracy) = plt.subplots(1, 2, figsize=(10, 4))
-    for folder, curve in points.groupby("folder", sort=True):
-        name = Path(folder).name
+    for name, curve in points.groupby("run", sort=True):
         loss.plot(curve["epoch"], curve["train_loss"], label=name)
         accuracy.plot(curve["epoch"], curve["val_accuracy"], label=name)
     loss.set_ylabel("training loss")

@@ -27,16 +27,21 @@ FIGURES = [
     "train_seconds_mean",
     "epoch_seconds_mean",
     "failed",
+    "chance",
+    "flags",
 ]
 # What the terminal and markdown tables show (the CSV holds every column).
-SHOWN = ["parameters", "test_accuracy_mean", "test_accuracy_ci95", "seeds", "train_seconds_mean", "failed"]
+SHOWN = ["parameters", "test_accuracy_mean", "test_accuracy_ci95", "seeds", "train_seconds_mean", "failed", "flags"]
 HEADERS = {
     "test_accuracy_mean": "test acc",
     "test_accuracy_std": "± std",
     "test_accuracy_ci95": "± 95% CI",
     "train_seconds_mean": "train s",
     "epoch_seconds_mean": "s/epoch",
+    "chance": "chance acc",
 }
+# What a record's flags say in a table row ("2 of 5 seeds at chance").
+FLAG_TEXT = {"at_chance": "at chance", "loss_never_fell": "loss never fell"}
 CONFIDENCE = 0.95
 INTEGER_COLUMNS = ("nodes", "order", "budget", "parameters")
 
@@ -93,6 +98,22 @@ def varied_keys(records: pd.DataFrame) -> tuple[list[str], list[dict[str, str]]]
     return [key for key, seen in values.items() if len(seen) > 1 and key not in DESCRIBED_KEYS], configs
 
 
+def graph_label(graph: object, graph_name: object) -> object:
+    """The graph a row used, readable: the source, and for ``native`` and ``file`` the graph it
+    stood for (``native: roads.csv``)."""
+    if graph in ("native", "file") and isinstance(graph_name, str):
+        return f"{graph}: {graph_name}"
+    return graph
+
+
+def flags_text(flags: pd.Series, completed: int) -> str | None:
+    """``2 of 5 seeds at chance; 1 of 5 seeds loss never fell`` for the records' flag lists, or
+    None when no record is flagged."""
+    counts = {name: sum(name in cell for cell in flags if isinstance(cell, list)) for name in FLAG_TEXT}
+    said = [f"{count} of {completed} seeds {FLAG_TEXT[name]}" for name, count in counts.items() if count]
+    return "; ".join(said) or None
+
+
 def filter_records(records: pd.DataFrame, where: Iterable[str]) -> pd.DataFrame:
     """Keep the records whose ``key`` column reads ``value`` for every ``key=value`` given."""
     for condition in where:
@@ -114,14 +135,18 @@ def summary_table(records: pd.DataFrame, by: Iterable[str] = ()) -> pd.DataFrame
     ``parameters`` (median over completed jobs), ``test_accuracy_mean`` and ``_std`` (sample
     standard deviation), the 95% Student t interval of the mean (``_ci95_low``, ``_ci95_high``
     and half-width ``_ci95``), ``seeds`` (completed jobs), ``train_seconds_mean``,
-    ``epoch_seconds_mean``, ``failed`` (failed jobs), and ``paths`` (the records' folders).
+    ``epoch_seconds_mean``, ``failed`` (failed jobs), ``chance`` (the majority-class rate on the
+    test split), ``flags`` (``2 of 5 seeds at chance``: suspect runs, kept in the figures) and
+    ``paths`` (the records' folders). ``graph`` names the graph a native or file source stood for.
     Rows are sorted by ``by`` (default: the describing fields).
     """
     frame = records.copy()
-    for column in [*DESCRIBE, "parameters", "test_accuracy", "train_seconds", "epochs_run", "path"]:
+    for column in [*DESCRIBE, "parameters", "test_accuracy", "train_seconds", "epochs_run", "path", "graph_name",
+                   "chance_accuracy", "flags"]:
         if column not in frame:
             frame[column] = float("nan")
     frame["setting"] = [setting_of(row) for _, row in frame.iterrows()]
+    frame["graph"] = [graph_label(graph, name) for graph, name in zip(frame["graph"], frame["graph_name"])]
     varied, configs = varied_keys(frame)
     for key in varied:
         frame[key] = [config.get(key, "-") for config in configs]
@@ -142,10 +167,13 @@ def summary_table(records: pd.DataFrame, by: Iterable[str] = ()) -> pd.DataFrame
             train_seconds_mean=("train_seconds", "mean"),
             epoch_seconds_mean=("epoch_seconds", "mean"),
             failed=("is_failed", "sum"),
+            chance=("chance_accuracy", "mean"),
+            flag_lists=("flags", list),
             paths=("path", lambda paths: [p for p in paths if isinstance(p, str)]),
         )
         .reset_index(drop=True)
     )
+    table["flags"] = [flags_text(pd.Series(lists), int(seeds)) for lists, seeds in zip(table["flag_lists"], table["seeds"])]
     for column in INTEGER_COLUMNS:
         table[column] = pd.to_numeric(table[column], errors="coerce").round().astype("Int64")
     intervals = [
@@ -165,7 +193,7 @@ def summary_table(records: pd.DataFrame, by: Iterable[str] = ()) -> pd.DataFrame
 
 
 # Figures that, when equal in every row (all seeds done, none failed), are said once instead.
-SAID_ONCE = ("seeds", "failed")
+SAID_ONCE = ("seeds", "failed", "flags")
 
 
 def split_constants(table: pd.DataFrame) -> tuple[dict[str, str], pd.DataFrame]:
@@ -193,7 +221,7 @@ def _cells(table: pd.DataFrame) -> list[list[str]]:
             return ", ".join(map(str, value))
         if pd.isna(value):
             return "-"
-        if column.startswith("test_accuracy"):
+        if column.startswith("test_accuracy") or column == "chance":
             return f"{value:.3f}"
         if column.endswith("seconds_mean"):
             return f"{value:.1f}" if column.startswith("train") else f"{value:.3f}"
@@ -245,6 +273,49 @@ def launch_outcomes(paths: Iterable[Path]) -> dict[str, int]:
     return counts
 
 
+# A family's best row is "near chance" when it closes less than this share of the gap between
+# chance and a perfect score, while another family's best closes at least WELL_ABOVE of it.
+NEAR_CHANCE, WELL_ABOVE = 0.1, 0.3
+
+
+# Keys that tell runs apart without being settings a user would change to escape chance.
+IGNORED = ("seed", "results_dir", "force", "threads", "arch.family")
+
+
+def near_chance_notes(table: pd.DataFrame, configs: dict[str, dict[str, str]]) -> list[str]:
+    """One sentence for each family whose best row scores near chance while another family's
+    best row does not, naming the settings of that row that the better row does not share.
+
+    Args:
+        configs: each row's flat config (``dotted.key -> value``) by the row's first path.
+    """
+    scored = table.dropna(subset=["test_accuracy_mean", "chance"])
+    if scored.empty:
+        return []
+    best = scored.loc[scored.groupby("family")["test_accuracy_mean"].idxmax()]
+    gap = lambda row: (row["test_accuracy_mean"] - row["chance"]) / max(1 - row["chance"], 1e-9)
+    leader = best.loc[best["test_accuracy_mean"].idxmax()]
+    if gap(leader) < WELL_ABOVE:
+        return []
+    notes = []
+    for _, row in best.iterrows():
+        if gap(row) >= NEAR_CHANCE:
+            continue
+        first = lambda paths: paths[0] if paths else None
+        mine, theirs = configs.get(first(row["paths"]), {}), configs.get(first(leader["paths"]), {})
+        differ = [f"{key}={value}" for key, value in mine.items() if theirs.get(key) != value and key not in IGNORED]
+        hint = ""
+        if mine.get("arch.readout") in ("mean", "max"):
+            hint = (f"; a pooled readout ({mine['arch.readout']}) keeps no trace of where on the graph a signal "
+                    "lies: try arch.readout=flatten, or let shiftbench-decide choose it")
+        notes.append(
+            f"{row['family']}'s best row scores {row['test_accuracy_mean']:.3f}, near chance ({row['chance']:.3f}), "
+            f"while {leader['family']} reaches {leader['test_accuracy_mean']:.3f}; that {row['family']} row differs "
+            f"in {', '.join(differ[:8]) or 'no config key'}{hint}"
+        )
+    return notes
+
+
 def _outcomes_line(counts: dict[str, int]) -> str:
     return "jobs: " + ", ".join(f"{counts[name]} {name}" for name in OUTCOMES) if any(counts.values()) else ""
 
@@ -279,13 +350,17 @@ def write_report(
         figures.append(plots.learning_curves(table.loc[curves, "paths"], out / f"curves_row{curves}.png")[0])
     constants, shown = split_constants(table)
     outcomes = _outcomes_line(launch_outcomes(paths))
+    configs = {path: flat_config(config) for path, config in zip(records.get("path", []), records.get("config", []))
+               if isinstance(config, dict)}
+    notes = [f"note: {note}" for note in near_chance_notes(table, configs)]
     markdown = ["# Summary", ""] + ([outcomes + ".", ""] if outcomes else [])
     if constants:
         markdown += [f"All rows: {', '.join(f'`{k}={v}`' for k, v in constants.items())}.", ""]
     markdown += [format_markdown(shown)]
+    markdown += [note + "\n" for note in notes]
     markdown += [f"![{figure.stem.replace('_', ' ')}]({figure.name})\n" for figure in figures]
     write_atomic(out / "summary.md", "\n".join(markdown))
     text = format_terminal(shown)
     head = _constants_line(constants)
     written = ", ".join(figure.name for figure in figures)
-    return "\n".join(filter(None, [outcomes, head, text, f"plots: {written}" if written else ""]))
+    return "\n".join(filter(None, [outcomes, head, text, *notes, f"plots: {written}" if written else ""]))
