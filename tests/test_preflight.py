@@ -58,12 +58,25 @@ def test_bad_command_line_is_one_line_naming_key_and_value(arguments, named):
     ],
 )
 def test_documented_command_lines_pass(arguments):
-    assert preflight(arguments, CONFIG_DIR) >= 1
+    assert preflight(arguments, CONFIG_DIR).configs >= 1
 
 
 def test_every_value_of_a_study_axis_is_checked():
-    # The families study sweeps 5 setups and 3 seeds: the base config plus 4 + 2 variants.
-    assert preflight(["-m", "+experiment=families"], CONFIG_DIR) == 7
+    # The families study sweeps 10 setups and 3 seeds: the base config plus 9 + 2 variants.
+    checked = preflight(["-m", "+experiment=families"], CONFIG_DIR)
+    assert (checked.configs, checked.notes) == (12, [])
+
+
+def test_sweep_values_that_give_one_configuration_are_named_not_dropped_silently():
+    # graph=... on the command line wins over the study rows' graphs: the three graph rows at
+    # one readout collapse into one configuration.
+    checked = preflight(["-m", "+experiment=families", "graph=cycle"], CONFIG_DIR)
+    assert any(
+        note.startswith("note: +experiment/setups=graph_conv_rewired gives the same configuration as "
+                        "+experiment/setups=graph_conv_native")
+        for note in checked.notes
+    )
+    assert len(checked.notes) == 4  # rewired and line, at each readout
 
 
 def test_a_model_too_large_to_train_is_refused_with_the_count_it_would_need():

@@ -62,9 +62,11 @@ def main() -> None:
         fail("hydra/launcher=slurm_cpu: no SLURM on this machine (srun not found); run with "
              "hydra/launcher=joblib here, or on a cluster's login node")
     try:
-        preflight(sys.argv[1:], CONFIG_DIR)
+        checked = preflight(sys.argv[1:], CONFIG_DIR)
     except ConfigError as error:
         fail(str(error))
+    for note in checked.notes:
+        print(note, file=sys.stderr, flush=True)
     try:
         _job()
     except ValueError as error:  # Hydra's own refusals of a command line, e.g. two modes at once

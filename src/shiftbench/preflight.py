@@ -10,15 +10,17 @@ user's data and graph files are read and checked.
 from __future__ import annotations
 
 import re
+from dataclasses import dataclass, field
 from pathlib import Path
 
 from hydra import compose, initialize_config_dir
 from hydra.errors import HydraException, MissingConfigException
 from omegaconf import DictConfig, OmegaConf
 
-from shiftbench.config import ConfigError, require_inside, validate
+from shiftbench.config import ConfigError, as_plain_dict, require_inside, validate
 from shiftbench.config_store import register_defaults
 from shiftbench.job import check_inputs
+from shiftbench.records import config_hash
 from shiftbench.sweep_axes import add_study_axes, split_overrides
 
 # Hydra flags that take the next argument as their value.
@@ -46,15 +48,24 @@ def override_arguments(arguments: list[str]) -> list[str] | None:
 OUTPUT_DIRECTORY_KEYS = ("hydra.run.dir", "hydra.sweep.dir")
 
 
-def preflight(arguments: list[str], config_dir: Path) -> int:
-    """Validate every job a command line would launch; return how many configs were checked.
+@dataclass
+class Checked:
+    """What the pre-launch check found: how many configs it composed, and notes on sweep values
+    that give the same configuration (the store runs such a configuration once)."""
+
+    configs: int
+    notes: list[str] = field(default_factory=list)
+
+
+def preflight(arguments: list[str], config_dir: Path) -> Checked:
+    """Validate every job a command line would launch.
 
     Raises:
         ConfigError: one line naming the bad key, its value and what is accepted.
     """
     overrides = override_arguments(arguments)
     if overrides is None:
-        return 0
+        return Checked(0)
     for override in overrides:
         key, _, value = override.partition("=")
         if key in OUTPUT_DIRECTORY_KEYS:
@@ -70,15 +81,22 @@ def preflight(arguments: list[str], config_dir: Path) -> int:
         config = _compose(base)
         add_study_axes(axes, fixed, config.hydra.sweeper.get("params") or {})
         base = fixed + [values[0] for values in axes.values()]
-        checked = 0
-        _validate(_compose(base))
+        first = _validate(_compose(base))
+        checked = Checked(1)
         for position, values in enumerate(axes.values()):
+            seen = {first: values[0]}
             for value in values[1:]:
                 variant = list(base)
                 variant[len(fixed) + position] = value
-                _validate(_compose(variant))
-                checked += 1
-    return checked + 1
+                digest = _validate(_compose(variant))
+                checked.configs += 1
+                if digest in seen:
+                    checked.notes.append(
+                        f"note: {value} gives the same configuration as {seen[digest]} (with {', '.join(base) or 'the defaults'}); "
+                        f"it runs once and the tables show it once, as {seen[digest]}"
+                    )
+                seen.setdefault(digest, value)
+    return checked
 
 
 def _compose(overrides: list[str]) -> DictConfig:
@@ -111,9 +129,12 @@ def _added_key_retry(overrides: list[str], error: HydraException) -> DictConfig 
         return None
 
 
-def _validate(config: DictConfig) -> None:
+def _validate(config: DictConfig) -> str:
+    """Check a composed job config and its files; return its config hash."""
     job = OmegaConf.masked_copy(config, [key for key in config.keys() if key != "hydra"])
-    check_inputs(validate(job))
+    run = validate(job)
+    check_inputs(run)
+    return config_hash(as_plain_dict(run))
 
 
 def _one_line(message: str) -> str:
