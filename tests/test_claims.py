@@ -42,7 +42,7 @@ def test_path_filters_fit_symmetric_kernels_only():
 
 def test_permutation_equivariance_holds_for_graph_conv_only(small_demo):
     # Source: Gama, Bruna & Ribeiro 2020, "Stability properties of graph neural networks", IEEE TSP 68.
-    claim = claims.permutation_equivariance(small_demo)
+    claim = claims.permutation_equivariance(small_demo, small_demo.native_graph)
     assert claim.verdict == "holds"
     assert claim.evidence["max_abs_logit_difference"]["fc"] > 1e-3
 

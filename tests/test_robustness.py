@@ -52,7 +52,8 @@ def test_a_copy_on_another_graph_leaves_the_original_untouched(trained):
 
 def test_transfer_evaluates_the_same_weights_at_every_size(trained):
     demo, model = trained
-    table = transfer_table(model, [demo, sensor_regimes(nodes=80, samples_per_class=40)], "adjacency", "spectral")
+    larger = sensor_regimes(nodes=80, samples_per_class=40)
+    table = transfer_table(model, [(demo, demo.native_graph), (larger, larger.native_graph)], "adjacency", "spectral")
     assert table["nodes"].tolist() == [40, 80]
     assert table["test_accuracy"].iloc[0] == accuracy_on_test(model, demo)
     assert np.isfinite(table["test_accuracy"]).all()

@@ -173,7 +173,7 @@ def validate(config: DictConfig) -> RunConfig:
     require("force", config.force, isinstance(config.force, bool), "true or false")
     threads = config.threads
     require("threads", threads, isinstance(threads, int) and not isinstance(threads, bool) and threads >= 1, "an integer >= 1")
-    groups = {group: _validate_group(group, config[group]) for group in GROUPS}
+    groups = {group: validate_group(group, config[group]) for group in GROUPS}
     run = RunConfig(
         seed=config.seed, split=config.split, task=config.task, results_dir=results_dir, device=device,
         force=config.force, threads=threads, **groups,
@@ -192,7 +192,7 @@ def check_graph_fits(graph: Any, family: str, nodes: int) -> None:
         graph.check_fits(nodes)
 
 
-def _validate_group(group: str, node: Any) -> Any:
+def validate_group(group: str, node: Any) -> Any:
     discriminator, registry = GROUPS[group]
     if not isinstance(node, DictConfig):
         raise ConfigError(f"{group}={node!r} is not accepted; accepted: a config of the {group} group")

@@ -7,6 +7,7 @@ operator: swapping in a perturbed or larger graph tests what its filters learned
 from __future__ import annotations
 
 import copy
+from dataclasses import replace
 
 import numpy as np
 import pandas as pd
@@ -15,7 +16,7 @@ import torch
 from shiftbench.data.dataset import Dataset
 from shiftbench.graphs.graph import Graph
 from shiftbench.graphs.operators import shift_operator
-from shiftbench.graphs.sources import swap_edges
+from shiftbench.graphs.sources import from_simple, rewired_graph, simple_graph
 from shiftbench.models.shift_polynomial_net import ShiftPolynomialNet
 from shiftbench.models.shift_products import plan
 
@@ -24,20 +25,16 @@ MODES = ("drop", "rewire")
 
 
 def perturbed_graph(graph: Graph, fraction: float, mode: str, seed: int) -> Graph:
-    """``graph`` (undirected) with ``fraction`` of its edges dropped at random, or moved by
-    degree-preserving double edge swaps (each swap moves two edges)."""
-    simple = graph.to_undirected_simple()
+    """``graph`` with ``fraction`` of its edges dropped at random, or moved by degree-preserving
+    swaps (each swap moves two edges; a directed graph keeps in- and out-degrees)."""
+    if mode == "rewire":
+        return replace(rewired_graph(graph, fraction / 2, seed), name=f"{graph.name}_{mode}")
+    simple = simple_graph(graph)
     edges = list(simple.edges)
-    rng = np.random.default_rng(seed)
-    if mode == "drop":
-        count = int(round(fraction * len(edges)))
-        chosen = rng.choice(len(edges), size=count, replace=False) if count else []
-        simple.remove_edges_from([edges[index] for index in chosen])
-    else:
-        swaps = int(round(fraction * len(edges) / 2))
-        if swaps:
-            swap_edges(simple, swaps, seed=int(rng.integers(2**31)))
-    return Graph.from_undirected_simple(simple, graph.nodes, f"{graph.name}_{mode}")
+    count = int(round(fraction * len(edges)))
+    chosen = np.random.default_rng(seed).choice(len(edges), size=count, replace=False) if count else []
+    simple.remove_edges_from([edges[index] for index in chosen])
+    return from_simple(simple, graph, f"{graph.name}_{mode}")
 
 
 def on_shift(model: ShiftPolynomialNet, shift: torch.Tensor) -> ShiftPolynomialNet:
@@ -79,14 +76,16 @@ def perturbation_table(
     return pd.DataFrame(rows)
 
 
-def transfer_table(model: ShiftPolynomialNet, datasets: list[Dataset], operator: str, scale: str) -> pd.DataFrame:
-    """Test accuracy of the unchanged ``model`` on each dataset's own native graph.
+def transfer_table(
+    model: ShiftPolynomialNet, datasets: list[tuple[Dataset, Graph]], operator: str, scale: str
+) -> pd.DataFrame:
+    """Test accuracy of the unchanged ``model`` on each dataset with its graph.
 
     Returns:
         Rows ``nodes, test_accuracy``.
     """
     rows = []
-    for dataset in datasets:
-        shift = shift_operator(dataset.native_graph, operator, scale)
+    for dataset, graph in datasets:
+        shift = shift_operator(graph, operator, scale)
         rows.append({"nodes": dataset.nodes, "test_accuracy": accuracy_on_test(on_shift(model, shift), dataset)})
     return pd.DataFrame(rows)

@@ -24,6 +24,23 @@ if TYPE_CHECKING:
     from shiftbench.data.dataset import Dataset
 
 
+def simple_graph(graph: Graph) -> nx.Graph | nx.DiGraph:
+    """``graph``'s edges without weights or self-loops: an undirected networkx graph when every
+    edge goes both ways, else a directed one."""
+    simple = graph.to_undirected_simple() if graph.is_symmetric() else nx.DiGraph(graph.to_networkx())
+    simple.remove_edges_from(nx.selfloop_edges(simple))
+    return simple
+
+
+def from_simple(simple: nx.Graph | nx.DiGraph, graph: Graph, name: str) -> Graph:
+    """The inverse of :func:`simple_graph` on ``graph``'s nodes and positions: unit weights."""
+    positions = None if graph.positions is None else graph.positions.numpy()
+    if not simple.is_directed():
+        return Graph.from_undirected_simple(simple, graph.nodes, name, positions)
+    matrix = nx.to_scipy_sparse_array(simple, nodelist=range(graph.nodes), weight=None, format="csr")
+    return Graph.from_adjacency(sp.csr_matrix(matrix.T), name=name, positions=positions)  # networkx rows are sources
+
+
 def rewired_graph(graph: Graph, swaps_per_edge: float, seed: int) -> Graph:
     """``graph`` randomly rewired, every node keeping its degrees, ``swaps_per_edge`` swaps per
     edge; weights become 1 and self-loops are dropped. An undirected graph gets networkx's
@@ -31,14 +48,10 @@ def rewired_graph(graph: Graph, swaps_per_edge: float, seed: int) -> Graph:
     ``directed_edge_swap`` (``u->v->x->y -> u->x->v->y``: in- and out-degrees kept). The
     structure is scrambled: the control for "does this graph matter, or would any graph with
     these degrees do?"."""
-    positions = None if graph.positions is None else graph.positions.numpy()
-    name = f"{graph.name} rewired"
-    undirected = graph.is_symmetric()
-    simple = graph.to_undirected_simple() if undirected else nx.DiGraph(graph.to_networkx())
-    simple.remove_edges_from(nx.selfloop_edges(simple))
+    simple = simple_graph(graph)
     swaps = int(swaps_per_edge * simple.number_of_edges())
     try:
-        if undirected:
+        if not simple.is_directed():
             swap_edges(simple, swaps, seed)
         elif swaps:
             nx.directed_edge_swap(simple, nswap=swaps, max_tries=swaps * 100, seed=seed)
@@ -47,10 +60,7 @@ def rewired_graph(graph: Graph, swaps_per_edge: float, seed: int) -> Graph:
             f"graph=rewired cannot rewire {graph.name!r} ({error}); accepted: a graph with edges that can be "
             "swapped (two disjoint edges, or a directed path of 3 edges), or graph.swaps_per_edge=0"
         ) from None
-    if undirected:
-        return Graph.from_undirected_simple(simple, graph.nodes, name, positions)
-    matrix = nx.to_scipy_sparse_array(simple, nodelist=range(graph.nodes), weight=None, format="csr")
-    return Graph.from_adjacency(sp.csr_matrix(matrix.T), name=name, positions=positions)
+    return from_simple(simple, graph, f"{graph.name} rewired")
 
 
 def swap_edges(graph: nx.Graph, swaps: int, seed: int) -> None:
