@@ -91,22 +91,67 @@ def test_a_sweep_writes_one_record_per_job_and_the_report_tabulates_them(tmp_pat
     assert list(table["seeds"]) == [3, 3, 3]
 
 
-def test_the_families_study_runs_its_five_setups_over_three_seeds_and_a_rerun_trains_nothing(tmp_path):
-    result = run("shiftbench", "-m", "+experiment=families", *FAST, cwd=tmp_path)
+def write_own_files(folder: Path, nodes: int = 40, per_class: int = 60) -> None:
+    """Signals and a graph of this test's own, not the demo: a random geometric graph whose node
+    numbers are shuffled (the column order carries no structure), and three classes of signals
+    filtered on it, low-pass ``(I + S)^3 w``, high-pass ``(I - S)^3 w`` and white ``w``, scaled
+    to one norm: only the graph tells the classes apart by more than their roughness."""
+    import networkx as nx
+
+    rng = np.random.default_rng(0)
+    graph = nx.random_geometric_graph(nodes, 0.3, seed=1)
+    graph = nx.relabel_nodes(graph, dict(zip(range(nodes), rng.permutation(nodes).tolist())))
+    adjacency = nx.to_numpy_array(graph, nodelist=range(nodes))
+    scale = 1 / np.sqrt(np.maximum(adjacency.sum(axis=1), 1))
+    shift, identity = scale[:, None] * adjacency * scale[None, :], np.eye(nodes)
+    filters = [np.linalg.matrix_power(identity + shift, 3), np.linalg.matrix_power(identity - shift, 3), identity]
+    signals = [filters[c] @ rng.standard_normal(nodes) for c in range(3) for _ in range(per_class)]
+    table = pd.DataFrame([x / np.linalg.norm(x) * np.sqrt(nodes) for x in signals], columns=[f"n{i}" for i in range(nodes)])
+    table["label"] = np.repeat(["low", "high", "white"], per_class)
+    table.to_csv(folder / "signals.csv", index=False)
+    edges = [*graph.edges, *((v, u) for u, v in graph.edges)]
+    pd.DataFrame(edges, columns=["source", "target"]).to_csv(folder / "roads.csv", index=False)
+
+
+def test_the_families_study_and_the_claims_on_the_users_own_data_and_graph(tmp_path):
+    write_own_files(tmp_path)
+    arguments = ["-m", "+experiment=families", "data=file", "data.path=signals.csv", "data.graph=roads.csv", "train.epochs=30"]
+    result = run("shiftbench", *arguments, cwd=tmp_path)
     assert result.returncode == 0, result.stderr
-    files = sorted((tmp_path / "results" / "store").rglob("record.json"))
-    stamps = [path.stat().st_mtime_ns for path in files]
-    rerun = run("shiftbench", "-m", "+experiment=families", *FAST, cwd=tmp_path)
-    assert rerun.returncode == 0, rerun.stderr
-    assert rerun.stdout.count("skipped (already completed") == 15
-    assert "sweep done: 0 completed, 15 skipped, 0 failed" in rerun.stdout
-    assert [path.stat().st_mtime_ns for path in files] == stamps
-    records = records_under(tmp_path / "results" / "families")
-    setups = {(r["family"], r["graph"]) for r in records}
-    assert len(records) == 15
-    assert setups == {
-        ("nearest", "none"), ("fc", "none"), ("line_conv", "line"), ("graph_conv", "native"), ("graph_conv", "line")
-    }
+    assert "note:" not in result.stderr  # no two rows of the study are one configuration
+    rerun = run("shiftbench", *arguments, cwd=tmp_path)
+    assert "sweep done: 0 completed, 30 skipped, 0 failed" in rerun.stdout
+
+    study = tmp_path / "results" / "families"
+    report = run("shiftbench-report", str(study), cwd=tmp_path)
+    assert report.returncode == 0, report.stderr
+    table = pd.read_csv(study / "summary.csv")
+    assert len(table) == 10 and set(table["seeds"]) == {3}  # every row of the study kept
+    assert "near chance" not in report.stdout  # no family at chance beside a better one
+    best = table.groupby(["family", "graph"])["test_accuracy_mean"].max()
+    assert best[("graph_conv", "native: roads.csv")] > best[("graph_conv", "rewired")]  # the control scores lower
+    assert best[("graph_conv", "native: roads.csv")] > best[("graph_conv", "line")]
+
+    claims = run("shiftbench-claims", str(study), "--seeds", "1", cwd=tmp_path)
+    assert claims.returncode == 0, claims.stderr
+    written = json.loads((study / "claims.json").read_text())
+    subject = written["analyses"]["subject"]
+    assert (subject["data"], subject["graph"], subject["graph_source"]) == ("signals", "roads.csv", "native")
+    assert subject["from"] == f"the records under {study}"
+    verdicts = {claim["id"]: claim for claim in written["claims"]}
+    assert verdicts["graph_matters"]["verdict"] in ("holds", "holds_with_caveat")
+    assert "one node count" in verdicts["parameters_vs_nodes"]["evidence"]["run"]
+
+
+def test_one_config_gives_the_same_figures_under_the_basic_and_joblib_launchers(tmp_path):
+    figures = []
+    for launcher in ("basic", "joblib"):
+        result = run("shiftbench", "-m", "arch=graph_conv", "seed=0", *FAST, f"hydra/launcher={launcher}",
+                     f"results_dir={launcher}", cwd=tmp_path)
+        assert result.returncode == 0, result.stderr
+        (record,) = records_under(tmp_path / launcher / "store")
+        figures.append((record["test_accuracy"], record["test_loss"], record["torch_threads"]))
+    assert figures[0] == figures[1]
 
 
 # One case through a real process; tests/bad_inputs runs the whole corpus through the entry point in-process.

@@ -75,16 +75,17 @@ def demo_subject(demo: Dataset, why: str) -> Subject:
 
 def subject_of(records: pd.DataFrame, where: str, demo: Dataset) -> Subject:
     """The data most of the completed records under ``where`` were trained on, and the graph
-    (with its operator) most of their graph_conv records used; the demo when there are none or
-    their data cannot be loaded here."""
+    (with its operator) most of their graph_conv records used, the native graph first; the demo
+    when there are none or their data cannot be loaded here."""
     usable = records[records["status"].eq("completed") & records["config"].map(lambda c: isinstance(c, dict))] \
         if not records.empty and "config" in records else pd.DataFrame()
     if usable.empty:
         return demo_subject(demo, f"no completed records under {where}")
     data_dict = _most_common(config["data"] for config in usable["config"])
     mine = usable[usable["config"].map(lambda config: config["data"] == data_dict)]
-    graph_dict = _most_common(config["graph"] for config, family in zip(mine["config"], mine["family"])
-                              if family == "graph_conv") or DEFAULT_GRAPH
+    graphs = [config["graph"] for config, family in zip(mine["config"], mine["family"]) if family == "graph_conv"]
+    # The data's own graph before the controls (rewired, line) that share the folder with it.
+    graph_dict = _most_common(g for g in graphs if g.get("source") == "native") or _most_common(graphs) or DEFAULT_GRAPH
     try:
         data = validate_group("data", OmegaConf.create(data_dict))
         graph_config = validate_group("graph", OmegaConf.create(graph_dict))

@@ -198,7 +198,9 @@ def perturbation(table: pd.DataFrame, path: Path) -> tuple[Path, pd.DataFrame]:
     for mode, group in points.groupby("mode", sort=True):
         axis.errorbar(
             group["fraction"] * 100, group["mean"],
-            yerr=[group["mean"] - group["min"], group["max"] - group["mean"]], marker="o", capsize=3, label=mode,
+            # The mean of equal draws can round a hair past them; the bars start at zero length.
+            yerr=[(group["mean"] - group["min"]).clip(lower=0), (group["max"] - group["mean"]).clip(lower=0)],
+            marker="o", capsize=3, label=mode,
         )
     axis.set_xlabel("edges perturbed (%)")
     axis.set_ylabel("test accuracy (mean, range over draws)")
