@@ -182,6 +182,10 @@ def test_parallel_launchers_write_every_record_and_a_rerun_trains_nothing(tmp_pa
 
     files = find_records([tmp_path / "results" / "sweep"])
     assert len(files) == jobs and all(json.loads(path.read_text())["status"] == "completed" for path in files)
+    assert all(f"[{count}/{jobs}] " in result.stdout for count in range(1, jobs + 1))  # a line per job, submitit too
+    if launcher == "joblib":  # parallel jobs share the terminal (submitit's write their own log files)
+        epoch_lines = [line for line in result.stdout.splitlines() if "train loss" in line]
+        assert epoch_lines and all(re.match(r"\[job \d+\] epoch ", line) for line in epoch_lines)
     stamps = [path.stat().st_mtime_ns for path in files]
     rerun = run("shiftbench", *arguments, cwd=tmp_path)
     assert rerun.returncode == 0, rerun.stderr

@@ -48,6 +48,7 @@ def _job(config: DictConfig) -> dict:
             Path(hydra_config.sweep.dir) if in_sweep else None,
             overrides,
             live=sys.stdout.isatty() and not in_sweep,
+            label=f"job {hydra_config.job.num}" if in_sweep else "",
         )
     except ConfigError as error:
         fail(str(error))

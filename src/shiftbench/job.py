@@ -86,7 +86,7 @@ def structure(run: RunConfig) -> tuple[str, str]:
 
 def fit_family(
     run: RunConfig, dataset: Dataset, record: Record, live: bool, checkpointing: Checkpointing | None = None,
-    on_epoch: Callable[[dict[str, float]], None] | None = None,
+    on_epoch: Callable[[dict[str, float]], None] | None = None, label: str = "",
 ) -> TrainingResult:
     """Build and train the family ``run`` names on ``dataset`` (or fit a floor), noting in
     ``record`` what the record reports about the model: parameters, budget, graph notes."""
@@ -112,7 +112,7 @@ def fit_family(
     seed_everything(run.seed)
     model = build_model(arch, dataset.nodes, dataset.features, dataset.classes, shift)
     record.parameters = count_parameters(model)
-    progress = EpochProgress(run.train.epochs, live)
+    progress = EpochProgress(run.train.epochs, live, label=label)
 
     def each_epoch(row: dict[str, float]) -> None:
         progress(row)
@@ -167,9 +167,10 @@ def judge(run: RunConfig, dataset: Dataset, record: Record, result: TrainingResu
     return pd.DataFrame({"sample": test, "label": dataset.labels[test], "predicted": result.test_predictions})
 
 
-def execute(run: RunConfig, record: Record, home: Path, live: bool) -> JobOutputs:
+def execute(run: RunConfig, record: Record, home: Path, live: bool, label: str = "") -> JobOutputs:
     """Load the data, fit the family and fill ``record`` with what it measured; a failure after
-    validation is noted in the record, never raised (the other jobs of a sweep go on)."""
+    validation is noted in the record, never raised (the other jobs of a sweep go on). ``label``
+    starts the job's epoch lines."""
     torch.set_num_threads(run.threads)
     try:
         dataset = load_data(run)
@@ -177,7 +178,7 @@ def execute(run: RunConfig, record: Record, home: Path, live: bool) -> JobOutput
         record.nodes = dataset.nodes
         record.data = dataset.name
         checkpointing = Checkpointing(home, run.train.checkpoint_every, record.config_hash)
-        result = fit_family(run, dataset, record, live, checkpointing, on_epoch=lambda row: touch_claim(home))
+        result = fit_family(run, dataset, record, live, checkpointing, on_epoch=lambda row: touch_claim(home), label=label)
         if result.resumed_from_epoch is not None:
             record.resumed_from_epoch = result.resumed_from_epoch
             print(f"resumed at epoch {result.resumed_from_epoch} (the checkpoint holds epochs 1 to "
@@ -225,7 +226,7 @@ def finish(record: Record, home: Path, outputs: JobOutputs) -> Path:
 
 
 def run_job(
-    config: DictConfig, launch: Path | None, overrides: list[str], live: bool, quiet: bool = False
+    config: DictConfig, launch: Path | None, overrides: list[str], live: bool, quiet: bool = False, label: str = ""
 ) -> dict[str, Any]:
     """Validate ``config`` and run its job in its home in the store (``results_dir/store/<hash>``),
     then print one summary line and return the record; ``launch`` (a sweep's or study's folder)
@@ -233,7 +234,8 @@ def run_job(
 
     A config whose record is completed (or timed out) is skipped, unless ``force`` is set, which
     sets the old record aside first; a config another live process has claimed is skipped too
-    (it is not trained twice); an interrupted one resumes from its checkpoint.
+    (it is not trained twice); an interrupted one resumes from its checkpoint. ``label`` (a
+    sweep's ``job 3``) starts the job's epoch lines.
     """
     run = validate(config)
     plain = as_plain_dict(run)
@@ -262,7 +264,7 @@ def run_job(
             print(f"force: the earlier record is kept in {aside}", flush=True)
         record = new_record(run, plain, digest, overrides)
         with contextlib.redirect_stdout(io.StringIO()) if quiet else contextlib.nullcontext():
-            outputs = execute(run, record, home, live)
+            outputs = execute(run, record, home, live, label)
         finish(record, home, outputs)
     finally:
         release(home)

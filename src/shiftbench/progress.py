@@ -10,17 +10,19 @@ LOG_EVERY = 10
 
 
 class EpochProgress:
-    """Called with each epoch's curve row; ``live`` rewrites one terminal line in place."""
+    """Called with each epoch's curve row; ``live`` rewrites one terminal line in place.
+    ``label`` (``job 3``) starts every line, so the lines of parallel jobs can be told apart."""
 
-    def __init__(self, epochs: int, live: bool, stream: TextIO | None = None) -> None:
+    def __init__(self, epochs: int, live: bool, stream: TextIO | None = None, label: str = "") -> None:
         self.epochs = epochs
         self.live = live
+        self.prefix = f"[{label}] " if label else ""
         # Read at construction, not at import, so a redirected stdout is honoured.
         self.stream = stream or sys.stdout
 
     def __call__(self, row: dict[str, float]) -> None:
         epoch = int(row["epoch"])
-        line = (
+        line = self.prefix + (
             f"epoch {epoch:>4}/{self.epochs}  train loss {row['train_loss']:.4f}  "
             f"val accuracy {row['val_accuracy']:.3f}"
         )

@@ -51,9 +51,10 @@ def read_progress(path: Path) -> tuple[dict[str, Any], list[dict[str, Any]]]:
 
 
 def job_line(header: dict[str, Any], finished: list[dict[str, Any]], now: float) -> str:
-    """``[k/n] family on data: test accuracy (status), elapsed, left`` for the latest job."""
+    """``[k/n] family on data: test accuracy (status), elapsed, left`` for the latest job, as
+    of the time it finished (``now`` for an entry that does not say)."""
     latest, count = finished[-1], len(finished)
-    elapsed = now - header["started"]
+    elapsed = latest.get("finished_at", now) - header["started"]
     left = elapsed / count * max(header["total"] - count, 0)
     accuracy = latest.get("test_accuracy")
     result = f"test accuracy {accuracy:.3f}" if accuracy is not None else latest["status"]
@@ -96,7 +97,7 @@ class SweepProgress(Callback):
         outcome = job_return.return_value if isinstance(job_return.return_value, dict) else {}
         status = "skipped" if outcome.get("skipped") else outcome.get("status") or "failed"
         path = self._path(config)
-        append_line(path, {**outcome, "status": status})
+        append_line(path, {**outcome, "status": status, "finished_at": time.time()})
         header, finished = read_progress(path)
         if "total" in header:  # a worker that did not inherit the sweep's file has no header
             print(job_line(header, finished, time.time()), flush=True)
@@ -106,5 +107,9 @@ class SweepProgress(Callback):
         if not path.is_file():
             return
         header, finished = read_progress(path)
+        if "submitit" in str(config.hydra.launcher.get("_target_", "")):
+            # submitit jobs print into their own log files: their lines are shown here, in order.
+            for count in range(1, len(finished) + 1):
+                print(job_line(header, finished[:count], time.time()), flush=True)
         print(tally_line(header, finished, time.time()), flush=True)
         path.unlink(missing_ok=True)
