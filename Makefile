@@ -21,7 +21,7 @@ $(STAMP): pyproject.toml | $(BIN)/python
 setup: $(STAMP)
 
 run: setup
-	$(BIN)/shiftbench -m +experiment=families
+	$(BIN)/shiftbench -m +experiment=families results_dir=results
 	$(BIN)/shiftbench-report results/families
 
 test: setup

@@ -164,6 +164,16 @@ def test_a_bad_config_prints_one_line_exits_2_and_writes_nothing(tmp_path, argum
     assert not (tmp_path / "results").exists()
 
 
+@pytest.mark.parametrize("command", ["shiftbench", "shiftbench-decide"])
+def test_a_run_from_the_source_folder_must_name_its_results_dir(command):
+    root = Path(__file__).resolve().parents[1]
+    before = sorted(path for path in (root / "results").rglob("*"))
+    result = run(command, "train.epochs=1", cwd=root)
+    assert result.returncode == 2 and result.stderr.count("\n") == 1
+    assert result.stderr.startswith("shiftbench: error: results_dir=results: run from the shiftbench source folder")
+    assert sorted(path for path in (root / "results").rglob("*")) == before
+
+
 def test_report_on_a_folder_without_records_is_a_one_line_error(tmp_path):
     result = run("shiftbench-report", str(tmp_path), cwd=tmp_path)
     assert result.returncode == 2

@@ -16,7 +16,7 @@ from omegaconf import DictConfig, OmegaConf
 
 from shiftbench.config import ConfigError
 from shiftbench.job import run_job
-from shiftbench.preflight import preflight
+from shiftbench.preflight import override_arguments, preflight
 from shiftbench.config_store import register_defaults
 from shiftbench.records import MANIFEST_FILE as MANIFEST
 from shiftbench.runtime import keep_freed_memory
@@ -28,6 +28,16 @@ register_defaults()
 # The config tree lives beside the source (``configs/`` at the project root), so the app finds
 # it from any working directory.
 CONFIG_DIR = Path(__file__).resolve().parents[2] / "configs"
+
+
+def refuse_committed_results(arguments: list[str]) -> None:
+    """From the source tree's root the default ``results_dir`` is the project's own results/,
+    whose reports are committed: a run there must name its results_dir."""
+    if Path.cwd().resolve() != CONFIG_DIR.parent or any(a.lstrip("+").startswith("results_dir=") for a in arguments):
+        return
+    fail("results_dir=results: run from the shiftbench source folder, the default writes into its committed "
+         "results/; accepted: results_dir=PATH (a folder of your own, or results_dir=results to regenerate "
+         "the committed results on purpose)")
 
 
 def fail(message: str) -> None:
@@ -59,6 +69,8 @@ def _job(config: DictConfig) -> dict:
 def main() -> None:
     if not CONFIG_DIR.is_dir():
         fail(f"config folder {CONFIG_DIR} not found; install shiftbench from its source tree (pip install -e .)")
+    if override_arguments(sys.argv[1:]) is not None:  # not --help and its kin
+        refuse_committed_results(sys.argv[1:])
     if "hydra/launcher=slurm_cpu" in sys.argv[1:] and shutil.which("srun") is None:
         fail("hydra/launcher=slurm_cpu: no SLURM on this machine (srun not found); run with "
              "hydra/launcher=joblib here, or on a cluster's login node")
@@ -133,6 +145,7 @@ def decide_main(arguments: list[str] | None = None) -> None:
     from shiftbench.decision import DecisionError
     from shiftbench.decision_study import run_study
 
+    refuse_committed_results(arguments)
     try:
         print(run_study(arguments, CONFIG_DIR))
     except (ConfigError, DecisionError) as error:
