@@ -91,29 +91,9 @@ def test_a_sweep_writes_one_record_per_job_and_the_report_tabulates_them(tmp_pat
     assert list(table["seeds"]) == [3, 3, 3]
 
 
-def write_own_files(folder: Path, nodes: int = 40, per_class: int = 60) -> None:
-    """Signals and a graph of this test's own, not the demo: a random geometric graph whose node
-    numbers are shuffled (the column order carries no structure), and three classes of signals
-    filtered on it, low-pass ``(I + S)^3 w``, high-pass ``(I - S)^3 w`` and white ``w``, scaled
-    to one norm: only the graph tells the classes apart by more than their roughness."""
-    import networkx as nx
-
-    rng = np.random.default_rng(0)
-    graph = nx.random_geometric_graph(nodes, 0.3, seed=1)
-    graph = nx.relabel_nodes(graph, dict(zip(range(nodes), rng.permutation(nodes).tolist())))
-    adjacency = nx.to_numpy_array(graph, nodelist=range(nodes))
-    scale = 1 / np.sqrt(np.maximum(adjacency.sum(axis=1), 1))
-    shift, identity = scale[:, None] * adjacency * scale[None, :], np.eye(nodes)
-    filters = [np.linalg.matrix_power(identity + shift, 3), np.linalg.matrix_power(identity - shift, 3), identity]
-    signals = [filters[c] @ rng.standard_normal(nodes) for c in range(3) for _ in range(per_class)]
-    table = pd.DataFrame([x / np.linalg.norm(x) * np.sqrt(nodes) for x in signals], columns=[f"n{i}" for i in range(nodes)])
-    table["label"] = np.repeat(["low", "high", "white"], per_class)
-    table.to_csv(folder / "signals.csv", index=False)
-    edges = [*graph.edges, *((v, u) for u, v in graph.edges)]
-    pd.DataFrame(edges, columns=["source", "target"]).to_csv(folder / "roads.csv", index=False)
-
-
 def test_the_families_study_and_the_claims_on_the_users_own_data_and_graph(tmp_path):
+    from examples.own_files import write_own_files  # a graph and signals that are not the demo
+
     write_own_files(tmp_path)
     arguments = ["-m", "+experiment=families", "data=file", "data.path=signals.csv", "data.graph=roads.csv", "train.epochs=30"]
     result = run("shiftbench", *arguments, cwd=tmp_path)

@@ -50,6 +50,25 @@ def test_a_resumed_run_ends_with_the_figures_of_an_uninterrupted_one_bit_for_bit
         assert getattr(resumed, figure) == getattr(whole, figure), figure
 
 
+@pytest.mark.parametrize("saved", ["other shapes", "missing keys"])
+def test_a_checkpoint_that_does_not_fit_is_set_aside_and_the_run_starts_afresh(small_config, tmp_path, capsys, saved):
+    run = validate(small_config("arch=fc", "arch.hidden=[16]", "train.epochs=4", "train.patience=4"))
+    dataset = load_dataset(run.data)
+    whole = train(fresh_model(run, dataset), dataset, run.train, run.seed)
+    every = Checkpointing(tmp_path, every=1, config_hash="same")
+    if saved == "other shapes":  # as a changed model class would leave it
+        wider = validate(small_config("arch=fc", "arch.hidden=[32]", "train.epochs=2", "train.patience=2"))
+        train(fresh_model(wider, dataset), dataset, wider.train, wider.seed, checkpointing=every)
+        save_checkpoint(tmp_path, {**load_checkpoint(tmp_path, "same"), "epoch": 1})
+    else:
+        save_checkpoint(tmp_path, {"config_hash": "same", "epoch": 1})
+    again = train(fresh_model(run, dataset), dataset, run.train, run.seed, checkpointing=every)
+    assert again.resumed_from_epoch is None
+    assert (again.test_loss, again.curve[-1]["train_loss"]) == (whole.test_loss, whole.curve[-1]["train_loss"])
+    assert "does not fit this model" in capsys.readouterr().out
+    assert len(list(tmp_path.glob("checkpoint.unusable.*.pt"))) == 1
+
+
 def test_a_checkpoint_of_another_config_is_not_resumed(tmp_path):
     save_checkpoint(tmp_path, {"config_hash": "a", "epoch": 3})
     assert load_checkpoint(tmp_path, "a")["epoch"] == 3

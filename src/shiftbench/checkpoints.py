@@ -10,7 +10,9 @@ tensors and plain containers only and never runs code from the file.
 from __future__ import annotations
 
 import io
+import os
 import random
+import time
 import warnings
 from pathlib import Path
 from typing import Any
@@ -69,6 +71,16 @@ def load_checkpoint(folder: Path, config_hash: str) -> dict[str, Any] | None:
     if not isinstance(state, dict) or state.get("config_hash") != config_hash:
         return None
     return state
+
+
+def set_checkpoint_aside(folder: Path, why: str) -> Path:
+    """Rename a checkpoint that cannot be resumed from to ``checkpoint.unusable.<ns>.pt`` (kept
+    for inspection, never read again) and say so; the job then trains afresh."""
+    aside = folder / f"checkpoint.unusable.{time.time_ns()}.pt"
+    os.replace(folder / CHECKPOINT_FILE, aside)
+    print(f"note: the checkpoint in {folder} does not fit this model ({why}); set aside as {aside.name}, "
+          "training starts afresh", flush=True)
+    return aside
 
 
 def remove_checkpoint(folder: Path) -> None:

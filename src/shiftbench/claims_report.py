@@ -12,7 +12,7 @@ from __future__ import annotations
 import json
 from collections import Counter
 from collections.abc import Iterable
-from dataclasses import dataclass, replace
+from dataclasses import asdict, dataclass, replace
 from pathlib import Path
 from typing import Any
 
@@ -62,9 +62,24 @@ class Subject:
                 "operator": self.graph_config.operator, "scale": self.graph_config.scale, "from": self.origin}
 
 
-def _most_common(configs: Iterable[dict]) -> dict | None:
+def _most_common(configs: Iterable[dict], group: str) -> dict | None:
+    """The config that occurs most often; among equally common ones, the one at its schema's
+    defaults (a study that varies the data around its defaults, as the claims study does)."""
     counted = Counter(json.dumps(config, sort_keys=True) for config in configs)
-    return json.loads(counted.most_common(1)[0][0]) if counted else None
+    if not counted:
+        return None
+    top = max(counted.values())
+    tied = [json.loads(text) for text, count in counted.items() if count == top]
+    at_defaults = [config for config in tied if config == _defaults(group, config)]
+    return (at_defaults or tied)[0]
+
+
+def _defaults(group: str, config: dict) -> dict | None:
+    """``config``'s component at its schema's defaults, as plain data (None if it has none)."""
+    try:
+        return asdict(validate_group(group, OmegaConf.create({key: config[key] for key in ("source",) if key in config})))
+    except ConfigError:
+        return None
 
 
 def demo_subject(demo: Dataset, why: str) -> Subject:
@@ -81,11 +96,12 @@ def subject_of(records: pd.DataFrame, where: str, demo: Dataset) -> Subject:
         if not records.empty and "config" in records else pd.DataFrame()
     if usable.empty:
         return demo_subject(demo, f"no completed records under {where}")
-    data_dict = _most_common(config["data"] for config in usable["config"])
+    data_dict = _most_common((config["data"] for config in usable["config"]), "data")
     mine = usable[usable["config"].map(lambda config: config["data"] == data_dict)]
     graphs = [config["graph"] for config, family in zip(mine["config"], mine["family"]) if family == "graph_conv"]
     # The data's own graph before the controls (rewired, line) that share the folder with it.
-    graph_dict = _most_common(g for g in graphs if g.get("source") == "native") or _most_common(graphs) or DEFAULT_GRAPH
+    graph_dict = (_most_common((g for g in graphs if g.get("source") == "native"), "graph")
+                  or _most_common(graphs, "graph") or DEFAULT_GRAPH)
     try:
         data = validate_group("data", OmegaConf.create(data_dict))
         graph_config = validate_group("graph", OmegaConf.create(graph_dict))

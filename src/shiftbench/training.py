@@ -19,7 +19,9 @@ import numpy as np
 import torch
 from torch import nn
 
-from shiftbench.checkpoints import load_checkpoint, random_states, restore_random_states, save_checkpoint
+from shiftbench.checkpoints import (
+    load_checkpoint, random_states, restore_random_states, save_checkpoint, set_checkpoint_aside,
+)
 from shiftbench.config import TrainConfig
 from shiftbench.data.dataset import Dataset
 from shiftbench.registry import Task
@@ -121,18 +123,32 @@ def resume(
     state: LoopState, model: nn.Module, optimizer: torch.optim.Optimizer, config: TrainConfig,
     checkpointing: Checkpointing | None,
 ) -> None:
-    """Load the checkpoint of this config, if there is one, into the model, optimizer and state."""
+    """Load the checkpoint of this config, if there is one, into the model, optimizer and state.
+    A checkpoint that loads but does not fit (missing keys, other shapes: as an upgrade of the
+    model's code could leave) is set aside, and everything stays as a fresh start has it."""
     saved = load_checkpoint(checkpointing.folder, checkpointing.config_hash) if checkpointing else None
     if saved is None:
         return
-    model.load_state_dict(saved["model"])
-    optimizer.load_state_dict(saved["optimizer"])
-    restore_random_states(saved["random"], state.order_generator)
+    fresh = (copy.deepcopy(model.state_dict()), copy.deepcopy(optimizer.state_dict()), random_states(state.order_generator))
+    try:
+        model.load_state_dict(saved["model"])
+        optimizer.load_state_dict(saved["optimizer"])
+        restore_random_states(saved["random"], state.order_generator)
+        best = (tuple(saved["best"]), saved["best_state"], int(saved["best_epoch"]))
+        curve, spent, epoch = list(saved["curve"]), float(saved["train_seconds"]), int(saved["epoch"])
+        model.load_state_dict(best[1])  # the best weights must fit too; the current ones go back next
+        model.load_state_dict(saved["model"])
+    except (KeyError, RuntimeError, ValueError, TypeError, IndexError) as error:
+        model.load_state_dict(fresh[0])
+        optimizer.load_state_dict(fresh[1])
+        restore_random_states(fresh[2], state.order_generator)
+        set_checkpoint_aside(checkpointing.folder, f"{type(error).__name__}: {str(error).splitlines()[0][:200]}")
+        return
     stopping = state.stopping
-    stopping.best, stopping.best_state, stopping.best_epoch = tuple(saved["best"]), saved["best_state"], saved["best_epoch"]
-    state.curve, state.spent_before = saved["curve"], saved["train_seconds"]
-    state.first_epoch = state.resumed_from = saved["epoch"] + 1
-    if stopping.should_stop(saved["epoch"]):  # it had stopped early at that epoch
+    stopping.best, stopping.best_state, stopping.best_epoch = best
+    state.curve, state.spent_before = curve, spent
+    state.first_epoch = state.resumed_from = epoch + 1
+    if stopping.should_stop(epoch):  # it had stopped early at that epoch
         state.first_epoch = config.epochs + 1
 
 
