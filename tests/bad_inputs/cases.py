@@ -154,6 +154,16 @@ DATA_CASES: list[tuple[str, Writer, str]] = [
      "is not UTF-8 text (byte 0xe9 at offset 9); save it as UTF-8"),
     ("ragged.csv", text("label,a,b\n0,1,2\n1,2,3,4\n"),
      "cannot be read as CSV (Error tokenizing data. C error: Expected 3 fields in line 3, saw 4)"),
+    ("saved_index.csv", text(",label,a,b\n0,0,1.5,2\n1,1,3.5,4\n2,0,0.5,1\n"),
+     "column 1 has no name (a row index saved by pandas' to_csv?); save with index=False, or name every column"),
+    ("row_numbers.csv", text("label,index,a\n0,0,1.5\n1,1,2.5\n0,2,0.5\n"),
+     "column 'index' holds the row numbers, not node values (a saved index?); drop it"),
+    ("two_labels.csv", text("label,a,label\n0,1,2\n1,2,3\n"),
+     "has column 'label' twice (columns 1 and 3); give every column its own name"),
+    ("empty_label.csv", text("label,a,b\n0,1,2\n,2,3\n1,2,2\n"),
+     "has 1 empty label cells (first on line 3); give every row its label"),
+    ("one_class_train.npz", npz(signals=GOOD_SIGNALS, labels=GOOD_LABELS, split=np.repeat([0, 1, 2], 10)),
+     "split's train part holds a single class; give the train samples at least 2 classes"),
 ]
 
 GRAPH_CASES: list[tuple[str, Writer, str]] = [
@@ -174,6 +184,11 @@ GRAPH_CASES: list[tuple[str, Writer, str]] = [
     ("notsparse.npz", npz(a=np.zeros(3)), "is not a matrix saved with scipy.sparse.save_npz"),
     ("rectangular.npz", save_sparse(np.ones((5, 4))), "holds a 5x4 matrix; accepted: a square adjacency"),
     ("small.npz", save_sparse(np.eye(4, k=1)), "has 4 nodes but the data has 5; they must agree"),
+    ("complex.npz", save_sparse(np.eye(5, k=1) * (1 + 2j)), "holds complex weights; accepted: real weights"),
+    ("malformed.npz", npz(format=np.array(b"csr"), shape=np.array([5, 5]), data=np.ones(3), indices=np.array([1, 2, 3]),
+                          indptr=np.array([0, 2, 1, 3, 3, 3])),
+     "holds a malformed sparse matrix (indptr must be a non-decreasing sequence); save a valid matrix with "
+     "scipy.sparse.save_npz"),
     ("small.graphml", graphml(nx.path_graph(3)), "has 3 nodes but the data has 5; they must agree"),
     ("text_weights.gml", text('graph [ node [ id 0 label "a" ] node [ id 1 label "b" ] edge [ source 0 target 1 '
                               'weight "x" ] ]'), "has edge weights that are not numbers"),

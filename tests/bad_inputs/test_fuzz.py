@@ -72,7 +72,7 @@ def test_graph_loader_answers_any_zip_members_with_its_own_error(tmp_path, conte
 
 def write_csv(path, rows: int):
     labels = np.arange(rows) % 2
-    path.write_text("\n".join(["label,a,b", *[f"{label},{index},{index * 2}" for index, label in enumerate(labels)]]) + "\n")
+    path.write_text("\n".join(["label,a,b", *[f"{label},{index % 7},{index * 2}" for index, label in enumerate(labels)]]) + "\n")
     return path
 
 

@@ -19,7 +19,7 @@ def test_npz_with_features_split_and_positions(tmp_path):
 
 def test_csv_rows_are_samples_with_a_label_column(tmp_path):
     path = tmp_path / "d.csv"
-    rows = [f"{label},{i},{i + 1},{i + 2}" for i, label in enumerate(["b", "a", "c"] * 5)]
+    rows = [f"{label},{i % 4},{i + 1.5},{i + 2}" for i, label in enumerate(["b", "a", "c"] * 5)]
     path.write_text("label,n0,n1,n2\n" + "\n".join(rows))
     dataset = load_signal_file(str(path))
     assert dataset.signals.shape == (15, 3, 1) and dataset.classes == 3
@@ -31,3 +31,11 @@ def test_labels_that_read_as_numbers_sort_numerically(tmp_path):
     np.savez(tmp_path / "d.npz", signals=np.zeros((30, 2)), labels=np.repeat(["2", "10", "1"], 10))
     dataset = load_signal_file(str(tmp_path / "d.npz"))
     assert dataset.labels[[0, 10, 20]].tolist() == [1, 2, 0]
+
+
+def test_csv_labels_that_differ_beyond_float_precision_stay_two_classes(tmp_path):
+    # 10000000000000000001 and ...02 are one float64; read as written they are two classes.
+    path = tmp_path / "d.csv"
+    rows = [f"{label},{i % 5},{(i * 7) % 3}" for i, label in enumerate(["10000000000000000001", "10000000000000000002"] * 6)]
+    path.write_text("label,n0,n1\n" + "\n".join(rows))
+    assert load_signal_file(str(path)).classes == 2

@@ -74,3 +74,25 @@ def test_python_objects_are_accepted_as_graphs():
         graph = as_graph(value)
         np.testing.assert_array_equal(graph.adjacency().toarray()[:4, :4], expected_adjacency()[:4, :4])
     assert as_graph(edge_index).edge_weight.tolist() == [1.0] * 4
+
+
+def test_graphml_with_integer_ids_out_of_order_is_aligned_by_id_and_says_so(tmp_path):
+    # Reference: networkx's own adjacency of the same graph with nodes ordered by id.
+    graph = nx.Graph()
+    graph.add_nodes_from([3, 1, 4, 0, 2])  # the file lists the nodes in this order
+    graph.add_edges_from([(3, 1), (4, 0), (0, 2), (2, 3)])
+    path = tmp_path / "g.graphml"
+    nx.write_graphml(graph, path)
+    loaded = load_graph_file(str(path), nodes=5)
+    expected = nx.to_numpy_array(graph, nodelist=range(5))
+    np.testing.assert_array_equal(loaded.adjacency().toarray(), expected.T)
+    assert "nodes aligned by their integer ids 0..n-1, not by their order in the file" in loaded.notes
+
+
+def test_graphml_with_named_nodes_keeps_the_file_order(tmp_path):
+    graph = nx.path_graph(["c", "a", "b"])
+    path = tmp_path / "g.graphml"
+    nx.write_graphml(graph, path)
+    loaded = load_graph_file(str(path), nodes=3)
+    np.testing.assert_array_equal(loaded.adjacency().toarray(), nx.to_numpy_array(graph, nodelist=["c", "a", "b"]))
+    assert loaded.notes == ()

@@ -11,6 +11,7 @@ Every problem is a :class:`ConfigError` with one line that names it and the fix.
 
 from __future__ import annotations
 
+import re
 import zipfile
 from functools import partial
 from dataclasses import dataclass, replace
@@ -64,8 +65,14 @@ def read_npz(path: Path) -> dict[str, np.ndarray]:
     return arrays
 
 
+# An integer label as int64 holds it, written the one way Python writes it ('7', not '007').
+INTEGER_LABEL = re.compile(r"^-?(0|[1-9]\d{0,17})$")
+
+
 def read_csv(path: Path) -> dict[str, np.ndarray]:
-    table = read_user_csv(path, _fail, "write a header row with a 'label' column and one column per node")
+    table = read_user_csv(
+        path, _fail, "write a header row with a 'label' column and one column per node", text_columns=("label",)
+    )
     if "label" not in table.columns:
         raise _fail(path, "has no 'label' column; write a header row with a 'label' column and one column per node")
     if table.empty:
@@ -74,9 +81,26 @@ def read_csv(path: Path) -> dict[str, np.ndarray]:
     text = [column for column in nodes.columns if not pd.api.types.is_numeric_dtype(nodes[column])]
     if text:
         raise _fail(path, f"column {text[0]!r} is not numeric; every column but 'label' must hold node values")
-    label = table["label"]
-    labels = label.to_numpy() if pd.api.types.is_numeric_dtype(label) else label.astype(str).to_numpy(dtype=str)
-    return {"signals": nodes.to_numpy(dtype=np.float64), "labels": labels}
+    rows = np.arange(len(table))
+    for column in nodes.columns:
+        values = nodes[column].to_numpy()
+        if len(values) >= 3 and (np.array_equal(values, rows) or np.array_equal(values, rows + 1)):
+            raise _fail(path, f"column {column!r} holds the row numbers, not node values (a saved index?); drop it")
+    return {"signals": nodes.to_numpy(dtype=np.float64), "labels": _labels_from_text(path, table["label"])}
+
+
+def _labels_from_text(path: Path, label: pd.Series) -> np.ndarray:
+    """Label cells as written: integers where every cell is one written plainly (and fits
+    int64), else text, so labels that differ only beyond float precision, or only in how they
+    are written, stay apart."""
+    empty = label.isna() | (label.str.strip() == "")
+    if empty.any():
+        line = int(np.flatnonzero(empty.to_numpy())[0]) + 2  # the header is line 1
+        raise _fail(path, f"has {int(empty.sum())} empty label cells (first on line {line}); give every row its label")
+    cells = label.str.strip()
+    if cells.map(lambda cell: bool(INTEGER_LABEL.match(cell))).all():
+        return cells.map(int).to_numpy(dtype=np.int64)
+    return cells.to_numpy(dtype=str)
 
 
 def _check_signals(path: Path, signals: np.ndarray) -> np.ndarray:
@@ -116,7 +140,8 @@ def _check_labels(path: Path, labels: np.ndarray, samples: int) -> np.ndarray:
     return codes
 
 
-def _check_split(path: Path, split: np.ndarray, samples: int) -> Splits:
+def _check_split(path: Path, split: np.ndarray, labels: np.ndarray) -> Splits:
+    samples = len(labels)
     if split.shape != (samples,):
         raise _fail(path, f"split has shape {split.shape}; accepted: ({samples},), one entry a sample")
     unknown = sorted(set(np.unique(split).tolist()) - set(SPLIT_NAMES))
@@ -126,6 +151,8 @@ def _check_split(path: Path, split: np.ndarray, samples: int) -> Splits:
     empty = [name for name, indices in parts.items() if len(indices) == 0]
     if empty:
         raise _fail(path, f"split has no {empty[0]} samples; give each of train, val and test at least one")
+    if len(np.unique(labels[parts["train"]])) < 2:
+        raise _fail(path, "split's train part holds a single class; give the train samples at least 2 classes")
     return Splits(**parts)
 
 
@@ -173,7 +200,7 @@ def load_signal_file(
     signals = _check_signals(file, arrays["signals"])
     labels = _check_labels(file, arrays["labels"], len(signals))
     if "split" in arrays:
-        splits = _check_split(file, arrays["split"], len(signals))
+        splits = _check_split(file, arrays["split"], labels)
     else:
         splits = _random_splits(file, labels, val_fraction, test_fraction, seed)
     nodes = signals.shape[1]

@@ -4,8 +4,11 @@
   ``0..nodes-1`` (the data's nodes), an edge ``source -> target``. An undirected graph lists
   each edge both ways.
 - ``.npz``: a matrix saved with ``scipy.sparse.save_npz``, read as ``A[target, source]``.
-- ``.graphml`` / ``.gml``: read by networkx; nodes are taken in the file's order, and an
-  undirected graph gives each edge both ways. The ``weight`` attribute is used when present.
+- ``.graphml`` / ``.gml``: read by networkx. When the node ids are exactly the integers
+  ``0..n-1`` (GraphML stores them as text), node ``i`` is the data's node ``i`` whatever the
+  file's order (noted in the record when the order differs); otherwise nodes are taken in the
+  file's order. An undirected graph gives each edge both ways. The ``weight`` attribute is used
+  when present.
 
 Duplicate edges are summed and self-loops kept (both noted in the record). Every problem is a
 :class:`ConfigError` with one line naming it and the fix.
@@ -74,9 +77,29 @@ def read_sparse_matrix(path: Path, fail: Fail) -> Graph:
         raise fail(path, "is not a matrix saved with scipy.sparse.save_npz") from None
     if matrix.shape[0] != matrix.shape[1]:
         raise fail(path, f"holds a {matrix.shape[0]}x{matrix.shape[1]} matrix; accepted: a square adjacency")
+    if np.iscomplexobj(matrix.data):
+        raise fail(path, "holds complex weights; accepted: real weights")
+    try:  # index arrays a hand-made file may get wrong: out of range, not monotonic
+        if hasattr(matrix, "check_format"):
+            matrix.check_format(full_check=True)
+        else:
+            sp.coo_matrix((matrix.data, (matrix.row, matrix.col)), shape=matrix.shape).tocsr().check_format(full_check=True)
+    except (ValueError, IndexError) as error:
+        raise fail(path, f"holds a malformed sparse matrix ({str(error).splitlines()[0]}); save a valid matrix "
+                   "with scipy.sparse.save_npz") from None
     if not np.isfinite(matrix.data).all():
         raise fail(path, "holds weights that are not finite numbers")
     return Graph.from_adjacency(matrix, name="file")
+
+
+def integer_ids(graph: nx.Graph) -> list | None:
+    """The graph's nodes sorted by id when the ids are exactly the integers ``0..n-1`` (as
+    numbers or as text, as GraphML stores them); else None."""
+    try:
+        ids = {int(str(node)): node for node in graph.nodes if str(node).lstrip("-").isdigit()}
+    except ValueError:
+        return None
+    return [ids[index] for index in range(len(ids))] if sorted(ids) == list(range(graph.number_of_nodes())) else None
 
 
 def read_networkx(path: Path, fail: Fail) -> Graph:
@@ -86,16 +109,20 @@ def read_networkx(path: Path, fail: Fail) -> Graph:
     except (OSError, nx.NetworkXError, ValueError, SyntaxError) as error:
         kind = "GraphML" if reader is nx.read_graphml else "GML"
         raise fail(path, f"cannot be read as {kind} ({str(error).splitlines()[0]})") from None
+    notes: tuple[str, ...] = ()
+    by_id = integer_ids(graph)
+    if by_id is not None and by_id != list(graph.nodes):
+        notes = ("nodes aligned by their integer ids 0..n-1, not by their order in the file",)
     try:
-        loaded = Graph.from_networkx(graph, name="file")
+        loaded = Graph.from_networkx(graph, name="file", order=by_id)
     except (TypeError, ValueError):
         raise fail(path, "has edge weights that are not numbers") from None
-    if not graph.is_multigraph():
-        return loaded
-    # networkx sums parallel edges when it builds the matrix; say so in the record.
-    simple = nx.DiGraph(graph) if graph.is_directed() else nx.Graph(graph)
-    parallel = graph.number_of_edges() - simple.number_of_edges()
-    return replace(loaded, notes=(*loaded.notes, f"{parallel} duplicate edges summed") if parallel else loaded.notes)
+    if graph.is_multigraph():
+        # networkx sums parallel edges when it builds the matrix; say so in the record.
+        simple = nx.DiGraph(graph) if graph.is_directed() else nx.Graph(graph)
+        parallel = graph.number_of_edges() - simple.number_of_edges()
+        notes += (f"{parallel} duplicate edges summed",) if parallel else ()
+    return replace(loaded, notes=(*loaded.notes, *notes))
 
 
 def load_graph_file(path: str, nodes: int, key: str = "graph.path") -> Graph:

@@ -172,12 +172,15 @@ class Graph:
         return cls.from_adjacency(sp.coo_matrix((weight, (target, source)), shape=(count, count)), name=name)
 
     @classmethod
-    def from_networkx(cls, graph: nx.Graph, name: str = "graph", weight: str = "weight") -> Graph:
-        """A graph from networkx; nodes are taken in ``graph.nodes`` order and relabelled 0..n-1.
+    def from_networkx(
+        cls, graph: nx.Graph, name: str = "graph", weight: str = "weight", order: list | None = None
+    ) -> Graph:
+        """A graph from networkx; nodes are taken in ``order`` (default: ``graph.nodes`` order)
+        and relabelled 0..n-1.
 
         An undirected networkx graph gives each edge in both directions.
         """
-        order = list(graph.nodes)
+        order = list(graph.nodes) if order is None else order
         matrix = nx.to_scipy_sparse_array(graph, nodelist=order, weight=weight, format="csr")
         # networkx puts an edge u -> v at M[u, v]; our convention wants it at A[v, u].
         return cls.from_adjacency(sp.csr_matrix(matrix).T, name=name)
