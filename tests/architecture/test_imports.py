@@ -14,6 +14,7 @@ STAGES = {
     "shiftbench.registry": 0,
     "shiftbench.config": 1,
     "shiftbench.csv_input": 1,
+    "shiftbench.npz_input": 1,
     "shiftbench.runtime": 1,
     "shiftbench.cache": 1,
     "shiftbench.records": 1,

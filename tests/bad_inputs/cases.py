@@ -11,9 +11,12 @@ from __future__ import annotations
 from collections.abc import Callable
 from pathlib import Path
 
+import zipfile
+
 import networkx as nx
 import numpy as np
 import scipy.sparse as sp
+from numpy.lib import format as npy_format
 
 RNG = np.random.default_rng(0)
 GOOD_SIGNALS = RNG.standard_normal((30, 5))
@@ -31,6 +34,18 @@ def text(content: str, encoding: str = "utf-8") -> Writer:
 
 def save_sparse(matrix) -> Writer:
     return lambda path: sp.save_npz(path, sp.csr_matrix(matrix))
+
+
+def declaring(shape: tuple[int, ...], **arrays) -> Writer:
+    """An .npz whose ``signals.npy`` header declares ``shape`` (float32) with no data behind it,
+    beside ``arrays``: a few hundred bytes that would ask numpy for prod(shape) * 4 bytes."""
+
+    def write(path: Path) -> None:
+        np.savez(path, **arrays)
+        with zipfile.ZipFile(path, "a") as archive, archive.open("signals.npy", "w") as member:
+            npy_format.write_array_header_1_0(member, {"descr": "<f4", "fortran_order": False, "shape": shape})
+
+    return write
 
 
 def graphml(graph) -> Writer:
@@ -154,6 +169,9 @@ DATA_CASES: list[tuple[str, Writer, str]] = [
      "is not UTF-8 text (byte 0xe9 at offset 9); save it as UTF-8"),
     ("ragged.csv", text("label,a,b\n0,1,2\n1,2,3,4\n"),
      "cannot be read as CSV (Error tokenizing data. C error: Expected 3 fields in line 3, saw 4)"),
+    ("declares_petabytes.npz", declaring((10**9, 10**6), labels=GOOD_LABELS),
+     "would take 4,000,000.0 GB of memory to read ('signals.npy' alone 4,000,000.0 GB), but 24.0 GB is available; "
+     "accepted: arrays that fit in memory"),
     ("saved_index.csv", text(",label,a,b\n0,0,1.5,2\n1,1,3.5,4\n2,0,0.5,1\n"),
      "column 1 has no name (a row index saved by pandas' to_csv?); save with index=False, or name every column"),
     ("row_numbers.csv", text("label,index,a\n0,0,1.5\n1,1,2.5\n0,2,0.5\n"),

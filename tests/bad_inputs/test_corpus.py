@@ -8,6 +8,7 @@ from pathlib import Path
 import pytest
 
 import shiftbench.job
+import shiftbench.npz_input
 from shiftbench.cli import main
 from tests.bad_inputs.cases import CONFIG_CASES, DATA_CASES, GRAPH_CASES, OPERATOR_CASES, write_good_data
 
@@ -20,6 +21,7 @@ def workspace(tmp_path, monkeypatch):
     """A folder holding good data and an earlier run's files, as the working directory."""
     monkeypatch.chdir(tmp_path)
     monkeypatch.setattr(shiftbench.job, "available_memory_bytes", lambda: 24 * 10**9)
+    monkeypatch.setattr(shiftbench.npz_input, "available_memory_bytes", lambda: 24 * 10**9)
     write_good_data(tmp_path / "good.npz")
     for name, content in EARLIER.items():
         (tmp_path / name).parent.mkdir(parents=True, exist_ok=True)

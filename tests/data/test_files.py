@@ -1,8 +1,10 @@
 """Users' signal files that are well formed load as they are."""
 
 import numpy as np
+import pytest
 
 from shiftbench.data.files import load_signal_file
+from shiftbench.errors import ConfigError
 
 
 def test_npz_with_features_split_and_positions(tmp_path):
@@ -39,3 +41,14 @@ def test_csv_labels_that_differ_beyond_float_precision_stay_two_classes(tmp_path
     rows = [f"{label},{i % 5},{(i * 7) % 3}" for i, label in enumerate(["10000000000000000001", "10000000000000000002"] * 6)]
     path.write_text("label,n0,n1\n" + "\n".join(rows))
     assert load_signal_file(str(path)).classes == 2
+
+
+def test_a_small_archive_that_inflates_beyond_memory_is_refused_before_reading(tmp_path, monkeypatch):
+    import shiftbench.npz_input
+
+    np.savez_compressed(tmp_path / "bomb.npz", signals=np.zeros((2**24, 1), dtype=np.float32), labels=np.zeros(3))
+    assert (tmp_path / "bomb.npz").stat().st_size < 200_000  # 64 MB of zeros compress to kilobytes
+    monkeypatch.setattr(shiftbench.npz_input, "available_memory_bytes", lambda: 10**7)
+    monkeypatch.setattr(np, "load", lambda *args, **kwargs: pytest.fail("read before its size was checked"))
+    with pytest.raises(ConfigError, match=r"would take 0\.1 GB of memory to read \('signals\.npy' alone 0\.1 GB\), but 0\.0 GB"):
+        load_signal_file(str(tmp_path / "bomb.npz"))

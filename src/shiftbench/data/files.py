@@ -27,6 +27,7 @@ from shiftbench.data.labels import encode_labels
 from shiftbench.config import Check, declared
 from shiftbench.data.splits import RandomSplitConfig, stratified_splits
 from shiftbench.errors import file_error
+from shiftbench.npz_input import require_fits_in_memory
 from shiftbench.graphs.files import load_graph_file
 from shiftbench.graphs.standard import line_graph
 from shiftbench.registry import DATASETS, DatasetSource
@@ -47,6 +48,7 @@ def first_line(error: Exception) -> str:
 def read_npz(path: Path) -> dict[str, np.ndarray]:
     if not zipfile.is_zipfile(path):
         raise _fail(path, "cannot be read as .npz (not a zip archive); save it with numpy.savez")
+    require_fits_in_memory(path, _fail)
     try:
         with np.load(path, allow_pickle=False) as archive:
             arrays = {key: archive[key] for key in archive.files}

@@ -32,6 +32,7 @@ from shiftbench.csv_input import read_user_csv
 from shiftbench.errors import file_error
 from shiftbench.graphs.graph import Graph
 from shiftbench.graphs.operators import GraphConfig
+from shiftbench.npz_input import require_fits_in_memory
 from shiftbench.registry import GRAPH_SOURCES, GraphSource
 
 SUFFIXES = (".csv", ".npz", ".graphml", ".gml")
@@ -71,6 +72,7 @@ def read_edge_list(path: Path, nodes: int, fail: Fail) -> Graph:
 
 
 def read_sparse_matrix(path: Path, fail: Fail) -> Graph:
+    require_fits_in_memory(path, fail)
     try:
         matrix = sp.load_npz(path)
     except (OSError, ValueError, KeyError, EOFError, zipfile.BadZipFile):
