@@ -9,7 +9,6 @@ tensors and plain containers only and never runs code from the file.
 
 from __future__ import annotations
 
-import io
 import os
 import random
 import time
@@ -51,10 +50,8 @@ def restore_random_states(states: dict[str, Any], order_generator: torch.Generat
 
 
 def save_checkpoint(folder: Path, state: dict[str, Any]) -> Path:
-    """Write ``state`` to ``folder/checkpoint.pt`` atomically."""
-    buffer = io.BytesIO()
-    torch.save(state, buffer)
-    return write_atomic(folder / CHECKPOINT_FILE, buffer.getvalue())
+    """Write ``state`` to ``folder/checkpoint.pt`` atomically, streamed (no copy in memory)."""
+    return write_atomic(folder / CHECKPOINT_FILE, lambda stream: torch.save(state, stream))
 
 
 def load_checkpoint(folder: Path, config_hash: str) -> dict[str, Any] | None:

@@ -50,11 +50,11 @@ def check_inputs(run: RunConfig) -> None:
     """Read and check the user's files a job would use (a data file, a graph file), so a bad file
     stops a sweep before its first job. Other sources are checked by the config alone. Where
     the config tells the node count, a model too large to train is refused here too."""
-    nodes = run.data.known_nodes()
+    nodes, samples = run.data.known_nodes(), run.data.known_samples()
     if nodes is not None and getattr(run.arch, "budget", None) is None:
-        # One feature and the configured classes: the least the model could need.
+        # One feature and the configured classes: the least the job could need.
         classes = getattr(run.data, "classes", 2)
-        require_memory_for(run.arch, nodes, 1, classes, available_memory_bytes())
+        require_memory_for(run.arch, nodes, 1, classes, run.train.batch_size, samples or 0, available_memory_bytes())
     uses_graph_file = FAMILIES[run.arch.family].uses_graph and run.graph.source == "file"
     if run.data.source != "file" and not uses_graph_file:
         return
@@ -108,7 +108,9 @@ def fit_family(
         record.budget = arch.budget
         arch, _ = fit_budget(arch, arch.budget, dataset.nodes, dataset.features, dataset.classes)
         record.sized_widths = getattr(arch, width_key(arch.family))
-    require_memory_for(arch, dataset.nodes, dataset.features, dataset.classes, available_memory_bytes())
+    require_memory_for(
+        arch, dataset.nodes, dataset.features, dataset.classes, run.train.batch_size, dataset.samples, available_memory_bytes()
+    )
     seed_everything(run.seed)
     model = build_model(arch, dataset.nodes, dataset.features, dataset.classes, shift)
     record.parameters = count_parameters(model)

@@ -11,10 +11,10 @@ import platform
 import subprocess
 import tempfile
 import warnings
-from collections.abc import Iterable
+from collections.abc import Callable, Iterable
 from dataclasses import asdict, dataclass, field, fields
 from pathlib import Path
-from typing import Any
+from typing import Any, BinaryIO
 
 import numpy as np
 import pandas as pd
@@ -48,16 +48,19 @@ TRAIN_RUN_KEYS = ("checkpoint_every",)
 FINAL_STATUSES = ("completed", "timed_out")
 
 
-def write_atomic(path: Path, content: str | bytes) -> Path:
-    """Write ``content`` (text as UTF-8, or bytes) to ``path`` so that a reader sees the old file
-    or the whole new one: write a temporary file in the same folder, flush it to disk, then
-    rename it over ``path``."""
+def write_atomic(path: Path, content: str | bytes | Callable[[BinaryIO], None]) -> Path:
+    """Write ``content`` to ``path`` so that a reader sees the old file or the whole new one:
+    write a temporary file in the same folder, flush it to disk, then rename it over ``path``.
+    ``content`` is text (UTF-8), bytes, or a function that writes into the open binary file
+    (so a large checkpoint streams to disk instead of being built in memory first)."""
     path.parent.mkdir(parents=True, exist_ok=True)
     handle, temporary = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-    data = content.encode("utf-8") if isinstance(content, str) else content
     try:
         with os.fdopen(handle, "wb") as stream:
-            stream.write(data)
+            if callable(content):
+                content(stream)
+            else:
+                stream.write(content.encode("utf-8") if isinstance(content, str) else content)
             stream.flush()
             os.fsync(stream.fileno())
         os.replace(temporary, path)
@@ -144,9 +147,7 @@ def write_predictions(folder: Path, predictions: pd.DataFrame) -> Path:
 
 
 def write_weights(folder: Path, weights: dict[str, np.ndarray]) -> Path:
-    buffer = io.BytesIO()
-    np.savez(buffer, **weights)
-    return write_atomic(folder / WEIGHTS_FILE, buffer.getvalue())
+    return write_atomic(folder / WEIGHTS_FILE, lambda stream: np.savez(stream, **weights))
 
 
 def computed_content(config: dict[str, Any]) -> dict[str, Any]:

@@ -46,6 +46,9 @@ class Family:
         build: ``(arch, nodes, features, classes, shift) -> nn.Module`` for trained families.
         fit: ``(arch, dataset, seed) -> TrainingResult`` for families fitted without the loop.
         planned_parameters: ``(arch, nodes, features, classes) -> int``, from the config alone.
+        planned_activations: ``(arch, nodes, features, classes) -> int``: the numbers one sample
+            keeps alive between its forward and backward pass (0 for families fitted without
+            the loop), for the memory check.
         width_key: the config key that ``arch.budget`` scales, or None.
         uses_graph: True when the family reads the configured graph (its shift operator).
         structure: ``(arch) -> (graph, operator)`` that the family uses when it does not read the
@@ -57,6 +60,7 @@ class Family:
     schema: type
     display: str
     planned_parameters: Callable[..., int]
+    planned_activations: Callable[..., int] = lambda arch, nodes, features, classes: 0
     build: Callable[..., Any] | None = None
     fit: Callable[..., Any] | None = None
     width_key: str | None = None

@@ -23,6 +23,10 @@ class DataConfig(Schema):
         """The node count, when the config alone tells it (else it is known once loaded)."""
         return None
 
+    def known_samples(self) -> int | None:
+        """The sample count, when the config alone tells it (else it is known once loaded)."""
+        return None
+
 
 def keyword_loader(function: Callable[..., "Dataset"]) -> Callable[[DataConfig], "Dataset"]:
     """A loader taking a data config, for a function whose keyword arguments are the config's

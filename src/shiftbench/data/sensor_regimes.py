@@ -139,5 +139,8 @@ class SensorRegimesConfig(RandomSplitConfig):
     def known_nodes(self) -> int | None:
         return self.nodes
 
+    def known_samples(self) -> int | None:
+        return self.samples_per_class * self.classes
+
 
 DATASETS.add(DatasetSource("sensor_regimes", SensorRegimesConfig, keyword_loader(sensor_regimes), "demo: sensor regimes"))

@@ -65,12 +65,19 @@ def planned_fc_parameters(arch: FcConfig, nodes: int, features: int, classes: in
     return sum((width_in + 1) * width_out for width_in, width_out in zip(sizes[:-1], sizes[1:]))
 
 
+def planned_fc_activations(arch: FcConfig, nodes: int, features: int, classes: int) -> int:
+    """``nodes * features + 2 sum_l w_l + classes``: the flattened input, each hidden layer's
+    output and its nonlinearity's, the logits."""
+    return nodes * features + 2 * sum(arch.hidden) + classes
+
+
 FAMILIES.add(
     Family(
         name="fc",
         schema=FcConfig,
         display="MLP",
         planned_parameters=planned_fc_parameters,
+        planned_activations=planned_fc_activations,
         build=lambda arch, nodes, features, classes, shift: FullyConnected(
             nodes, features, arch.hidden, classes, arch.nonlinearity, arch.dropout
         ),

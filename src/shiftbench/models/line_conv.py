@@ -10,7 +10,7 @@ from torch import nn
 
 from shiftbench.config import declared, one_of
 from shiftbench.models.readouts import Readout
-from shiftbench.models.stack import ConvConfig, FilterStack, planned_stack_parameters, widths
+from shiftbench.models.stack import ConvConfig, FilterStack, planned_stack_activations, planned_stack_parameters, widths
 from shiftbench.registry import FAMILIES, Family
 
 BOUNDARIES = ("zero", "circular")
@@ -101,6 +101,7 @@ FAMILIES.add(
         schema=LineConvConfig,
         display="1-D CNN",
         planned_parameters=planned_stack_parameters,
+        planned_activations=planned_stack_activations,
         build=lambda arch, nodes, features, classes, shift: LineConv(
             nodes, features, arch.channels, classes, arch.order, arch.boundary,
             arch.nonlinearity, arch.readout, arch.dropout, arch.normalization,

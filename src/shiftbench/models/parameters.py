@@ -1,7 +1,9 @@
-"""Parameter counts: of a built model, and of a family's config before anything is built."""
+"""Parameter counts: of a built model, and of a family's config before anything is built; and
+the memory training would take, so that a job that cannot fit is refused before it allocates."""
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from typing import Any
 
 from torch import nn
@@ -9,8 +11,17 @@ from torch import nn
 from shiftbench.errors import ConfigError
 from shiftbench.registry import FAMILIES
 
-# Training keeps four float32 numbers a parameter: the weight, its gradient and Adam's two moments.
-TRAINING_BYTES_PER_PARAMETER = 16
+# Peak memory a parameter takes in training: the weight, its gradient, Adam's two moments,
+# Adam's temporaries, the best weights so far and the copy that replaces them, with the heap
+# keeping freed blocks as the command line sets it (runtime.keep_freed_memory). Measured for fc
+# (2026-12-03): 29 to 33 bytes in the loop alone at 16M to 64M parameters, 41 to 45 in a whole
+# job at 16M; the rest is room for the heap's fragmentation. tests/models/test_memory.py checks
+# the estimate against measured peaks.
+BYTES_PER_PARAMETER = 56
+# An activation is kept in float32 for the backward pass, and its gradient takes as much.
+BYTES_PER_ACTIVATION = 8
+# The signals in float32, and the train/validation/test copies training indexes out of them.
+DATA_BYTES_PER_NUMBER = 8
 
 
 def count_parameters(model: nn.Module) -> int:
@@ -25,15 +36,45 @@ def planned_parameters(arch: Any, nodes: int, features: int, classes: int) -> in
     return FAMILIES[arch.family].planned_parameters(arch, nodes, features, classes)
 
 
-def require_memory_for(arch: Any, nodes: int, features: int, classes: int, memory_bytes: int) -> None:
-    """Refuse, before anything is allocated, a model whose training state (weights, gradients
-    and optimizer moments) alone would not fit in ``memory_bytes``."""
+@dataclass(frozen=True)
+class MemoryPlan:
+    """What training a model would hold at its peak, in bytes, from the config alone:
+    ``parameters * 36 + batch * activations_per_sample * 8 + samples * nodes * features * 8``."""
+
+    parameters: int
+    parameter_bytes: int
+    activation_bytes: int
+    data_bytes: int
+
+    @property
+    def total(self) -> int:
+        return self.parameter_bytes + self.activation_bytes + self.data_bytes
+
+
+def planned_memory(arch: Any, nodes: int, features: int, classes: int, batch_size: int, samples: int) -> MemoryPlan:
+    family = FAMILIES[arch.family]
     count = planned_parameters(arch, nodes, features, classes)
-    needed = count * TRAINING_BYTES_PER_PARAMETER
-    if needed > memory_bytes:
+    activations = family.planned_activations(arch, nodes, features, classes)
+    return MemoryPlan(
+        parameters=count,
+        parameter_bytes=count * BYTES_PER_PARAMETER,
+        activation_bytes=min(batch_size, samples) * activations * BYTES_PER_ACTIVATION,
+        data_bytes=samples * nodes * features * DATA_BYTES_PER_NUMBER,
+    )
+
+
+def require_memory_for(
+    arch: Any, nodes: int, features: int, classes: int, batch_size: int, samples: int, memory_bytes: int
+) -> None:
+    """Refuse, before anything is allocated, a job whose training would not fit in
+    ``memory_bytes``: one line with the estimate and its parts."""
+    plan = planned_memory(arch, nodes, features, classes, batch_size, samples)
+    if plan.total > memory_bytes:
+        gb = lambda count: f"{count / 1e9:,.1f} GB"
         raise ConfigError(
-            f"arch={arch.family} at {nodes:,} nodes needs {count:,} parameters, {needed / 1e9:,.1f} GB to train "
-            f"({TRAINING_BYTES_PER_PARAMETER} bytes a parameter), but {memory_bytes / 1e9:,.1f} GB of memory is "
-            "available; accepted: a model that fits (narrower layers, fewer nodes, or a convolutional family, "
-            "whose count does not grow with the nodes)"
+            f"arch={arch.family} at {nodes:,} nodes ({plan.parameters:,} parameters, {samples:,} samples) needs "
+            f"{gb(plan.total)} to train (parameters {gb(plan.parameter_bytes)}, activations "
+            f"{gb(plan.activation_bytes)}, data {gb(plan.data_bytes)}), but {gb(memory_bytes)} of memory is "
+            "available; accepted: a job that fits (narrower layers, fewer nodes or samples, a smaller "
+            "train.batch_size, or a convolutional family, whose count does not grow with the nodes)"
         )

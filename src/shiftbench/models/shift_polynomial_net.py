@@ -9,7 +9,7 @@ import torch
 
 from shiftbench.models.readouts import Readout
 from shiftbench.models.shift_polynomial import ShiftPolynomialLayer
-from shiftbench.models.stack import ConvConfig, FilterStack, planned_stack_parameters, widths
+from shiftbench.models.stack import ConvConfig, FilterStack, planned_stack_activations, planned_stack_parameters, widths
 from shiftbench.registry import FAMILIES, Family
 
 
@@ -66,6 +66,7 @@ FAMILIES.add(
         schema=GraphConvConfig,
         display="GNN",
         planned_parameters=planned_stack_parameters,
+        planned_activations=planned_stack_activations,
         build=_build,
         width_key="channels",
         uses_graph=True,

@@ -103,6 +103,13 @@ class ConvConfig(Schema):
     budget: Optional[int] = declared(BUDGET, None)
 
 
+def planned_stack_activations(arch: ConvConfig, nodes: int, features: int, classes: int) -> int:
+    """``nodes * (features + 4 sum_l c_{l+1})``: the input, and per layer the filter's output,
+    the nonlinearity's and two temporaries of the backward pass, each ``(nodes, c_{l+1})`` (the
+    filter's own backward recomputes its partial sums instead of keeping them)."""
+    return nodes * (features + 4 * sum(width_out for _, width_out in widths(features, arch.channels)))
+
+
 def planned_stack_parameters(arch: ConvConfig, nodes: int, features: int, classes: int) -> int:
     """``(K + 1) c_l c_{l+1} + c_{l+1}`` a layer over the widths ``features, *channels``,
     ``2 c_{l+1}`` more with batch normalization, then a readout of ``(w + 1) classes`` with
