@@ -126,6 +126,7 @@ def test_force_keeps_the_earlier_record_aside(small_config, tmp_path):
     run_job(small_config("seed=3", "force=true"), None, [], live=False)
     (aside,) = (home(first) / "superseded").rglob(RECORD_FILE)
     assert json.loads(aside.read_text())["finished"] == first["finished"]
+    assert sorted(path.name for path in aside.parent.iterdir()) == ["curve.csv", "predictions.csv", "record.json", "weights.npz"]
 
 
 def test_a_config_claimed_by_a_live_process_is_not_trained_twice(small_config, tmp_path):

@@ -24,8 +24,8 @@ from pathlib import Path
 from typing import Any
 
 from shiftbench.records import (
-    CURVE_FILE, FINAL_STATUSES, MANIFEST_FILE, OLD_RECORD_FILE, RECORD_FILE, SCHEMA_VERSION, config_hash, write_atomic,
-    write_record,
+    CURVE_FILE, FINAL_STATUSES, MANIFEST_FILE, OLD_RECORD_FILE, PREDICTIONS_FILE, RECORD_FILE, SCHEMA_VERSION, WEIGHTS_FILE,
+    config_hash, write_atomic, write_record,
 )
 
 STORE_FOLDER = "store"
@@ -112,14 +112,15 @@ def release(home: Path) -> None:
 
 
 def set_aside(home: Path) -> Path | None:
-    """Move the home's record and curve into ``superseded/<time>/`` (``force=true`` recomputes
-    without destroying the old figures); the folder, or None when there was no record."""
+    """Move the home's record, curve, predictions and weights into ``superseded/<time>/``
+    (``force=true`` recomputes without destroying the old figures); the folder, created
+    exclusively, or None when there was no record."""
     record = home / RECORD_FILE
     if not record.is_file():
         return None
     folder = home / SUPERSEDED_FOLDER / datetime.now(timezone.utc).strftime("%Y-%m-%dT%H-%M-%S.%f")
     folder.mkdir(parents=True)
-    for name in (RECORD_FILE, CURVE_FILE):
+    for name in (RECORD_FILE, CURVE_FILE, PREDICTIONS_FILE, WEIGHTS_FILE):
         if (home / name).is_file():
             os.replace(home / name, folder / name)
     return folder
