@@ -183,8 +183,8 @@ def test_parallel_launchers_write_every_record_and_a_rerun_trains_nothing(tmp_pa
     assert [path.stat().st_mtime_ns for path in files] == stamps
 
 
-@pytest.mark.parametrize("launcher", ["basic", "joblib"])
-def test_a_sweep_killed_mid_job_finishes_on_rerun_without_retraining_what_was_done(tmp_path, launcher):
+@pytest.mark.parametrize(("launcher", "signal_name"), [("basic", "SIGKILL"), ("joblib", "SIGKILL"), ("basic", "SIGINT")])
+def test_a_sweep_killed_mid_job_finishes_on_rerun_without_retraining_what_was_done(tmp_path, launcher, signal_name):
     import os
     import signal
     import time
@@ -197,7 +197,7 @@ def test_a_sweep_killed_mid_job_finishes_on_rerun_without_retraining_what_was_do
     if launcher == "joblib":
         arguments += ["hydra/launcher=joblib", "hydra.launcher.n_jobs=2"]
     process = subprocess.Popen([str(BIN / "shiftbench"), *arguments], cwd=tmp_path, start_new_session=True,
-                               stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+                               stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
     deadline = time.monotonic() + 120
     while True:
         done = [path.parent for path in sweep.rglob("record.json")]
@@ -207,8 +207,12 @@ def test_a_sweep_killed_mid_job_finishes_on_rerun_without_retraining_what_was_do
         assert process.poll() is None, "the sweep ended before it could be killed mid-job"
         assert time.monotonic() < deadline
         time.sleep(0.01)
-    os.killpg(process.pid, signal.SIGKILL)
-    process.wait()
+    os.killpg(process.pid, getattr(signal, signal_name))
+    _, stderr = process.communicate(timeout=60)
+    if signal_name == "SIGINT":  # Ctrl-C: one line saying how to go on, no traceback
+        assert process.returncode == 130
+        assert stderr.strip().splitlines()[-1].startswith("shiftbench: interrupted; run the same command again")
+        assert "Traceback" not in stderr
     finished = {path: path.read_bytes() for path in sweep.rglob("record.json")}
 
     rerun = run("shiftbench", *arguments, cwd=tmp_path)

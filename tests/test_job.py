@@ -205,3 +205,36 @@ def test_a_budget_that_cannot_be_met_fails_the_job_with_the_reason_and_keeps_the
     record = run_job(small_config("arch=fc", "arch.budget=10"), None, [], live=False)
     assert record["status"] == "failed" and record["budget"] == 10
     assert record["error"].startswith("BudgetError: arch.budget=10 cannot be met")
+
+
+def test_a_refusal_that_needs_the_data_fails_that_job_of_a_sweep_and_the_sweep_goes_on(small_config, tmp_path, monkeypatch):
+    # The memory check of a loaded dataset, on a machine with 10 kB to spare.
+    monkeypatch.setattr(shiftbench.job, "available_memory_bytes", lambda: 10**4)
+    record = run_job(small_config("arch=fc"), tmp_path / "sweep", [], live=False, quiet=True)
+    assert record["status"] == "failed" and record["error"].startswith("ConfigError: arch=fc at 24 nodes")
+    single = small_config("arch=fc", f"results_dir={tmp_path / 'single'}")
+    with pytest.raises(ConfigError, match="arch=fc at 24 nodes"):  # a single job is refused in one line
+        run_job(single, None, [], live=False)
+    assert not list((tmp_path / "single").rglob(RECORD_FILE))
+
+
+def test_temporary_files_of_killed_writes_are_cleared_when_the_home_is_claimed(small_config):
+    from tests.conftest import home_of_config
+
+    config = small_config()
+    folder = home_of_config(config)
+    folder.mkdir(parents=True)
+    (folder / ".record.json.abc123.tmp").write_text("{half a rec")
+    (folder / ".checkpoint.pt.def456.tmp").write_bytes(b"\x80")
+    run_job(config, None, [], live=False, quiet=True)
+    assert not list(folder.glob(".*.tmp"))
+
+
+def test_records_are_readable_as_the_umask_allows_not_private(small_config):
+    import os
+
+    record = run_job(small_config(), None, [], live=False, quiet=True)
+    umask = os.umask(0)
+    os.umask(umask)
+    for name in (RECORD_FILE, CURVE_FILE):
+        assert (home(record) / name).stat().st_mode & 0o777 == 0o666 & ~umask

@@ -1,6 +1,7 @@
 """Sweep progress: job counting, the shared progress file, and the lines printed."""
 
 import json
+import os
 
 from shiftbench.sweep_axes import count_jobs
 from shiftbench.sweep_progress import append_line, job_line, read_progress, tally_line
@@ -46,3 +47,21 @@ def test_a_line_cut_short_by_a_kill_is_passed_over(tmp_path):
     path.write_text('{"total": 3, "started": 0}\n{"status": "completed"}\n{"status": "compl')
     header, finished = read_progress(path)
     assert header["total"] == 3 and finished == [{"status": "completed"}]
+
+
+def test_progress_files_of_killed_sweeps_on_this_host_are_removed(tmp_path):
+    import socket
+    import subprocess
+    import sys
+
+    from shiftbench.sweep_progress import remove_dead_progress
+
+    ended = subprocess.run([sys.executable, "-c", "import os; print(os.getpid())"], capture_output=True, text=True)
+    host = socket.gethostname()
+    dead = tmp_path / f".progress.{host}-{ended.stdout.strip()}-1.jsonl"
+    alive = tmp_path / f".progress.{host}-{os.getpid()}-2.jsonl"
+    elsewhere = tmp_path / f".progress.other-host-{ended.stdout.strip()}-3.jsonl"
+    for path in (dead, alive, elsewhere):
+        path.write_text('{"total": 2, "started": 0}\n')
+    remove_dead_progress(tmp_path)
+    assert sorted(path.name for path in tmp_path.iterdir()) == sorted([alive.name, elsewhere.name])

@@ -84,6 +84,10 @@ def main() -> None:
         _job()
     except ValueError as error:  # Hydra's own refusals of a command line, e.g. two modes at once
         fail(str(error))
+    except KeyboardInterrupt:
+        print("shiftbench: interrupted; run the same command again to go on: finished jobs are kept and "
+              "skipped, an interrupted one resumes from its last checkpoint", file=sys.stderr, flush=True)
+        raise SystemExit(130) from None
 
 
 def quiet_on_closed_pipe() -> None:

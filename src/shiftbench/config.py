@@ -12,6 +12,7 @@ This module reads the registry and imports nothing of the data, graph or model l
 
 from __future__ import annotations
 
+import math
 import typing
 from collections.abc import Callable, Iterable
 from dataclasses import MISSING, asdict, dataclass, field, fields
@@ -66,8 +67,13 @@ def declared(check: Check, default: Any = MISSING, default_factory: Any = MISSIN
     return field(default=default, default_factory=default_factory, metadata={"check": check})
 
 
+def finite(value: Any) -> bool:
+    """A number other than NaN and the infinities (``inf`` passes every ``>=`` bound)."""
+    return isinstance(value, (int, float)) and math.isfinite(value)
+
+
 def at_least(low: int, kind: str = "an integer") -> Check:
-    return Check(lambda value: value >= low, f"{kind} >= {low}")
+    return Check(lambda value: finite(value) and value >= low, f"{kind} >= {low}")
 
 
 def one_of(choices: Iterable[str] | Callable[[], Iterable[str]]) -> Check:
@@ -75,7 +81,7 @@ def one_of(choices: Iterable[str] | Callable[[], Iterable[str]]) -> Check:
     return Check(lambda value: value in tuple(names()), lambda: "one of " + ", ".join(names()))
 
 
-POSITIVE = Check(lambda value: value > 0, "a number > 0")
+POSITIVE = Check(lambda value: finite(value) and value > 0, "a number > 0")
 FRACTION = Check(lambda value: 0.0 < value < 1.0, "a number strictly between 0 and 1")
 PROBABILITY = Check(lambda value: 0.0 <= value <= 1.0, "a probability in [0, 1]")
 DROPOUT = Check(lambda value: 0.0 <= value < 1.0, "a probability in [0, 1)")

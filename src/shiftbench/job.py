@@ -37,7 +37,7 @@ from shiftbench.records import (
 )
 from shiftbench.registry import FAMILIES, TASKS
 from shiftbench.runtime import available_memory_bytes
-from shiftbench.store import claim, finished_record, home_of, note_launch, release, set_aside, touch_claim
+from shiftbench.store import claim, clear_torn_writes, finished_record, home_of, note_launch, release, set_aside, touch_claim
 from shiftbench.training import Checkpointing, TrainingDiverged, TrainingResult, seed_everything, train
 
 
@@ -169,10 +169,12 @@ def judge(run: RunConfig, dataset: Dataset, record: Record, result: TrainingResu
     return pd.DataFrame({"sample": test, "label": dataset.labels[test], "predicted": result.test_predictions})
 
 
-def execute(run: RunConfig, record: Record, home: Path, live: bool, label: str = "") -> JobOutputs:
+def execute(run: RunConfig, record: Record, home: Path, live: bool, label: str = "", in_sweep: bool = False) -> JobOutputs:
     """Load the data, fit the family and fill ``record`` with what it measured; a failure after
-    validation is noted in the record, never raised (the other jobs of a sweep go on). ``label``
-    starts the job's epoch lines."""
+    validation is noted in the record, never raised (the other jobs of a sweep go on). A
+    refusal that needs the data (a budget no width meets, a model too large for it) is raised
+    for a single job, and noted as the job's failure in a sweep. ``label`` starts the job's
+    epoch lines."""
     torch.set_num_threads(run.threads)
     try:
         dataset = load_data(run)
@@ -198,8 +200,10 @@ def execute(run: RunConfig, record: Record, home: Path, live: bool, label: str =
         record.chosen = result.chosen
         predictions = judge(run, dataset, record, result) if result.test_predictions is not None else None
         return JobOutputs(result.curve, predictions, result.weights)
-    except ConfigError:
-        raise
+    except ConfigError as error:
+        if not in_sweep:
+            raise
+        record.error = f"ConfigError: {error}"
     except TrainingDiverged as error:
         record.error = f"{type(error).__name__}: {error}"
         record.failed_epoch = error.epoch
@@ -259,6 +263,7 @@ def run_job(
         pending = new_record(run, plain, digest, overrides).as_dict()
         return skip({**pending, "status": "claimed"}, "claimed", f"being trained by {holder}; its record will be in {home}")
     try:
+        clear_torn_writes(home)
         done = None if run.force else finished_record(home)  # finished while we were claiming
         if done is not None:
             return skip(done, "skipped", f"already completed, record in {home}")
@@ -266,7 +271,7 @@ def run_job(
             print(f"force: the earlier record is kept in {aside}", flush=True)
         record = new_record(run, plain, digest, overrides)
         with contextlib.redirect_stdout(io.StringIO()) if quiet else contextlib.nullcontext():
-            outputs = execute(run, record, home, live, label)
+            outputs = execute(run, record, home, live, label, in_sweep=launch is not None)
         finish(record, home, outputs)
     finally:
         release(home)

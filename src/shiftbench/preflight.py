@@ -9,13 +9,16 @@ user's data and graph files are read and checked.
 
 from __future__ import annotations
 
+import os
 import re
+import shutil
 from dataclasses import dataclass, field
 from pathlib import Path
 
 from hydra import compose, initialize_config_dir
 from hydra.errors import HydraException, MissingConfigException
 from omegaconf import DictConfig, OmegaConf
+from omegaconf.errors import OmegaConfBaseException
 
 from shiftbench.config import ConfigError, as_plain_dict, require_inside, validate
 from shiftbench.config_store import register_defaults
@@ -45,7 +48,9 @@ def override_arguments(arguments: list[str]) -> list[str] | None:
 
 
 # Hydra keys a user may set to say where jobs write.
-OUTPUT_DIRECTORY_KEYS = ("hydra.run.dir", "hydra.sweep.dir")
+OUTPUT_DIRECTORY_KEYS = ("hydra.run.dir", "hydra.sweep.dir", "hydra.sweep.subdir", "hydra.output_subdir")
+# The least free space a results folder's disk must have for records, curves and checkpoints.
+MINIMUM_FREE_BYTES = 50 * 2**20
 
 
 @dataclass
@@ -68,8 +73,8 @@ def preflight(arguments: list[str], config_dir: Path) -> Checked:
         return Checked(0)
     for override in overrides:
         key, _, value = override.partition("=")
-        if key in OUTPUT_DIRECTORY_KEYS:
-            require_inside(key, value)
+        if key.lstrip("+~") in OUTPUT_DIRECTORY_KEYS and value not in ("", "null"):
+            require_inside(key.lstrip("+~"), value)
     try:
         axes, fixed = split_overrides(overrides)
     except HydraException as error:
@@ -132,9 +137,48 @@ def _added_key_retry(overrides: list[str], error: HydraException) -> DictConfig 
 def _validate(config: DictConfig) -> str:
     """Check a composed job config and its files; return its config hash."""
     job = OmegaConf.masked_copy(config, [key for key in config.keys() if key != "hydra"])
+    _require_resolvable(job)
     run = validate(job)
+    require_writable_folder(Path(run.results_dir))
     check_inputs(run)
     return config_hash(as_plain_dict(run))
+
+
+def require_writable_folder(folder: Path) -> None:
+    """``results_dir`` must be a folder this process can create or write in, with names the file
+    system takes and some free space on its disk; refused in one line, before any job."""
+    longest = 255  # bytes a file name may take on common file systems (ext4, XFS, APFS, NTFS)
+    too_long = [part for part in folder.parts if len(part.encode()) > longest]
+    if too_long:
+        raise ConfigError(f"results_dir={str(folder)[:60]!r}...: a name in it is {len(too_long[0].encode())} bytes "
+                          f"long; accepted: names of at most {longest} bytes")
+    existing = folder
+    while not existing.exists() and existing != existing.parent:
+        existing = existing.parent
+    if not existing.is_dir():
+        raise ConfigError(f"results_dir={str(folder)!r}: {str(existing)!r} is a file; accepted: a folder path")
+    if not os.access(existing, os.W_OK | os.X_OK):
+        raise ConfigError(f"results_dir={str(folder)!r}: {str(existing)!r} is not writable here; accepted: a folder "
+                          "you may write in")
+    free = shutil.disk_usage(existing).free
+    if free < MINIMUM_FREE_BYTES:
+        raise ConfigError(f"results_dir={str(folder)!r}: its disk has {free / 2**20:.0f} MB free; accepted: a "
+                          f"folder on a disk with at least {MINIMUM_FREE_BYTES // 2**20} MB free")
+
+
+def _require_resolvable(config: DictConfig, prefix: str = "") -> None:
+    """Refuse the first value whose interpolation does not resolve (``${oc.env:UNSET}``,
+    ``${nope}``), naming its key."""
+    for key in config.keys():
+        try:
+            value = config[key]
+        except OmegaConfBaseException as error:
+            raise ConfigError(
+                f"{prefix}{key}={OmegaConf.to_container(config)[key]!r} does not resolve ({str(error).splitlines()[0]}); "
+                "accepted: a value, or an interpolation that resolves (${oc.env:NAME} needs NAME set)"
+            ) from None
+        if isinstance(value, DictConfig):
+            _require_resolvable(value, f"{prefix}{key}.")
 
 
 def _one_line(message: str) -> str:

@@ -48,6 +48,16 @@ TRAIN_RUN_KEYS = ("checkpoint_every",)
 FINAL_STATUSES = ("completed", "timed_out")
 
 
+def _file_mode() -> int:
+    """What ``open`` would give a new file under this process's umask (``0o666 & ~umask``)."""
+    umask = os.umask(0)
+    os.umask(umask)
+    return 0o666 & ~umask
+
+
+FILE_MODE = _file_mode()
+
+
 def write_atomic(path: Path, content: str | bytes | Callable[[BinaryIO], None]) -> Path:
     """Write ``content`` to ``path`` so that a reader sees the old file or the whole new one:
     write a temporary file in the same folder, flush it to disk, then rename it over ``path``.
@@ -56,6 +66,7 @@ def write_atomic(path: Path, content: str | bytes | Callable[[BinaryIO], None]) 
     path.parent.mkdir(parents=True, exist_ok=True)
     handle, temporary = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
     try:
+        os.chmod(temporary, FILE_MODE)  # mkstemp makes it private; colleagues read results too
         with os.fdopen(handle, "wb") as stream:
             if callable(content):
                 content(stream)

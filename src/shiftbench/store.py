@@ -65,6 +65,15 @@ def _holder_alive(holder: dict[str, Any], claim: Path) -> bool:
         return False
 
 
+def clear_torn_writes(home: Path) -> int:
+    """Remove the temporary files (``.NAME.*.tmp``) that writes killed mid-way left in ``home``;
+    call it holding the home's claim, when no other process writes there. Returns how many."""
+    torn = list(home.glob(".*.tmp"))
+    for path in torn:
+        path.unlink(missing_ok=True)
+    return len(torn)
+
+
 def claim(home: Path) -> str | None:
     """Claim ``home`` for this process: None when claimed, else who holds it.
 

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import json
 import os
+import socket
 import time
 from pathlib import Path
 from typing import Any
@@ -72,6 +73,23 @@ def tally_line(header: dict[str, Any], finished: list[dict[str, Any]], now: floa
     )
 
 
+def remove_dead_progress(folder: Path) -> None:
+    """Remove the progress files that sweeps on this host left when they were killed (their
+    process is gone); other hosts' files are theirs to clean."""
+    host = socket.gethostname()
+    for path in folder.glob(PROGRESS_FILE.format(token="*")):
+        token = path.name.removeprefix(".progress.").removesuffix(".jsonl")
+        owner, _, rest = token.rpartition("-")[0].rpartition("-")
+        if owner != host or not rest.isdigit():
+            continue
+        try:
+            os.kill(int(rest), 0)
+        except ProcessLookupError:
+            path.unlink(missing_ok=True)
+        except PermissionError:
+            pass
+
+
 class SweepProgress(Callback):
     """Prints a progress line as each job of a sweep ends, and the tally when the sweep ends."""
 
@@ -79,11 +97,12 @@ class SweepProgress(Callback):
     def _path(config: DictConfig) -> Path:
         # One file a sweep process, so two sweeps writing into one folder keep their own counts;
         # the launcher's workers (threads, loky or submitit processes) inherit the name.
-        token = os.environ.setdefault(SWEEP_TOKEN, f"{os.getpid()}-{time.time_ns()}")
+        token = os.environ.setdefault(SWEEP_TOKEN, f"{socket.gethostname()}-{os.getpid()}-{time.time_ns()}")
         return Path(config.hydra.sweep.dir).resolve() / PROGRESS_FILE.format(token=token)
 
     def on_multirun_start(self, config: DictConfig, **kwargs: Any) -> None:
-        os.environ[SWEEP_TOKEN] = f"{os.getpid()}-{time.time_ns()}"
+        os.environ[SWEEP_TOKEN] = f"{socket.gethostname()}-{os.getpid()}-{time.time_ns()}"
+        remove_dead_progress(Path(config.hydra.sweep.dir).resolve())
         task = list(OmegaConf.to_container(config.hydra.overrides.task))  # type: ignore[arg-type]
         study = config.hydra.sweeper.get("params")
         params = OmegaConf.to_container(study) if study else {}

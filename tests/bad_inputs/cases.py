@@ -48,7 +48,9 @@ def declaring(shape: tuple[int, ...], **arrays) -> Writer:
     return write
 
 
-def graphml(graph) -> Writer:
+def graphml(graph, weight: float | None = None) -> Writer:
+    if weight is not None:
+        nx.set_edge_attributes(graph, weight, "weight")
     return lambda path: nx.write_graphml(graph, path)
 
 
@@ -84,6 +86,23 @@ CONFIG_CASES: list[tuple[list[str], str]] = [
                                    "hydra/launcher=joblib here, or on a cluster's login node"),
     (["arch.order=-1"], "arch.order=-1 is not accepted; accepted: an integer >= 0"),
     (["threads=0"], "threads=0 is not accepted; accepted: an integer >= 1"),
+    (["train.lr=inf"], "train.lr=inf is not accepted; accepted: a number > 0"),
+    (["data.noise=inf"], "data.noise=inf is not accepted; accepted: a number >= 0"),
+    (["graph=rewired", "graph.swaps_per_edge=inf"], "graph.swaps_per_edge=inf is not accepted; accepted: a number >= 0"),
+    (["seed=${nope}"], "seed='${nope}' does not resolve (Interpolation key 'nope' not found); accepted: a value, or an "
+                       "interpolation that resolves (${oc.env:NAME} needs NAME set)"),
+    (["results_dir=${oc.env:SHIFTBENCH_UNSET_VARIABLE}"],
+     "results_dir='${oc.env:SHIFTBENCH_UNSET_VARIABLE}' does not resolve (KeyError raised while resolving "
+     "interpolation: \"Environment variable 'SHIFTBENCH_UNSET_VARIABLE' not found\"); accepted: a value, or an "
+     "interpolation that resolves (${oc.env:NAME} needs NAME set)"),
+    (["results_dir=good.npz"], "results_dir='good.npz': 'good.npz' is a file; accepted: a folder path"),
+    (["results_dir=good.npz/runs"], "results_dir='good.npz/runs': 'good.npz' is a file; accepted: a folder path"),
+    ([f"results_dir={'r' * 300}"], f"results_dir={'r' * 60!r}...: a name in it is 300 bytes long; accepted: names of "
+                                   "at most 255 bytes"),
+    (["++hydra.run.dir=../elsewhere"], "hydra.run.dir='../elsewhere' is not accepted; accepted: a folder below the "
+                                       "working folder (no '..'), or an absolute path"),
+    (["-m", "seed=0,1", "hydra.sweep.subdir=../x"], "hydra.sweep.subdir='../x' is not accepted; accepted: a folder "
+                                                   "below the working folder (no '..'), or an absolute path"),
     (["train.epochs=0"], "train.epochs=0 is not accepted; accepted: an integer >= 1"),
     (["train.lr=0"], "train.lr=0.0 is not accepted; accepted: a number > 0"),
     (["train.max_seconds=-5"], "train.max_seconds=-5.0 is not accepted; accepted: a number of seconds > 0, or null"),
@@ -209,6 +228,13 @@ GRAPH_CASES: list[tuple[str, Writer, str]] = [
     ("rectangular.npz", save_sparse(np.ones((5, 4))), "holds a 5x4 matrix; accepted: a square adjacency"),
     ("small.npz", save_sparse(np.eye(4, k=1)), "has 4 nodes but the data has 5; they must agree"),
     ("complex.npz", save_sparse(np.eye(5, k=1) * (1 + 2j)), "holds complex weights; accepted: real weights"),
+    ("text_weights.npz", npz(format=np.array(b"csr"), shape=np.array([5, 5]), data=np.array(["x", "y"]),
+                             indices=np.array([1, 2]), indptr=np.array([0, 1, 2, 2, 2, 2])),
+     "holds weights of dtype <U1; accepted: real numbers"),
+    ("outside.npz", npz(format=np.array(b"csr"), shape=np.array([5, 5]), data=np.ones(2), indices=np.array([1, 9]),
+                        indptr=np.array([0, 1, 2, 2, 2, 2])),
+     "holds a malformed sparse matrix (indices must be < 5); save a valid matrix with scipy.sparse.save_npz"),
+    ("nan_weight.graphml", graphml(nx.path_graph(5), weight=float("nan")), "holds weights that are not finite numbers"),
     ("malformed.npz", npz(format=np.array(b"csr"), shape=np.array([5, 5]), data=np.ones(3), indices=np.array([1, 2, 3]),
                           indptr=np.array([0, 2, 1, 3, 3, 3])),
      "holds a malformed sparse matrix (indptr must be a non-decreasing sequence); save a valid matrix with "

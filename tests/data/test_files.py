@@ -52,3 +52,9 @@ def test_a_small_archive_that_inflates_beyond_memory_is_refused_before_reading(t
     monkeypatch.setattr(np, "load", lambda *args, **kwargs: pytest.fail("read before its size was checked"))
     with pytest.raises(ConfigError, match=r"would take 0\.1 GB of memory to read \('signals\.npy' alone 0\.1 GB\), but 0\.0 GB"):
         load_signal_file(str(tmp_path / "bomb.npz"))
+
+
+def test_byte_string_labels_are_read_as_text(tmp_path):
+    np.savez(tmp_path / "d.npz", signals=np.zeros((30, 2)), labels=np.repeat([b"low", b"high", b"mid"], 10))
+    dataset = load_signal_file(str(tmp_path / "d.npz"))
+    assert dataset.classes == 3 and dataset.labels[:10].tolist() == [1] * 10  # 'high' < 'low' < 'mid'

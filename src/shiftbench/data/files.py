@@ -134,7 +134,12 @@ def _check_labels(path: Path, labels: np.ndarray, samples: int) -> np.ndarray:
         if not np.isfinite(labels).all() or (labels != np.round(labels)).any():
             raise _fail(path, "labels are not all integers; accepted: integer or string class labels")
         labels = labels.astype(np.int64)
-    elif labels.dtype.kind not in "iuUS":
+    elif labels.dtype.kind == "S":  # bytes: read as UTF-8 text, as a CSV's labels are
+        try:
+            labels = np.char.decode(labels, "utf-8")
+        except UnicodeDecodeError:
+            raise _fail(path, "labels are bytes that are not UTF-8 text; save them as str or integers") from None
+    elif labels.dtype.kind not in "iuU":
         raise _fail(path, f"labels have dtype {labels.dtype}; accepted: integer or string class labels")
     codes, order = encode_labels(labels)
     if len(order) < 2:

@@ -26,6 +26,7 @@ import networkx as nx
 import numpy as np
 import pandas as pd
 import scipy.sparse as sp
+import torch
 
 from shiftbench.config import Check, declared
 from shiftbench.csv_input import read_user_csv
@@ -81,6 +82,8 @@ def read_sparse_matrix(path: Path, fail: Fail) -> Graph:
         raise fail(path, f"holds a {matrix.shape[0]}x{matrix.shape[1]} matrix; accepted: a square adjacency")
     if np.iscomplexobj(matrix.data):
         raise fail(path, "holds complex weights; accepted: real weights")
+    if not np.issubdtype(matrix.data.dtype, np.number) and matrix.data.dtype != bool:
+        raise fail(path, f"holds weights of dtype {matrix.data.dtype}; accepted: real numbers")
     try:  # index arrays a hand-made file may get wrong: out of range, not monotonic
         if hasattr(matrix, "check_format"):
             matrix.check_format(full_check=True)
@@ -146,6 +149,8 @@ def load_graph_file(path: str, nodes: int, key: str = "graph.path") -> Graph:
         graph = read_networkx(file, fail)
     if graph.nodes != nodes:
         raise fail(file, f"has {graph.nodes} nodes but the data has {nodes}; they must agree")
+    if not torch.isfinite(graph.edge_weight).all():
+        raise fail(file, "holds weights that are not finite numbers")
     return replace(graph, name=file.name)
 
 
