@@ -132,12 +132,12 @@ CONFIG_CASES: list[tuple[list[str], str]] = [
     (["-m", "hydra.sweep.dir=runs/../../x"], "hydra.sweep.dir='runs/../../x' is not accepted; accepted: a folder "
                                              "below the working folder (no '..'), or an absolute path"),
     (["arch=fc", "arch.hidden=[100000]", "data.nodes=100000"],
-     "arch=fc at 100,000 nodes (10,000,500,004 parameters, 800 samples) needs 560.8 GB to train (parameters "
-     "560.0 GB, activations 0.2 GB, data 0.6 GB), but 24.0 GB of memory is available; accepted: a job that fits "
+     "arch=fc at 100,000 nodes (10,000,500,004 parameters, 800 samples) needs 440.9 GB to train (parameters "
+     "440.0 GB, activations 0.2 GB, data 0.6 GB), but 24.0 GB of memory is available; accepted: a job that fits "
      "(narrower layers, fewer nodes or samples, a smaller train.batch_size, or a convolutional family, whose count "
      "does not grow with the nodes)"),
     (["arch=nearest", "data.nodes=10000000"],
-     "arch=nearest at 10,000,000 nodes (0 parameters, 800 samples) needs 64.0 GB to train (parameters 0.0 GB, "
+     "arch=nearest at 10,000,000 nodes (0 parameters, 800 samples) needs 64.1 GB to train (parameters 0.0 GB, "
      "activations 0.0 GB, data 64.0 GB), but 24.0 GB of memory is available; accepted: a job that fits (narrower "
      "layers, fewer nodes or samples, a smaller train.batch_size, or a convolutional family, whose count does not "
      "grow with the nodes)"),

@@ -14,10 +14,12 @@ from shiftbench.registry import FAMILIES
 # Peak memory a parameter takes in training: the weight, its gradient, Adam's two moments,
 # Adam's temporaries, the best weights so far and the copy that replaces them, with the heap
 # keeping freed blocks as the command line sets it (runtime.keep_freed_memory). Measured for fc
-# (2026-12-03): 29 to 33 bytes in the loop alone at 16M to 64M parameters, 41 to 45 in a whole
-# job at 16M; the rest is room for the heap's fragmentation. tests/models/test_memory.py checks
-# the estimate against measured peaks.
-BYTES_PER_PARAMETER = 56
+# (2026-12-03): 29 to 33 bytes in the loop alone at 16M to 64M parameters, 22 to 45 in whole
+# jobs (the heap reuses more or less of what was freed). `python -m benchmarks.memory` sets the
+# estimate beside measured peaks; tests/models/test_memory.py checks that it covers them.
+BYTES_PER_PARAMETER = 44
+# What a job's first use of its libraries takes whatever its size (kernels, buffers, metrics).
+JOB_OVERHEAD_BYTES = 96 * 2**20
 # An activation is kept in float32 for the backward pass, and its gradient takes as much.
 BYTES_PER_ACTIVATION = 8
 # The signals in float32, and the train/validation/test copies training indexes out of them.
@@ -39,7 +41,8 @@ def planned_parameters(arch: Any, nodes: int, features: int, classes: int) -> in
 @dataclass(frozen=True)
 class MemoryPlan:
     """What training a model would hold at its peak, in bytes, from the config alone:
-    ``parameters * 36 + batch * activations_per_sample * 8 + samples * nodes * features * 8``."""
+    ``parameters * 44 + batch * activations_per_sample * 8 + samples * nodes * features * 8``
+    plus 96 MiB that any job takes."""
 
     parameters: int
     parameter_bytes: int
@@ -48,7 +51,7 @@ class MemoryPlan:
 
     @property
     def total(self) -> int:
-        return self.parameter_bytes + self.activation_bytes + self.data_bytes
+        return self.parameter_bytes + self.activation_bytes + self.data_bytes + JOB_OVERHEAD_BYTES
 
 
 def planned_memory(arch: Any, nodes: int, features: int, classes: int, batch_size: int, samples: int) -> MemoryPlan:
