@@ -1,12 +1,21 @@
 """Shift operators: the matrix ``S`` whose powers a graph filter takes.
 
-With ``A`` the adjacency (``A[i, j]`` the weight of edge ``j -> i``) and ``D`` the diagonal of
-weighted in-degrees ``d_i = sum_j A[i, j]``:
+With ``A`` the adjacency (``A[i, j]`` the weight of edge ``j -> i``), ``D`` the diagonal of
+weighted in-degrees ``d_i = sum_j A[i, j]`` and ``D_out`` that of out-degrees
+``o_j = sum_i A[i, j]`` (equal to ``D`` on an undirected graph):
 
 - ``adjacency``:             ``S = A``
 - ``laplacian``:             ``S = D - A``
-- ``normalized_adjacency``:  ``S = D^-1/2 A D^-1/2``      (``d_i = 0`` gives a zero row and column)
-- ``normalized_laplacian``:  ``S = I - D^-1/2 A D^-1/2``
+- ``normalized_adjacency``:  ``S = D^-1/2 A D_out^-1/2``, i.e. ``S[i, j] = A[i, j] / sqrt(d_i o_j)``
+- ``normalized_laplacian``:  ``S = I' - D^-1/2 A D_out^-1/2``, ``I'`` the identity on nodes with
+  at least one edge (0 on the diagonal of an isolated node, as networkx and scipy give)
+
+Normalizing each edge by its target's in-degree and its source's out-degree keeps every edge of
+a directed graph (a source node, with in-degree 0, keeps its outgoing edges) and reduces to the
+usual symmetric ``D^-1/2 A D^-1/2`` on undirected graphs; it is the directed normalization of
+Rossi et al., "Edge directionality improves learning on heterophilic graphs" (2023), written in
+our convention (from memory). On the directed line graph every degree is 1 or 0, so the
+normalized adjacency is the delay itself.
 
 ``scale: spectral`` divides ``S`` by its spectral radius ``max |lambda(S)|`` (left as is when the
 radius is zero, as for the nilpotent directed line graph); ``scale: none`` keeps it.
@@ -59,21 +68,28 @@ def laplacian(graph: Graph) -> sp.csr_matrix:
 
 
 def _normalized(graph: Graph, operator: str) -> sp.csr_matrix:
+    """``D^-1/2 A D_out^-1/2``, a zero scale where a degree is 0 (that side has no edges)."""
     matrix = graph.adjacency()
-    degree = _degrees(matrix, operator)
-    with np.errstate(divide="ignore"):
-        inverse_root = np.where(degree > 0, 1.0 / np.sqrt(np.abs(degree)), 0.0)
-    return (sp.diags(inverse_root) @ matrix @ sp.diags(inverse_root)).tocsr()
+    in_degree = _degrees(matrix, operator)
+    out_degree = np.asarray(matrix.sum(axis=0)).ravel()
+
+    def inverse_root(degree: np.ndarray) -> np.ndarray:
+        with np.errstate(divide="ignore"):
+            return np.where(degree > 0, 1.0 / np.sqrt(np.abs(degree)), 0.0)
+
+    return (sp.diags(inverse_root(in_degree)) @ matrix @ sp.diags(inverse_root(out_degree))).tocsr()
 
 
 def normalized_adjacency(graph: Graph) -> sp.csr_matrix:
-    """``S = D^-1/2 A D^-1/2`` (a zero row and column where ``d_i = 0``)."""
+    """``S = D^-1/2 A D_out^-1/2``: ``S[i, j] = A[i, j] / sqrt(d_i o_j)``."""
     return _normalized(graph, "normalized_adjacency")
 
 
 def normalized_laplacian(graph: Graph) -> sp.csr_matrix:
-    """``S = I - D^-1/2 A D^-1/2``."""
-    return (sp.identity(graph.nodes, format="csr") - _normalized(graph, "normalized_laplacian")).tocsr()
+    """``S = I' - D^-1/2 A D_out^-1/2``, ``I'`` the identity on nodes with at least one edge."""
+    connected = np.zeros(graph.nodes)
+    connected[graph.edge_index.unique().numpy()] = 1.0
+    return (sp.diags(connected) - _normalized(graph, "normalized_laplacian")).tocsr()
 
 
 for _function in (adjacency, laplacian, normalized_adjacency, normalized_laplacian):
