@@ -2,6 +2,7 @@
 
 import json
 
+import numpy as np
 import pandas as pd
 import pytest
 
@@ -32,12 +33,13 @@ def test_a_planted_unflipped_mapping_is_caught(small_demo):
     assert claim.verdict == "does_not_hold"
 
 
-def test_path_filters_fit_symmetric_kernels_only():
-    # Reference outputs from torch.nn.Conv1d with a causal and a symmetric kernel.
+def test_the_layer_on_the_undirected_path_has_symmetric_impulse_responses_only():
+    # Common practice, no source: a polynomial in a symmetric shift gives a symmetric impulse
+    # response; on the directed line graph the same taps respond causally.
     claim = claims.undirected_path_symmetry(nodes=40)
-    assert claim.verdict == "holds_with_caveat"
-    assert claim.evidence["relative_residual_symmetric_kernel"] < 1e-8
-    assert claim.evidence["relative_residual_causal_kernel"] > 0.1
+    assert claim.verdict == "holds"
+    assert claim.evidence["max_asymmetry_on_the_path"] <= 1e-12
+    assert claim.evidence["max_backward_response_on_the_line"] <= 1e-12
 
 
 def test_permutation_equivariance_holds_for_graph_conv_only(small_demo):
@@ -75,17 +77,41 @@ def test_accuracy_against_nodes_is_reported_honestly_either_way():
     assert rising.verdict == "does_not_hold"
 
 
+def gnn_record(graph: str, seed: int, accuracy: float, order: int = 3) -> dict:
+    config = {"seed": seed, "data": {"source": "sensor_regimes"}, "arch": {"family": "graph_conv", "order": order},
+              "graph": {"source": graph, "operator": "adjacency", "scale": "spectral", **({"seed": seed} if graph == "rewired" else {})}}
+    return {"status": "completed", "family": "graph_conv", "graph": graph, "nodes": 64, "seed": seed, "config": config,
+            "data": "sensor_regimes", "operator": "adjacency", "test_accuracy": accuracy, "path": f"{graph}/{order}/{seed}"}
+
+
 def test_graph_matters_compares_native_with_rewired_and_line_by_seed():
-    rows = [
-        {"status": "completed", "family": "graph_conv", "graph": graph, "nodes": 64, "seed": seed,
-         "data": "sensor_regimes", "operator": "adjacency",
-         "test_accuracy": accuracy + 0.01 * seed, "path": f"{graph}/{seed}"}
-        for seed in range(3) for graph, accuracy in (("native", 0.95), ("rewired", 0.3), ("line", 0.32))
-    ]
+    rows = [gnn_record(graph, seed, accuracy + 0.01 * seed)
+            for seed in range(3) for graph, accuracy in (("native", 0.95), ("rewired", 0.3), ("line", 0.32))]
     claim = claims.graph_matters(pd.DataFrame(rows))
     assert claim.verdict == "holds"
     assert claim.evidence["native_minus_rewired"]["mean"] == pytest.approx(0.65)
     assert claims.graph_matters(pd.DataFrame()).verdict == "not_enough_evidence"
+
+
+def test_graph_matters_pairs_only_identical_configs_and_counts_what_it_left_out():
+    rows = [gnn_record(graph, seed, accuracy) for seed in range(3) for graph, accuracy in (("native", 0.9), ("rewired", 0.4))]
+    rows += [gnn_record("native", seed, 0.1, order=6) for seed in range(3)]  # another order: never averaged in
+    claim = claims.graph_matters(pd.DataFrame(rows))
+    assert claim.evidence["native_minus_rewired"]["mean"] == pytest.approx(0.5)
+    assert claim.evidence["records_left_out"] == 3 and len(claim.records) == 6
+
+
+def test_graph_matters_needs_the_rewired_control_beating_the_line_graph_is_not_enough():
+    rows = [gnn_record(graph, seed, accuracy) for seed in range(3) for graph, accuracy in (("native", 0.9), ("line", 0.3))]
+    assert claims.graph_matters(pd.DataFrame(rows)).verdict == "not_enough_evidence"
+
+
+def test_a_native_graph_no_better_than_its_rewiring_does_not_hold():
+    # A planted failure: the "native" graph is as good as a scrambled one.
+    rows = [gnn_record(graph, seed, accuracy) for seed, (native, rewired) in enumerate([(0.5, 0.52), (0.48, 0.47), (0.51, 0.53)])
+            for graph, accuracy in (("native", native), ("rewired", rewired))]
+    claim = claims.graph_matters(pd.DataFrame(rows))
+    assert claim.verdict == "does_not_hold"
 
 
 def test_claims_files_carry_every_id_in_order(tmp_path, small_demo):
@@ -96,3 +122,28 @@ def test_claims_files_carry_every_id_in_order(tmp_path, small_demo):
     assert "## graph_matters: not_enough_evidence" in text
     assert [row["nodes"] for row in written["analyses"]["transfer"]] == [24, 48, 96]
     assert (tmp_path / "frequency_responses.png").stat().st_size > 1000
+
+
+def test_a_scrambled_native_graph_does_not_hold_on_trained_runs(tmp_path):
+    # A planted failure through the whole tool: the data's "native" graph is a thorough
+    # rewiring of the graph its signals came from, so it carries nothing a rewiring lacks.
+    from shiftbench.data import sensor_regimes
+    from shiftbench.graphs.sources import rewired_graph
+    from shiftbench.job import run_job
+    from shiftbench.records import load_records
+    from tests.conftest import composed
+
+    demo = sensor_regimes(nodes=24, samples_per_class=40)
+    split = np.zeros(demo.samples, dtype=int)
+    split[demo.splits.val], split[demo.splits.test] = 1, 2
+    np.savez(tmp_path / "signals.npz", signals=demo.signals[:, :, 0], labels=demo.labels, split=split)
+    scrambled = rewired_graph(demo.native_graph, swaps_per_edge=20, seed=7)
+    source, target = scrambled.edge_index.numpy()
+    pd.DataFrame({"source": source, "target": target}).to_csv(tmp_path / "scrambled.csv", index=False)
+    data = ["data=file", f"data.path={tmp_path / 'signals.npz'}", f"data.graph={tmp_path / 'scrambled.csv'}"]
+    for seed in range(3):
+        for graph in (["graph=native"], ["graph=rewired", f"graph.seed={seed}"]):
+            overrides = [*data, *graph, f"seed={seed}", "train.epochs=15", f"results_dir={tmp_path / 'runs'}"]
+            run_job(composed(overrides), None, overrides, live=False, quiet=True)
+    claim = claims.graph_matters(load_records([tmp_path / "runs"]))
+    assert claim.verdict == "does_not_hold", claim.evidence

@@ -80,3 +80,17 @@ def test_an_old_results_folder_moves_into_the_store_and_a_rerun_skips_its_jobs(s
     assert not list((tmp_path / "old").rglob("result.json"))
     again = run_job(small_config("arch=fc", f"results_dir={tmp_path / 'new'}"), None, [], live=False)
     assert again["skipped"] is True and (tmp_path / "new" / "store" / again["config_hash"] / "record.json").is_file()
+
+
+def test_load_records_takes_a_str_or_a_path_and_flattens_the_config_into_typed_columns(small_config, tmp_path):
+    from shiftbench.job import run_job
+    from shiftbench.records import load_records
+
+    for order in (1, 2):
+        run_job(small_config(f"arch.order={order}"), None, [], live=False, quiet=True)
+    frame = load_records(str(tmp_path))
+    assert len(frame) == 2 and len(load_records(tmp_path)) == 2
+    assert frame["config.arch.order"].dtype.kind == "i" and frame["config.train.lr"].dtype.kind == "f"
+    assert sorted(frame.groupby("config.arch.order").size().index) == [1, 2]
+    (record,) = list((tmp_path / "store").rglob("record.json"))[:1]
+    assert len(load_records(str(record))) == 1

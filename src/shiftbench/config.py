@@ -161,7 +161,9 @@ def _natural(key: str, value: Any) -> None:
 
 
 def validate(config: DictConfig) -> RunConfig:
-    """Check a composed config and return it as typed dataclasses, or raise ConfigError."""
+    """Check a composed config and return it as typed dataclasses, or raise ConfigError.
+    Interpolations are resolved first, against the whole config (``graph.seed: ${seed}``)."""
+    config = OmegaConf.create(OmegaConf.to_container(config, resolve=True))
     unknown = [key for key in config.keys() if key not in ROOT_KEYS]
     if unknown:
         raise ConfigError(f"unknown key {unknown[0]}; accepted top-level keys: {', '.join(ROOT_KEYS)}")

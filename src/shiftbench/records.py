@@ -211,12 +211,20 @@ def read_manifest(folder: Path) -> list[dict[str, Any]]:
     return entries
 
 
-def find_records(paths: Iterable[Path]) -> list[Path]:
-    """Every record file under ``paths``: record files given themselves, the homes a launch
-    folder's manifest points at, and every ``record.json`` (or old ``result.json``) below a
-    folder outside ``superseded`` folders; sorted, each once."""
+PathLike = str | os.PathLike
+
+
+def as_paths(paths: PathLike | Iterable[PathLike]) -> list[Path]:
+    """One path or several, each a ``str`` or ``Path``, as a list of ``Path``."""
+    return [Path(paths)] if isinstance(paths, (str, os.PathLike)) else [Path(path) for path in paths]
+
+
+def find_records(paths: PathLike | Iterable[PathLike]) -> list[Path]:
+    """Every record file under ``paths`` (one or several, ``str`` or ``Path``): record files
+    given themselves, the homes a launch folder's manifest points at, and every ``record.json``
+    (or old ``result.json``) below a folder outside ``superseded`` folders; sorted, each once."""
     found: set[Path] = set()
-    for path in paths:
+    for path in as_paths(paths):
         if path.is_file():
             found.add(path.resolve())
             continue
@@ -248,11 +256,14 @@ def read_record(path: Path) -> dict[str, Any]:
     return record
 
 
-def load_records(paths: Iterable[Path]) -> pd.DataFrame:
-    """One row per record under ``paths`` (see :func:`find_records`), with every record field as
-    a column and ``path`` (the record's folder). Files that cannot be read are skipped with a
-    warning and listed in ``frame.attrs["skipped"]``; records of the old layout are read, with
-    one note saying how to move them into the store."""
+def load_records(paths: PathLike | Iterable[PathLike]) -> pd.DataFrame:
+    """One row per record under ``paths`` (a folder or a file, or several; ``str`` or ``Path``,
+    see :func:`find_records`), with every record field as a column, ``path`` (the record's
+    folder), and the config flattened into dotted columns with their own types
+    (``config.arch.order``, ``config.train.lr``), so ``frame.groupby("config.arch.order")``
+    works. Files that cannot be read are skipped with a warning and listed in
+    ``frame.attrs["skipped"]``; records of the old layout are read, with one note saying how to
+    move them into the store."""
     rows, skipped, old = [], [], 0
     for path in find_records(paths):
         try:
@@ -270,5 +281,9 @@ def load_records(paths: Iterable[Path]) -> pd.DataFrame:
             "shiftbench-migrate FOLDER RESULTS_DIR moves them into the store", stacklevel=2,
         )
     frame = pd.DataFrame(rows)
+    if "config" in frame:
+        configs = [config if isinstance(config, dict) else {} for config in frame["config"]]
+        flat = pd.json_normalize(configs, sep=".").add_prefix("config.")
+        frame = pd.concat([frame, flat.set_index(frame.index)], axis=1)
     frame.attrs["skipped"] = skipped
     return frame
