@@ -169,6 +169,26 @@ best graph-free candidate in pairs, and say in one sentence per candidate whethe
 Writes verdict.md, verdict.json, units.csv and plots to results_dir/decision (decision.folder)."""
 
 
+def export_main(arguments: list[str] | None = None) -> None:
+    """``shiftbench-export PATH... --out DIR``: records' curves as TensorBoard runs."""
+    parser = argparse.ArgumentParser(
+        prog="shiftbench-export", description="Write the records under folders as TensorBoard runs (one a record)."
+    )
+    parser.add_argument("paths", nargs="+", type=Path, help="launch folders, results folders or record.json files")
+    parser.add_argument("--out", type=Path, required=True, help="the TensorBoard log folder to write the runs into")
+    options = parser.parse_args(arguments)
+    missing = [str(path) for path in options.paths if not path.exists()]
+    if missing:
+        parser.exit(2, f"shiftbench-export: error: no such file or folder: {missing[0]}\n")
+    from shiftbench.export import export_tensorboard
+
+    try:
+        runs = export_tensorboard(options.paths, options.out)
+    except ValueError as error:
+        parser.exit(2, f"shiftbench-export: error: {error}\n")
+    print(f"wrote {len(runs)} TensorBoard runs into {options.out}; view them with: tensorboard --logdir {options.out}")
+
+
 def migrate_main(arguments: list[str] | None = None) -> None:
     """``shiftbench-migrate OLD_FOLDER RESULTS_DIR``: move records of the old layout into the store."""
     from shiftbench.store import migrate

@@ -38,6 +38,7 @@ STAGES = {
     "shiftbench.robustness": 9,
     "shiftbench.plots": 9,
     "shiftbench.report": 9,
+    "shiftbench.export": 9,
     "shiftbench.sweep_progress": 9,
     "shiftbench.preflight": 9,
     "shiftbench.claims": 10,
