@@ -17,7 +17,7 @@ import torch
 from shiftbench.config import TrainConfig
 from shiftbench.data.dataset import Dataset
 from shiftbench.graphs.graph import Graph
-from shiftbench.graphs.operators import operator_matrix, shift_operator
+from shiftbench.graphs.operators import shift_operator
 from shiftbench.graphs.sources import cycle_graph, line_graph, path_graph
 from shiftbench.models import FullyConnected, ShiftPolynomialNet, LineConv
 from shiftbench.models.mapping import line_conv_to_graph_conv

@@ -8,7 +8,6 @@ import ctypes.util
 import os
 from pathlib import Path
 
-import torch
 
 # glibc mallopt parameters (malloc.h).
 M_TRIM_THRESHOLD = -1
