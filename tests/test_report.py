@@ -156,3 +156,18 @@ def test_no_note_when_every_family_is_near_chance(tmp_path):
 def test_a_native_graph_row_names_the_graph_it_stood_for():
     table = summary_table(pd.DataFrame([dict(RECORDS[3], graph_name="roads.csv")]))
     assert table.loc[0, "graph"] == "native: roads.csv"
+
+
+def test_a_nested_seed_that_follows_the_run_seed_does_not_split_a_row():
+    # A study's rewired control draws a new rewiring per training seed (graph.seed: ${seed}).
+    entries = [dict(record("graph_conv", "rewired", 3, seed, 0.3 + seed / 100),
+                    config={"seed": seed, "graph": {"source": "rewired", "seed": seed}}) for seed in range(3)]
+    table = summary_table(pd.DataFrame(entries))
+    assert len(table) == 1 and table.loc[0, "seeds"] == 3 and "graph.seed" not in table.columns
+
+
+def test_a_nested_seed_that_only_sometimes_equals_the_run_seed_stays_part_of_the_setting():
+    # data.seed=0 is the data's own seed: it matches run seed 0 by coincidence only.
+    entries = [dict(record("fc", "none", None, seed, 0.7), config={"seed": seed, "data": {"seed": 0}}) for seed in range(3)]
+    table = summary_table(pd.DataFrame(entries))
+    assert len(table) == 1 and table.loc[0, "seeds"] == 3

@@ -57,12 +57,24 @@ def t_interval(mean: float, std: float, count: int, confidence: float = CONFIDEN
     return float(low), float(high)
 
 
-def setting_of(record: pd.Series) -> str:
-    """What a record computed, up to its seed: its config minus seed and output keys (or, for a
-    record without a config, its describing fields)."""
-    config = record.get("config")
-    if isinstance(config, dict):
-        content = {key: value for key, value in computed_content(config).items() if key != "seed"}
+def seed_following_keys(configs: list[dict[str, str]]) -> set[str]:
+    """The nested ``*.seed`` keys that equal the run's ``seed`` in every record that has them
+    (a study's ``graph.seed: ${seed}``: a new rewiring for each training seed). They vary with
+    the seed, so they tell seeds apart, not settings."""
+    following = set()
+    for key in {key for config in configs for key in config if key.endswith(".seed")}:
+        holders = [config for config in configs if key in config]
+        if all(config[key] == config.get("seed") for config in holders):
+            following.add(key)
+    return following
+
+
+def setting_of(record: pd.Series, flat: dict[str, str], ignored: set[str]) -> str:
+    """What a record computed, up to its seed: its flat config (``flat``) minus the seed, the
+    keys in ``ignored`` and output keys (or, for a record without a config, its describing
+    fields)."""
+    if isinstance(record.get("config"), dict):
+        content = {key: value for key, value in flat.items() if key != "seed" and key not in ignored}
     else:
         content = {key: None if pd.isna(record.get(key)) else record.get(key) for key in DESCRIBE}
     return json.dumps(content, sort_keys=True, default=str)
@@ -87,15 +99,18 @@ def flat_config(config: object, prefix: str = "") -> dict[str, str]:
     return leaves
 
 
-def varied_keys(records: pd.DataFrame) -> tuple[list[str], list[dict[str, str]]]:
-    """The config keys (beyond the describing fields) that hold two or more values among the
-    records that have them, in config order, and each record's flat config."""
+def varied_keys(records: pd.DataFrame) -> tuple[list[str], list[dict[str, str]], set[str]]:
+    """The config keys (beyond the describing fields and the seeds) that hold two or more
+    values among the records that have them, in config order; each record's flat config; and
+    the nested seeds that follow the run's seed."""
     configs = [flat_config(computed_content(c)) if isinstance(c, dict) else {} for c in records.get("config", [])]
+    following = seed_following_keys(configs)
     values: dict[str, set[str]] = {}
     for config in configs:
         for key, value in config.items():
             values.setdefault(key, set()).add(value)
-    return [key for key, seen in values.items() if len(seen) > 1 and key not in DESCRIBED_KEYS], configs
+    varied = [key for key, seen in values.items() if len(seen) > 1 and key not in DESCRIBED_KEYS | following]
+    return varied, configs, following
 
 
 def graph_label(graph: object, graph_name: object) -> object:
@@ -145,9 +160,11 @@ def summary_table(records: pd.DataFrame, by: Iterable[str] = ()) -> pd.DataFrame
                    "chance_accuracy", "flags"]:
         if column not in frame:
             frame[column] = float("nan")
-    frame["setting"] = [setting_of(row) for _, row in frame.iterrows()]
+    varied, configs, following = varied_keys(frame)
+    if len(configs) != len(frame):  # records without any config at all
+        configs = [{} for _ in range(len(frame))]
+    frame["setting"] = [setting_of(row, flat, following) for (_, row), flat in zip(frame.iterrows(), configs)]
     frame["graph"] = [graph_label(graph, name) for graph, name in zip(frame["graph"], frame["graph_name"])]
-    varied, configs = varied_keys(frame)
     for key in varied:
         frame[key] = [config.get(key, "-") for config in configs]
     completed = frame["status"].isin(FINAL_STATUSES)
