@@ -70,7 +70,7 @@ def test_every_value_of_a_study_axis_is_checked():
 def test_sweep_values_that_give_one_configuration_are_named_not_dropped_silently():
     # graph=... on the command line wins over the study rows' graphs: the three graph rows at
     # one readout collapse into one configuration.
-    checked = preflight(["-m", "+experiment=families", "graph=cycle"], CONFIG_DIR)
+    checked = preflight(["-m", "+experiment=families", "graph=sbm"], CONFIG_DIR)
     assert any(
         note.startswith("note: +experiment/setups=graph_conv_rewired gives the same configuration as "
                         "+experiment/setups=graph_conv_native")
