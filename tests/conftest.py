@@ -25,7 +25,7 @@ def pytest_configure(config):
 
 # Files whose tests start real processes or train to published figures: run first, so that the
 # workers' tails are short tests (the suite is balanced across pytest-xdist workers).
-SLOW_FIRST = ("test_cli.py", "test_ucr.py", "test_study.py")
+SLOW_FIRST = ("test_cli.py", "test_ucr.py", "test_study.py", "test_memory.py", "test_claims.py")
 
 
 def pytest_collection_modifyitems(config, items):
