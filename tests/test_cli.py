@@ -94,7 +94,7 @@ def test_a_sweep_writes_one_record_per_job_and_the_report_tabulates_them(tmp_pat
 def test_the_families_study_and_the_claims_on_the_users_own_data_and_graph(tmp_path):
     from examples.own_files import write_own_files  # a graph and signals that are not the demo
 
-    write_own_files(tmp_path)
+    write_own_files(tmp_path, per_class=40)
     arguments = ["-m", "+experiment=families", "data=file", "data.path=signals.csv", "data.graph=roads.csv", "train.epochs=20"]
     result = run("shiftbench", *arguments, cwd=tmp_path)
     assert result.returncode == 0, result.stderr

@@ -88,3 +88,17 @@ def test_a_model_too_large_to_train_is_refused_with_the_count_it_would_need():
 
 def test_fc_at_default_width_on_a_large_signal_is_not_refused():
     preflight(["arch=fc", "data.nodes=100000"], CONFIG_DIR)
+
+
+def test_a_config_of_the_users_own_folder_is_checked_before_any_job(tmp_path):
+    # -cd/--config-dir and -cn/--config-name, as Hydra reads them: the user's config is composed.
+    (tmp_path / "mine.yaml").write_text("defaults:\n  - config\n  - _self_\n\ntrain:\n  epochs: 0\n")
+    for arguments in (["-cd", str(tmp_path), "-cn", "mine"], [f"--config-dir={tmp_path}", "--config-name=mine", "-m", "seed=0,1"]):
+        with pytest.raises(ConfigError, match=r"train\.epochs=0 is not accepted"):
+            preflight(arguments, CONFIG_DIR)
+
+
+def test_an_output_folder_that_leaves_through_an_interpolation_is_refused(monkeypatch):
+    monkeypatch.setenv("SHIFTBENCH_TEST_ESCAPE", "../outside")
+    with pytest.raises(ConfigError, match=r"hydra\.run\.dir='\.\./outside' is not accepted"):
+        preflight(["hydra.run.dir=${oc.env:SHIFTBENCH_TEST_ESCAPE}"], CONFIG_DIR)

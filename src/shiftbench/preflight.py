@@ -81,19 +81,26 @@ def preflight(arguments: list[str], config_dir: Path) -> Checked:
         raise ConfigError(_one_line(str(error))) from None
 
     register_defaults()
-    with initialize_config_dir(str(config_dir.resolve()), version_base="1.3", job_name="shiftbench"):
+    name, user_dir = config_source(arguments)
+    primary = config_dir.resolve()
+    if user_dir is not None:  # the user's folder first, as Hydra's -cd makes it; ours behind it
+        primary, fixed = user_dir, [f"hydra.searchpath=[file://{primary}]", *fixed]
+    with initialize_config_dir(str(primary), version_base="1.3", job_name="shiftbench"):
         base = fixed + [values[0] for values in axes.values()]
-        config = _compose(base)
+        config = _compose(base, name)
         add_study_axes(axes, fixed, config.hydra.sweeper.get("params") or {})
         base = fixed + [values[0] for values in axes.values()]
-        first = _validate(_compose(base))
+        composed = _compose(base, name)
+        for key in ("run.dir", "sweep.dir"):  # as resolved: an interpolation may lead outside too
+            require_inside(f"hydra.{key}", str(OmegaConf.select(composed.hydra, key)))
+        first = _validate(composed)
         checked = Checked(1)
         for position, values in enumerate(axes.values()):
             seen = {first: values[0]}
             for value in values[1:]:
                 variant = list(base)
                 variant[len(fixed) + position] = value
-                digest = _validate(_compose(variant))
+                digest = _validate(_compose(variant, name))
                 checked.configs += 1
                 if digest in seen:
                     checked.notes.append(
@@ -104,9 +111,24 @@ def preflight(arguments: list[str], config_dir: Path) -> Checked:
     return checked
 
 
-def _compose(overrides: list[str]) -> DictConfig:
+def config_source(arguments: list[str]) -> tuple[str, Path | None]:
+    """The primary config's name (``-cn``/``--config-name``, default ``config``) and the folder
+    ``-cd``/``--config-dir`` adds, so that the check composes what Hydra will."""
+    name, folder = "config", None
+    for position, argument in enumerate(arguments):
+        flag, _, value = argument.partition("=")
+        if not value and position + 1 < len(arguments):
+            value = arguments[position + 1]
+        if flag in ("-cn", "--config-name"):
+            name = value
+        elif flag in ("-cd", "--config-dir"):
+            folder = Path(value).resolve()
+    return name, folder
+
+
+def _compose(overrides: list[str], name: str = "config") -> DictConfig:
     try:
-        return compose("config", overrides=overrides, return_hydra_config=True)
+        return compose(name, overrides=overrides, return_hydra_config=True)
     except MissingConfigException as error:
         missing = (error.missing_cfg_file or "").rsplit("/", 1)
         if len(missing) == 2 and error.options:
@@ -115,13 +137,13 @@ def _compose(overrides: list[str]) -> DictConfig:
             ) from None
         raise ConfigError(_one_line(str(error))) from None
     except HydraException as error:
-        added = _added_key_retry(overrides, error)
+        added = _added_key_retry(overrides, error, name)
         if added is not None:
             _validate(added)
         raise ConfigError(_one_line(str(error))) from None
 
 
-def _added_key_retry(overrides: list[str], error: HydraException) -> DictConfig | None:
+def _added_key_retry(overrides: list[str], error: HydraException, name: str) -> DictConfig | None:
     """Hydra refuses ``key=value`` for a key the config lacks; compose it as ``+key=value`` so the
     schema can name the unknown key and the accepted ones."""
     refused = re.search(r"Could not override '([^']+)'", str(error))
@@ -129,7 +151,7 @@ def _added_key_retry(overrides: list[str], error: HydraException) -> DictConfig 
         return None
     retried = ["+" + line if line.split("=", 1)[0] == refused.group(1) else line for line in overrides]
     try:
-        return compose("config", overrides=retried, return_hydra_config=True)
+        return compose(name, overrides=retried, return_hydra_config=True)
     except HydraException:
         return None
 

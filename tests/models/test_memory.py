@@ -18,8 +18,8 @@ from benchmarks.memory import COMMON, probe
 @pytest.mark.parametrize(
     "case",
     [
-        ["arch=fc", "arch.hidden=[4000]", "data.nodes=4000"],  # 16M parameters: the parameters dominate
-        ["arch=graph_conv", "data.nodes=12000"],  # 1,188 parameters: the activations dominate
+        ["arch=fc", "arch.hidden=[3000]", "data.nodes=3000"],  # 9M parameters: the parameters dominate
+        ["arch=graph_conv", "data.nodes=10000"],  # 1,188 parameters: the activations dominate
     ],
 )
 def test_the_memory_estimate_covers_a_jobs_measured_peak_without_overstating_it(case):

@@ -104,11 +104,11 @@ class ConvConfig(Schema):
 
 
 def planned_stack_activations(arch: ConvConfig, nodes: int, features: int, classes: int) -> int:
-    """``nodes * (features + 3.5 sum_l c_{l+1})``: the input, and per layer the filter's output,
-    the nonlinearity's and the backward pass's temporaries, each ``(nodes, c_{l+1})`` (the
-    filter's own backward recomputes its partial sums instead of keeping them); the factor is
-    fitted to measured peaks (``benchmarks/memory.py``)."""
-    return nodes * (features + 7 * sum(width_out for _, width_out in widths(features, arch.channels)) // 2)
+    """``nodes * (features + 3 sum_l c_{l+1})``: the input, and per layer the filter's output,
+    the nonlinearity's and a temporary of the backward pass, each ``(nodes, c_{l+1})`` (the
+    filter's own backward recomputes its partial sums instead of keeping them); set beside
+    measured peaks by ``benchmarks/memory.py``."""
+    return nodes * (features + 3 * sum(width_out for _, width_out in widths(features, arch.channels)))
 
 
 def planned_stack_parameters(arch: ConvConfig, nodes: int, features: int, classes: int) -> int:
