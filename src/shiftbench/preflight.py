@@ -91,9 +91,14 @@ def preflight(arguments: list[str], config_dir: Path) -> Checked:
         add_study_axes(axes, fixed, config.hydra.sweeper.get("params") or {})
         base = fixed + [values[0] for values in axes.values()]
         composed = _compose(base, name)
+        first = _validate(composed)  # results_dir first: the folders below derive from it
         for key in ("run.dir", "sweep.dir"):  # as resolved: an interpolation may lead outside too
-            require_inside(f"hydra.{key}", str(OmegaConf.select(composed.hydra, key)))
-        first = _validate(composed)
+            try:
+                folder = str(OmegaConf.select(composed.hydra, key))
+            except OmegaConfBaseException as error:
+                raise ConfigError(f"hydra.{key} does not resolve ({str(error).splitlines()[0]}); accepted: a folder "
+                                  "path, or an interpolation that resolves") from None
+            require_inside(f"hydra.{key}", folder)
         checked = Checked(1)
         for position, values in enumerate(axes.values()):
             seen = {first: values[0]}
