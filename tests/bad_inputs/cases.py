@@ -86,6 +86,7 @@ CONFIG_CASES: list[tuple[list[str], str]] = [
                                    "hydra/launcher=joblib here, or on a cluster's login node"),
     (["arch.order=-1"], "arch.order=-1 is not accepted; accepted: an integer >= 0"),
     (["threads=0"], "threads=0 is not accepted; accepted: an integer >= 1"),
+    (["arch=line_conv", "arch.padding=valid"], "arch.padding='valid' is not accepted; accepted: one of causal, same"),
     (["train.lr=inf"], "train.lr=inf is not accepted; accepted: a number > 0"),
     (["data.noise=inf"], "data.noise=inf is not accepted; accepted: a number >= 0"),
     (["graph=rewired", "graph.swaps_per_edge=inf"], "graph.swaps_per_edge=inf is not accepted; accepted: a number >= 0"),

@@ -100,3 +100,27 @@ def test_delay_plan_gradients_equal_the_sparse_plan_gradients():
     grads = [torch.autograd.grad(layer(x).square().sum(), (x, layer.taps, layer.bias)) for layer in (fast, generic)]
     for fast_grad, generic_grad in zip(*grads):
         torch.testing.assert_close(fast_grad, generic_grad, atol=1e-5, rtol=1e-5)
+
+
+@pytest.mark.parametrize("order", [4, 5])  # odd and even kernel sizes
+@pytest.mark.parametrize("boundary", ["zero", "circular"])
+def test_same_padding_equals_torch_conv1d_with_padding_same(order, boundary):
+    # Reference: torch.nn.Conv1d(padding="same") (floor(K/2) before, the rest after), with
+    # padding_mode "zeros" or "circular", sharing the layer's weights.
+    from shiftbench.models.line_conv import CausalConv1d
+
+    torch.manual_seed(5)
+    layer = CausalConv1d(3, 4, order, boundary=boundary, padding="same")
+    reference = torch.nn.Conv1d(3, 4, order + 1, padding="same", padding_mode="zeros" if boundary == "zero" else "circular")
+    reference.load_state_dict(layer.conv.state_dict())
+    x = torch.randn(6, 29, 3)
+    torch.testing.assert_close(layer(x), reference(x.transpose(1, 2)).transpose(1, 2), atol=1e-5, rtol=1e-5)
+
+
+def test_line_conv_takes_same_padding_from_its_config(small_config):
+    from shiftbench.config import validate
+    from shiftbench.models import build_model
+
+    arch = validate(small_config("arch=line_conv", "arch.padding=same")).arch
+    model = build_model(arch, 24, 1, 4, None)
+    assert all(layer.padding == "same" for layer in model.layers)

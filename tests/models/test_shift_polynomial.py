@@ -91,4 +91,4 @@ def test_reprs_say_what_each_layer_computes():
     line = LineConv(6, 1, [4], 2, order=2, boundary="circular", readout="flatten")
     assert "ShiftPolynomialLayer(1, 4, order=2, nodes=6, plan=delay (circular boundary), bias=True)" in repr(delay)
     assert "plan=sparse" in repr(sparse) and "kind=max" in repr(sparse)
-    assert "1, 4, order=2, causal, boundary=circular" in repr(line) and "kind=flatten" in repr(line)
+    assert "1, 4, order=2, padding=causal, boundary=circular" in repr(line) and "kind=flatten" in repr(line)

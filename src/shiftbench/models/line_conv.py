@@ -14,12 +14,19 @@ from shiftbench.models.stack import ConvConfig, FilterStack, planned_stack_activ
 from shiftbench.registry import FAMILIES, Family
 
 BOUNDARIES = ("zero", "circular")
+# causal: output n sees nodes n-K..n (a polynomial of the directed line graph's delay); same: it
+# sees nodes n-floor(K/2)..n+ceil(K/2), as torch's Conv1d(padding="same") and the time-series
+# literature's fully convolutional networks have it.
+PADDINGS = ("causal", "same")
 
 
-def causal_convolution(x: torch.Tensor, weight: torch.Tensor, bias: torch.Tensor | None, boundary: str) -> torch.Tensor:
-    """``y_n = sum_{j=0..K} W[:, :, j] x_{n-K+j} + b`` along the node axis, kernel size ``K + 1``.
+def causal_convolution(
+    x: torch.Tensor, weight: torch.Tensor, bias: torch.Tensor | None, boundary: str, padding: str = "causal"
+) -> torch.Tensor:
+    """``y_n = sum_{j=0..K} W[:, :, j] x_{n-L+j} + b`` along the node axis, kernel size ``K + 1``,
+    with ``L = K`` (``padding: causal``) or ``L = floor(K/2)`` (``same``).
 
-    ``boundary: zero`` takes samples before the first node as zero; ``circular`` wraps around
+    ``boundary: zero`` takes samples outside the nodes as zero; ``circular`` wraps around
     (``x_{-m} = x_{N-m}``), for any ``K`` and ``N``. Runs as a channels-last Conv2d over the
     ``(batch, channels, 1, nodes)`` view of the input, which is the input's own memory layout and
     measured faster on CPU than Conv1d on ``(batch, channels, nodes)`` (``make bench``).
@@ -29,41 +36,49 @@ def causal_convolution(x: torch.Tensor, weight: torch.Tensor, bias: torch.Tensor
         bias ``(out_channels,)`` -> ``(batch, nodes, out_channels)``.
     """
     order = weight.shape[-1] - 1
+    before = order if padding == "causal" else order // 2
     if boundary == "zero":
-        x = nn.functional.pad(x, (0, 0, order, 0))
+        x = nn.functional.pad(x, (0, 0, before, order - before))
     else:
         nodes = x.shape[1]
-        x = x.index_select(1, torch.arange(-order, nodes, device=x.device) % nodes)
+        x = x.index_select(1, torch.arange(-before, nodes + order - before, device=x.device) % nodes)
     view = x.contiguous().transpose(1, 2).unsqueeze(2)  # (batch, in, 1, nodes), channels-last in memory
     return nn.functional.conv2d(view, weight.unsqueeze(2), bias).squeeze(2).transpose(1, 2)  # -> (batch, nodes, out)
 
 
 class CausalConv1d(nn.Module):
-    """A causal convolution along the node axis with a Conv1d's parameters (``self.conv``):
-    ``y_n = sum_{j=0..K} W[:, :, j] x_{n-K+j} + b``, see :func:`causal_convolution`.
+    """A convolution along the node axis with a Conv1d's parameters (``self.conv``), causal by
+    default: ``y_n = sum_{j=0..K} W[:, :, j] x_{n-L+j} + b``, see :func:`causal_convolution`.
 
     Shapes:
         input ``(batch, nodes, in_channels)`` -> output ``(batch, nodes, out_channels)``.
     """
 
-    def __init__(self, in_channels: int, out_channels: int, order: int, boundary: str = "zero") -> None:
+    def __init__(
+        self, in_channels: int, out_channels: int, order: int, boundary: str = "zero", padding: str = "causal"
+    ) -> None:
         super().__init__()
         if boundary not in BOUNDARIES:
             raise ValueError(f"unknown boundary {boundary!r}; accepted: {', '.join(BOUNDARIES)}")
+        if padding not in PADDINGS:
+            raise ValueError(f"unknown padding {padding!r}; accepted: {', '.join(PADDINGS)}")
         self.order = order
         self.boundary = boundary
+        self.padding = padding
         self.conv = nn.Conv1d(in_channels, out_channels, kernel_size=order + 1)
 
     def forward(self, x: torch.Tensor) -> torch.Tensor:
-        return causal_convolution(x, self.conv.weight, self.conv.bias, self.boundary)
+        return causal_convolution(x, self.conv.weight, self.conv.bias, self.boundary, self.padding)
 
     def extra_repr(self) -> str:
-        return f"{self.conv.in_channels}, {self.conv.out_channels}, order={self.order}, causal, boundary={self.boundary}"
+        return (f"{self.conv.in_channels}, {self.conv.out_channels}, order={self.order}, padding={self.padding}, "
+                f"boundary={self.boundary}")
 
 
 class LineConv(FilterStack):
-    """A stack of causal Conv1d layers (widths ``channels``), each followed by ``sigma``, then a
-    readout. Parameters per layer: ``(K + 1) * in * out + out``, independent of ``nodes``.
+    """A stack of Conv1d layers along the node axis (widths ``channels``; causal, or ``same``
+    padding), each followed by ``sigma``, then a readout. Parameters per layer:
+    ``(K + 1) * in * out + out``, independent of ``nodes``.
 
     Shapes:
         input ``(batch, nodes, features)`` -> logits ``(batch, classes)``.
@@ -81,18 +96,21 @@ class LineConv(FilterStack):
         readout: str = "mean",
         dropout: float = 0.0,
         normalization: str = "none",
+        padding: str = "causal",
     ) -> None:
-        layers = [CausalConv1d(i, o, order, boundary) for i, o in widths(features, channels)]
+        layers = [CausalConv1d(i, o, order, boundary, padding) for i, o in widths(features, channels)]
         readout_layer = Readout(readout, nodes, channels[-1], classes)
         super().__init__(layers, readout_layer, nonlinearity, dropout, normalization, channels)
 
 
 @dataclass
 class LineConvConfig(ConvConfig):
-    """A stack of causal Conv1d layers with kernel size ``order + 1``."""
+    """A stack of Conv1d layers with kernel size ``order + 1``: causal (a graph filter on the
+    directed line graph computes the same), or ``same`` padding (centred kernels)."""
 
     family: str = "line_conv"
     boundary: str = declared(one_of(BOUNDARIES), "zero")
+    padding: str = declared(one_of(PADDINGS), "causal")
 
 
 FAMILIES.add(
@@ -104,7 +122,7 @@ FAMILIES.add(
         planned_activations=planned_stack_activations,
         build=lambda arch, nodes, features, classes, shift: LineConv(
             nodes, features, arch.channels, classes, arch.order, arch.boundary,
-            arch.nonlinearity, arch.readout, arch.dropout, arch.normalization,
+            arch.nonlinearity, arch.readout, arch.dropout, arch.normalization, arch.padding,
         ),
         width_key="channels",
         # The line graph's delay (the cycle's, with a circular boundary) is the shift it uses.
