@@ -77,7 +77,7 @@ def _most_common(configs: Iterable[dict], group: str) -> dict | None:
 def _defaults(group: str, config: dict) -> dict | None:
     """``config``'s component at its schema's defaults, as plain data (None if it has none)."""
     try:
-        return asdict(validate_group(group, OmegaConf.create({key: config[key] for key in ("source",) if key in config})))
+        return asdict(validate_group(group, OmegaConf.create({"source": config.get("source")})))
     except ConfigError:
         return None
 
@@ -129,21 +129,18 @@ def evaluate(records: pd.DataFrame, seeds: tuple[int, ...], subject: Subject) ->
 
 def suggest_runs(checked: list[claims.Claim], subject: Subject, folder: Path) -> None:
     """Give each claim short of evidence the command that would supply it (``evidence.run``)."""
-    data = " ".join(subject.overrides)
     sizes = hasattr(subject.data, "nodes")
     for claim in checked:
         if claim.verdict != "not_enough_evidence":
             continue
-        if claim.id == "graph_matters":
-            claim.evidence["run"] = (f"shiftbench -m +experiment=families {data} hydra.sweep.dir={folder} "
-                                     f"&& shiftbench-claims {folder}").replace("  ", " ")
-        elif sizes:
-            claim.evidence["run"] = (f"shiftbench -m +experiment=claims {data} hydra.sweep.dir={folder} "
-                                     f"&& shiftbench-claims {folder}").replace("  ", " ")
-        else:
+        study = "families" if claim.id == "graph_matters" else "claims" if sizes else None
+        if study is None:
             claim.evidence["run"] = (f"data {subject.dataset.name!r} has one node count, and this claim needs "
                                      "3+; see it on the demo: shiftbench -m +experiment=claims && "
                                      "shiftbench-claims results/claims")
+        else:
+            claim.evidence["run"] = " ".join(["shiftbench -m", f"+experiment={study}", *subject.overrides,
+                                              f"hydra.sweep.dir={folder}", f"&& shiftbench-claims {folder}"])
 
 
 def _true_responses(subject: Subject, eigenvalues: np.ndarray) -> tuple | None:

@@ -1,5 +1,5 @@
-"""Process-wide settings that training speed depends on: the cores at hand and the C
-allocator's treatment of large blocks."""
+"""Facts and settings of the processes shiftbench runs in: the cores and memory at hand, the C
+allocator's treatment of large blocks, and whether a process of this host still runs."""
 
 from __future__ import annotations
 
@@ -52,3 +52,14 @@ def available_memory_bytes() -> int:
     except OSError:
         pass
     return os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
+
+
+def process_alive(pid: int) -> bool:
+    """Whether process ``pid`` of this host still runs (one that is not ours to signal does)."""
+    try:
+        os.kill(pid, 0)
+    except (ProcessLookupError, ValueError, OverflowError):
+        return False
+    except PermissionError:
+        return True
+    return True

@@ -27,6 +27,7 @@ from shiftbench.records import (
     CURVE_FILE, FINAL_STATUSES, MANIFEST_FILE, OLD_RECORD_FILE, PREDICTIONS_FILE, RECORD_FILE, SCHEMA_VERSION, WEIGHTS_FILE,
     config_hash, write_atomic, write_record,
 )
+from shiftbench.runtime import process_alive
 
 STORE_FOLDER = "store"
 CLAIM_FILE = "claim"
@@ -53,12 +54,9 @@ def finished_record(home: Path) -> dict[str, Any] | None:
 def _holder_alive(holder: dict[str, Any], claim: Path) -> bool:
     if holder.get("host") == socket.gethostname():
         try:
-            os.kill(int(holder.get("pid", -1)), 0)
-        except (ProcessLookupError, ValueError):
+            return process_alive(int(holder.get("pid", -1)))
+        except ValueError:
             return False
-        except PermissionError:
-            return True
-        return True
     try:
         return time.time() - claim.stat().st_mtime < STALE_CLAIM_SECONDS
     except FileNotFoundError:

@@ -20,6 +20,7 @@ from hydra.core.hydra_config import HydraConfig
 from hydra.experimental.callback import Callback
 from omegaconf import DictConfig, OmegaConf
 
+from shiftbench.runtime import process_alive
 from shiftbench.sweep_axes import count_jobs
 
 PROGRESS_FILE = ".progress.{token}.jsonl"
@@ -73,21 +74,20 @@ def tally_line(header: dict[str, Any], finished: list[dict[str, Any]], now: floa
     )
 
 
+def new_token() -> str:
+    """A sweep process's name for its progress file: ``<host>-<pid>-<ns>``."""
+    return f"{socket.gethostname()}-{os.getpid()}-{time.time_ns()}"
+
+
 def remove_dead_progress(folder: Path) -> None:
     """Remove the progress files that sweeps on this host left when they were killed (their
     process is gone); other hosts' files are theirs to clean."""
     host = socket.gethostname()
     for path in folder.glob(PROGRESS_FILE.format(token="*")):
         token = path.name.removeprefix(".progress.").removesuffix(".jsonl")
-        owner, _, rest = token.rpartition("-")[0].rpartition("-")
-        if owner != host or not rest.isdigit():
-            continue
-        try:
-            os.kill(int(rest), 0)
-        except ProcessLookupError:
+        owner, _, pid = token.rpartition("-")[0].rpartition("-")
+        if owner == host and pid.isdigit() and not process_alive(int(pid)):
             path.unlink(missing_ok=True)
-        except PermissionError:
-            pass
 
 
 class SweepProgress(Callback):
@@ -97,11 +97,11 @@ class SweepProgress(Callback):
     def _path(config: DictConfig) -> Path:
         # One file a sweep process, so two sweeps writing into one folder keep their own counts;
         # the launcher's workers (threads, loky or submitit processes) inherit the name.
-        token = os.environ.setdefault(SWEEP_TOKEN, f"{socket.gethostname()}-{os.getpid()}-{time.time_ns()}")
+        token = os.environ.setdefault(SWEEP_TOKEN, new_token())
         return Path(config.hydra.sweep.dir).resolve() / PROGRESS_FILE.format(token=token)
 
     def on_multirun_start(self, config: DictConfig, **kwargs: Any) -> None:
-        os.environ[SWEEP_TOKEN] = f"{socket.gethostname()}-{os.getpid()}-{time.time_ns()}"
+        os.environ[SWEEP_TOKEN] = new_token()
         remove_dead_progress(Path(config.hydra.sweep.dir).resolve())
         task = list(OmegaConf.to_container(config.hydra.overrides.task))  # type: ignore[arg-type]
         study = config.hydra.sweeper.get("params")

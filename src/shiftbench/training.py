@@ -73,6 +73,13 @@ def outputs_of(model: nn.Module, signals: torch.Tensor, batch_size: int) -> torc
     return torch.cat([model(signals[start : start + batch_size]) for start in range(0, len(signals), batch_size)])
 
 
+def scores(outputs: torch.Tensor, labels: torch.Tensor, task: Task = CLASSIFICATION) -> tuple[float, float]:
+    """Mean loss and mean metric (accuracy) of ``outputs`` against ``labels``.
+
+    Shapes: outputs ``(samples, outputs)``, labels ``(samples,)``."""
+    return task.loss(outputs, labels, reduction="sum").item() / len(labels), int(task.correct(outputs, labels).sum()) / len(labels)
+
+
 def evaluate(
     model: nn.Module, signals: torch.Tensor, labels: torch.Tensor, batch_size: int, task: Task = CLASSIFICATION
 ) -> tuple[float, float]:
@@ -81,8 +88,7 @@ def evaluate(
     Args:
         signals: ``(samples, nodes, features)``; labels: ``(samples,)``.
     """
-    outputs = outputs_of(model, signals, batch_size)
-    return task.loss(outputs, labels, reduction="sum").item() / len(labels), int(task.correct(outputs, labels).sum()) / len(labels)
+    return scores(outputs_of(model, signals, batch_size), labels, task)
 
 
 @dataclass
@@ -280,9 +286,7 @@ def final_result(
     predicting = time.perf_counter()
     test_outputs = outputs_of(model, signals[split["test"]], config.batch_size)
     inference = (time.perf_counter() - predicting) / max(len(split["test"]), 1)
-    test_y = labels[split["test"]]
-    test_loss = task.loss(test_outputs, test_y, reduction="sum").item() / len(test_y)
-    test_accuracy = int(task.correct(test_outputs, test_y).sum()) / len(test_y)
+    test_loss, test_accuracy = scores(test_outputs, labels[split["test"]], task)
     curve = state.curve
     if curve:
         val_accuracy = state.stopping.best[0]

@@ -92,8 +92,6 @@ def read_sparse_matrix(path: Path, fail: Fail) -> Graph:
     except (ValueError, IndexError) as error:
         raise fail(path, f"holds a malformed sparse matrix ({str(error).splitlines()[0]}); save a valid matrix "
                    "with scipy.sparse.save_npz") from None
-    if not np.isfinite(matrix.data).all():
-        raise fail(path, "holds weights that are not finite numbers")
     return Graph.from_adjacency(matrix, name="file")
 
 

@@ -51,10 +51,7 @@ def rewired_graph(graph: Graph, swaps_per_edge: float, seed: int) -> Graph:
     simple = simple_graph(graph)
     swaps = int(swaps_per_edge * simple.number_of_edges())
     try:
-        if not simple.is_directed():
-            swap_edges(simple, swaps, seed)
-        elif swaps:
-            nx.directed_edge_swap(simple, nswap=swaps, max_tries=swaps * 100, seed=seed)
+        swap_edges(simple, swaps, seed)
     except nx.NetworkXException as error:
         raise ConfigError(
             f"graph=rewired cannot rewire {graph.name!r} ({error}); accepted: a graph with edges that can be "
@@ -63,10 +60,12 @@ def rewired_graph(graph: Graph, swaps_per_edge: float, seed: int) -> Graph:
     return from_simple(simple, graph, f"{graph.name} rewired")
 
 
-def swap_edges(graph: nx.Graph, swaps: int, seed: int) -> None:
-    """``swaps`` degree-preserving double edge swaps in place (``u-v, x-y -> u-x, v-y``)."""
+def swap_edges(graph: nx.Graph | nx.DiGraph, swaps: int, seed: int) -> None:
+    """``swaps`` degree-preserving edge swaps in place: ``u-v, x-y -> u-x, v-y`` on an undirected
+    graph, ``u->v->x->y -> u->x->v->y`` on a directed one (networkx's)."""
     if swaps:
-        nx.double_edge_swap(graph, nswap=swaps, max_tries=swaps * 100, seed=seed)
+        swap = nx.directed_edge_swap if graph.is_directed() else nx.double_edge_swap
+        swap(graph, nswap=swaps, max_tries=swaps * 100, seed=seed)
 
 
 def sbm_graph(nodes: int, blocks: int, p_in: float, p_out: float, seed: int) -> Graph:
