@@ -27,9 +27,14 @@ def fresh_model(run, dataset):
     return build_model(run.arch, dataset.nodes, dataset.features, dataset.classes, shift=None)
 
 
-@pytest.mark.parametrize(("family", "kill_after"), [("fc", 3), ("line_conv", 2), ("fc", 5)])
-def test_a_resumed_run_ends_with_the_figures_of_an_uninterrupted_one_bit_for_bit(small_config, tmp_path, family, kill_after):
-    run = validate(small_config(f"arch={family}", "arch.dropout=0.3", "train.epochs=7", "train.patience=7"))
+@pytest.mark.parametrize(("family", "kill_after", "schedule"), [
+    ("fc", 3, ()), ("line_conv", 2, ()),
+    # a learning rate that halves on a plateau (its scheduler's state is resumed too), weights of the lowest training loss
+    # (here the loss rises in epochs 2 and 3, so the rate falls after epoch 3, past the kill)
+    ("fc", 2, ("train.lr=0.3", "train.plateau_patience=1", "train.keep=lowest_train_loss")),
+])
+def test_a_resumed_run_ends_with_the_figures_of_an_uninterrupted_one_bit_for_bit(small_config, tmp_path, family, kill_after, schedule):
+    run = validate(small_config(f"arch={family}", "arch.dropout=0.3", "train.epochs=7", "train.patience=7", *schedule))
     dataset = load_dataset(run.data)
     whole = train(fresh_model(run, dataset), dataset, run.train, run.seed)
 

@@ -28,7 +28,11 @@ from shiftbench.registry import DATASETS, FAMILIES, GRAPH_SOURCES, TASKS, Regist
 
 __all__ = ["ConfigError", "RunConfig", "validate"]
 
-OPTIMIZERS = ("adam", "sgd")
+OPTIMIZERS = ("adam", "sgd", "adadelta")
+# Which weights a run ends with: those of the epoch with the best validation accuracy (ties: lower
+# validation loss), of the lowest training loss, or of the last epoch. The last two need no
+# validation split, as papers that fit on a whole archive train split had it.
+KEEPS = ("best_val", "lowest_train_loss", "last")
 DEVICES = ("cpu", "cuda")
 
 
@@ -105,21 +109,42 @@ class Schema:
         """Checks across fields; none by default."""
 
 
+def batch_size_for(config: "TrainConfig", cases: int) -> int:
+    """The batch size training on ``cases`` cases uses: ``batch_size``, or with
+    ``batch_fraction`` set, ``max(1, min(batch_size, floor(cases * batch_fraction)))``."""
+    if config.batch_fraction is None:
+        return config.batch_size
+    return max(1, min(config.batch_size, int(cases * config.batch_fraction)))
+
+
 # ---------------------------------------------------------------------------------------- train
 
 
 @dataclass
 class TrainConfig(Schema):
-    """Optimizer, batches, and early stopping on validation accuracy."""
+    """Optimizer, batches, the learning-rate schedule, which weights are kept, and early stopping
+    on the criterion that keeps them."""
 
     optimizer: str = declared(one_of(OPTIMIZERS), "adam")
     lr: float = declared(POSITIVE, 0.01)
     momentum: float = declared(Check(lambda value: 0.0 <= value < 1.0, "a number in [0, 1)"), 0.9)
     weight_decay: float = declared(at_least(0, "a number"), 0.0)
     batch_size: int = declared(at_least(1), 64)
+    # Batches of at most this share of the training cases (at least 1 case): the time-series
+    # literature's min(16, cases / 10) is batch_size 16 with batch_fraction 0.1; null: batch_size.
+    batch_fraction: float | None = declared(
+        Check(lambda value: value is None or 0.0 < value <= 1.0, "a number in (0, 1], or null"), None
+    )
     epochs: int = declared(at_least(1), 100)
-    # Epochs without improvement before stopping; 0 trains every epoch (no early stopping).
+    # Epochs without improvement (of the criterion `keep` names) before stopping; 0 trains every
+    # epoch (no early stopping). `keep: last` improves every epoch, so it never stops early.
     patience: int = declared(Check(lambda value: value >= 0, "an integer >= 0 (0: no early stopping)"), 15)
+    keep: str = declared(one_of(KEEPS), "best_val")
+    # Halve (plateau_factor) the learning rate after plateau_patience epochs without a lower
+    # training loss, down to min_lr (torch's ReduceLROnPlateau); 0: a fixed learning rate.
+    plateau_patience: int = declared(Check(lambda value: value >= 0, "an integer >= 0 (0: a fixed learning rate)"), 0)
+    plateau_factor: float = declared(FRACTION, 0.5)
+    min_lr: float = declared(at_least(0, "a number"), 0.0)
     checkpoint_every: int = declared(Check(lambda value: value >= 0, "an integer >= 0 (0: never)"), 10)
     max_seconds: float | None = declared(
         Check(lambda value: value is None or value > 0, "a number of seconds > 0, or null"), None
@@ -189,7 +214,19 @@ def validate(config: DictConfig) -> RunConfig:
     nodes = run.data.known_nodes()
     if nodes is not None:
         check_graph_fits(run.graph, run.arch.family, nodes)
+    check_validation_split(run)
     return run
+
+
+def check_validation_split(run: RunConfig) -> None:
+    """Checks across groups: a run without a validation split (``data.val_fraction=0``) must keep
+    weights chosen without one and be trained by the loop (the floors choose on validation)."""
+    if getattr(run.data, "val_fraction", None) != 0:
+        return
+    require("train.keep", run.train.keep, run.train.keep != "best_val",
+            "lowest_train_loss or last when data.val_fraction=0 (no validation split to choose on)")
+    require("arch.family", run.arch.family, FAMILIES[run.arch.family].build is not None,
+            "a family trained by the loop when data.val_fraction=0 (the floors choose on validation)")
 
 
 def check_graph_fits(graph: Any, family: str, nodes: int) -> None:

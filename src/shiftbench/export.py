@@ -43,7 +43,8 @@ def export_tensorboard(paths: Iterable[Path], out: Path) -> list[Path]:
             curve = pd.read_csv(curve_file) if curve_file.is_file() else pd.DataFrame()
             for _, row in curve.iterrows():
                 for column, tag in SCALARS.items():
-                    writer.add_scalar(tag, float(row[column]), int(row["epoch"]))
+                    if pd.notna(row[column]):  # a run without a validation split has no val figures
+                        writer.add_scalar(tag, float(row[column]), int(row["epoch"]))
             last = int(record["epochs_run"]) if pd.notna(record.get("epochs_run")) else 0
             writer.add_scalar("test/accuracy", float(record["test_accuracy"]), last)
             writer.add_text("config", "```\n" + json.dumps(record["config"], indent=2) + "\n```")

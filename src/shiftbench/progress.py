@@ -24,7 +24,7 @@ class EpochProgress:
         epoch = int(row["epoch"])
         line = self.prefix + (
             f"epoch {epoch:>4}/{self.epochs}  train loss {row['train_loss']:.4f}  "
-            f"val accuracy {row['val_accuracy']:.3f}"
+            + ("no validation split" if row["val_accuracy"] is None else f"val accuracy {row['val_accuracy']:.3f}")
         )
         if self.live:
             self.stream.write("\r" + line)

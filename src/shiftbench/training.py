@@ -1,4 +1,4 @@
-"""The training loop: mini-batches, early stopping on validation accuracy, best weights restored.
+"""The training loop: mini-batches, early stopping, the kept weights (best on validation by default) restored.
 
 Everything random (initial weights, dropout, batch order) is drawn after :func:`seed_everything`,
 so on CPU the same model, data, config and seed give identical figures.
@@ -11,7 +11,7 @@ import math
 import random
 import time
 from collections.abc import Callable
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
@@ -22,7 +22,7 @@ from torch import nn
 from shiftbench.checkpoints import (
     load_checkpoint, random_states, restore_random_states, save_checkpoint, set_checkpoint_aside,
 )
-from shiftbench.config import TrainConfig
+from shiftbench.config import TrainConfig, batch_size_for
 from shiftbench.data.dataset import Dataset
 from shiftbench.registry import Task
 from shiftbench.task import CLASSIFICATION
@@ -56,9 +56,21 @@ def seed_everything(seed: int) -> None:
     torch.manual_seed(seed)
 
 
+def make_schedule(optimizer: torch.optim.Optimizer, config: TrainConfig) -> torch.optim.lr_scheduler.ReduceLROnPlateau | None:
+    """The learning rate times ``plateau_factor`` after ``plateau_patience`` epochs without a
+    lower training loss, never below ``min_lr``; None for a fixed learning rate."""
+    if config.plateau_patience == 0:
+        return None
+    return torch.optim.lr_scheduler.ReduceLROnPlateau(
+        optimizer, factor=config.plateau_factor, patience=config.plateau_patience, min_lr=config.min_lr
+    )
+
+
 def make_optimizer(model: nn.Module, config: TrainConfig) -> torch.optim.Optimizer:
     if config.optimizer == "adam":
         return torch.optim.Adam(model.parameters(), lr=config.lr, weight_decay=config.weight_decay)
+    if config.optimizer == "adadelta":
+        return torch.optim.Adadelta(model.parameters(), lr=config.lr, weight_decay=config.weight_decay)
     return torch.optim.SGD(
         model.parameters(), lr=config.lr, momentum=config.momentum, weight_decay=config.weight_decay
     )
@@ -91,22 +103,32 @@ def evaluate(
     return scores(outputs_of(model, signals, batch_size), labels, task)
 
 
+# What each ``train.keep`` ranks an epoch by (larger is better); ``last`` ranks later epochs higher.
+CRITERIA: dict[str, Callable[[dict[str, Any]], tuple[float, ...]]] = {
+    "best_val": lambda row: (row["val_accuracy"], -row["val_loss"]),
+    "lowest_train_loss": lambda row: (-row["train_loss"],),
+    "last": lambda row: (row["epoch"],),
+}
+
+
 @dataclass
 class EarlyStopping:
-    """The best validation figures so far and the weights that gave them. An epoch improves when
-    its accuracy is higher, or equal with a lower loss; training stops after ``patience`` epochs
-    without improvement (``patience`` 0: never)."""
+    """The best epoch so far by the criterion ``keep`` names (see :data:`CRITERIA`; for
+    ``best_val``, higher validation accuracy, ties broken by lower validation loss) and its
+    weights. Training stops after ``patience`` epochs without improvement (``patience`` 0: never)."""
 
     patience: int
-    best: tuple[float, float] = (-1.0, float("inf"))
+    keep: str = "best_val"
+    best: tuple[float, ...] = ()
     best_state: dict[str, Any] = field(default_factory=dict)
     best_epoch: int = 0
 
-    def update(self, epoch: int, val_accuracy: float, val_loss: float, model: nn.Module) -> bool:
-        """Note an epoch's validation figures; True when they improve on the best."""
-        improved = (val_accuracy, -val_loss) > (self.best[0], -self.best[1])
+    def update(self, row: dict[str, Any], model: nn.Module) -> bool:
+        """Note an epoch's curve row; True when it improves on the best."""
+        rank = CRITERIA[self.keep](row)
+        improved = not self.best or rank > self.best
         if improved:
-            self.best, self.best_state, self.best_epoch = (val_accuracy, val_loss), copy.deepcopy(model.state_dict()), epoch
+            self.best, self.best_state, self.best_epoch = rank, copy.deepcopy(model.state_dict()), int(row["epoch"])
         return improved
 
     def should_stop(self, epoch: int) -> bool:
@@ -119,6 +141,7 @@ class LoopState:
 
     stopping: EarlyStopping
     order_generator: torch.Generator
+    schedule: torch.optim.lr_scheduler.ReduceLROnPlateau | None = None
     curve: list[dict[str, float]] = field(default_factory=list)
     first_epoch: int = 1
     resumed_from: int | None = None
@@ -139,6 +162,8 @@ def resume(
     try:
         model.load_state_dict(saved["model"])
         optimizer.load_state_dict(saved["optimizer"])
+        if state.schedule is not None:
+            state.schedule.load_state_dict(saved["schedule"])
         restore_random_states(saved["random"], state.order_generator)
         best = (tuple(saved["best"]), saved["best_state"], int(saved["best_epoch"]))
         curve, spent, epoch = list(saved["curve"]), float(saved["train_seconds"]), int(saved["epoch"])
@@ -169,6 +194,7 @@ def checkpoint(
         "optimizer": optimizer.state_dict(), "random": random_states(state.order_generator),
         "best": list(stopping.best), "best_state": stopping.best_state, "best_epoch": stopping.best_epoch,
         "curve": state.curve, "train_seconds": seconds,
+        "schedule": state.schedule.state_dict() if state.schedule is not None else None,
     })
 
 
@@ -210,9 +236,11 @@ def train(
     checkpointing: Checkpointing | None = None,
     task: Task = CLASSIFICATION,
 ) -> TrainingResult:
-    """Train ``model`` on ``dataset``'s training split with the task's loss, stop when validation
-    accuracy has not improved for ``config.patience`` epochs (see :class:`EarlyStopping`) or when
-    ``config.max_seconds`` have passed, restore the best weights and measure every split.
+    """Train ``model`` on ``dataset``'s training split with the task's loss, stop when the
+    criterion ``config.keep`` names (validation accuracy by default) has not improved for
+    ``config.patience`` epochs (see :class:`EarlyStopping`) or when ``config.max_seconds`` have
+    passed, restore the kept weights and measure every split. Without a validation split its
+    figures are None.
 
     With ``checkpointing``, the whole state is saved every ``every`` epochs, and a checkpoint of
     the same config found in its folder is resumed from: the run then ends with the figures an
@@ -229,10 +257,12 @@ def train(
     split = {name: torch.from_numpy(getattr(dataset.splits, name)).to(device) for name in ("train", "val", "test")}
     train_x, train_y = signals[split["train"]], labels[split["train"]]
     val_x, val_y = signals[split["val"]], labels[split["val"]]
+    config = replace(config, batch_size=batch_size_for(config, len(train_y)), batch_fraction=None)
     optimizer = make_optimizer(model, config)
     state = LoopState(
-        EarlyStopping(config.patience, best_state=copy.deepcopy(model.state_dict())),
+        EarlyStopping(config.patience, config.keep, best_state=copy.deepcopy(model.state_dict())),
         torch.Generator().manual_seed(seed),
+        make_schedule(optimizer, config),
     )
     resume(state, model, optimizer, config, checkpointing)
     started = time.perf_counter()
@@ -254,7 +284,9 @@ def train(
             break
         if not math.isfinite(train_loss):
             raise TrainingDiverged(f"the training loss became {train_loss} in epoch {epoch}", epoch)
-        val_loss, val_accuracy = evaluate(model, val_x, val_y, config.batch_size, task)
+        val_loss, val_accuracy = evaluate(model, val_x, val_y, config.batch_size, task) if len(val_y) else (None, None)
+        if state.schedule is not None:
+            state.schedule.step(train_loss)
         row = {
             "epoch": epoch,
             "train_loss": train_loss,
@@ -264,7 +296,7 @@ def train(
             "seconds": time.perf_counter() - epoch_started,
         }
         state.curve.append(row)
-        improved = state.stopping.update(epoch, val_accuracy, val_loss, model)
+        improved = state.stopping.update(row, model)
         if checkpointing is not None and checkpointing.every and epoch % checkpointing.every == 0:
             checkpoint(checkpointing, epoch, model, optimizer, state, elapsed())
         if on_epoch is not None:
@@ -278,8 +310,9 @@ def final_result(
     model: nn.Module, signals: torch.Tensor, labels: torch.Tensor, split: dict[str, torch.Tensor],
     config: TrainConfig, task: Task, state: LoopState, train_seconds: float, status: str,
 ) -> TrainingResult:
-    """Restore the best weights and measure the training and test splits (and the time a test
-    sample takes to predict)."""
+    """Restore the kept weights and measure the training and test splits (and the time a test
+    sample takes to predict); the validation accuracy is the kept epoch's (None without a
+    validation split)."""
     model.load_state_dict(state.stopping.best_state)
     train_x, train_y = signals[split["train"]], labels[split["train"]]
     _, train_accuracy = evaluate(model, train_x, train_y, config.batch_size, task)
@@ -288,8 +321,10 @@ def final_result(
     inference = (time.perf_counter() - predicting) / max(len(split["test"]), 1)
     test_loss, test_accuracy = scores(test_outputs, labels[split["test"]], task)
     curve = state.curve
-    if curve:
-        val_accuracy = state.stopping.best[0]
+    if not len(split["val"]):
+        val_accuracy = None
+    elif curve:
+        val_accuracy = curve[state.stopping.best_epoch - 1]["val_accuracy"]
     else:
         val_accuracy = evaluate(model, signals[split["val"]], labels[split["val"]], config.batch_size, task)[1]
     return TrainingResult(

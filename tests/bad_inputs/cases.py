@@ -75,7 +75,7 @@ CONFIG_CASES: list[tuple[list[str], str]] = [
     (["arch.order=abc"], "arch.order='abc' has the wrong type; accepted: an integer"),
     (["train.batch_size=1.5"], "train.batch_size=1.5 has the wrong type; accepted: an integer"),
     (["arch.foo=1"], "unknown key arch.foo (arch family graph_conv); accepted keys: family, order, channels, "
-                     "nonlinearity, readout, dropout, normalization, budget"),
+                     "nonlinearity, readout, dropout, normalization, budget, orders"),
     (["+foo=1"], "unknown key foo; accepted top-level keys: seed, split, task, results_dir, device, force, threads, data, graph, arch, train"),
     (["arch=cnn"], "arch='cnn' is not accepted; accepted: one of fc, forest, graph_conv, lda, line_conv, logistic, nearest, qda"),
     (["graph=ring"], "graph='ring' is not accepted; accepted: one of correlation, cycle, file, geometric, grid, knn, "
@@ -108,7 +108,16 @@ CONFIG_CASES: list[tuple[list[str], str]] = [
     (["train.lr=0"], "train.lr=0.0 is not accepted; accepted: a number > 0"),
     (["train.max_seconds=-5"], "train.max_seconds=-5.0 is not accepted; accepted: a number of seconds > 0, or null"),
     (["train.checkpoint_every=-1"], "train.checkpoint_every=-1 is not accepted; accepted: an integer >= 0 (0: never)"),
-    (["train.optimizer=lbfgs"], "train.optimizer='lbfgs' is not accepted; accepted: one of adam, sgd"),
+    (["train.optimizer=lbfgs"], "train.optimizer='lbfgs' is not accepted; accepted: one of adam, sgd, adadelta"),
+    (["train.keep=best"], "train.keep='best' is not accepted; accepted: one of best_val, lowest_train_loss, last"),
+    (["train.plateau_factor=1.5"], "train.plateau_factor=1.5 is not accepted; accepted: a number strictly between 0 and 1"),
+    (["data=ucr", "data.val_fraction=0"], "train.keep='best_val' is not accepted; accepted: lowest_train_loss or last "
+                                          "when data.val_fraction=0 (no validation split to choose on)"),
+    (["data=ucr", "data.val_fraction=0", "train.keep=last", "arch=nearest"], "arch.family='nearest' is not accepted; "
+     "accepted: a family trained by the loop when data.val_fraction=0 (the floors choose on validation)"),
+    (["data.val_fraction=1"], "data.val_fraction=1.0 is not accepted; accepted: a number in [0, 1) (0: no validation split)"),
+    (["arch.orders=[2,-1]"], "arch.orders=[2, -1] is not accepted; accepted: null (order for every layer) or a list of "
+                             "integers >= 0, one a layer"),
     (["graph.operator=lap"], "graph.operator='lap' is not accepted; accepted: one of adjacency, laplacian, "
                              "normalized_adjacency, normalized_laplacian"),
     (["graph.scale=max"], "graph.scale='max' is not accepted; accepted: one of spectral, none"),

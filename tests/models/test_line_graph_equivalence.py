@@ -124,3 +124,37 @@ def test_line_conv_takes_same_padding_from_its_config(small_config):
     arch = validate(small_config("arch=line_conv", "arch.padding=same")).arch
     model = build_model(arch, 24, 1, 4, None)
     assert all(layer.padding == "same" for layer in model.layers)
+
+
+def test_per_layer_kernels_with_same_padding_equal_a_stack_of_torch_conv1d(small_config):
+    # Reference: torch.nn.Conv1d(padding="same") layers of kernel sizes 8, 5, 3, each followed by
+    # batch norm and ReLU, then the mean over time and a linear map: the fully convolutional
+    # network of Wang et al. 2017 ("Time series classification from scratch with deep neural
+    # networks: a strong baseline", IJCNN), built here from torch's modules directly.
+    from shiftbench.config import validate
+    from shiftbench.models import build_model
+
+    arch = validate(small_config(
+        "arch=line_conv", "arch.orders=[7,4,2]", "arch.channels=[6,5,4]", "arch.padding=same", "arch.normalization=batch",
+    )).arch
+    assert arch.order == 7  # the highest power in the stack
+    torch.manual_seed(3)
+    model = build_model(arch, 30, 2, 3, None).eval()
+    reference = []
+    for layer, norm in zip(model.layers, model.norms):
+        conv = torch.nn.Conv1d(layer.conv.in_channels, layer.conv.out_channels, layer.conv.kernel_size[0], padding="same")
+        conv.load_state_dict(layer.conv.state_dict())
+        batch_norm = torch.nn.BatchNorm1d(conv.out_channels)
+        batch_norm.load_state_dict(norm.norm.state_dict())
+        reference += [conv, batch_norm.eval(), torch.nn.ReLU()]
+    assert [conv.kernel_size[0] for conv in reference[::3]] == [8, 5, 3]
+    x = torch.randn(5, 30, 2)
+    pooled = torch.nn.Sequential(*reference)(x.transpose(1, 2)).mean(dim=2)
+    torch.testing.assert_close(model(x), model.readout.linear(pooled), atol=1e-5, rtol=1e-5)
+
+
+def test_per_layer_orders_need_one_order_a_layer(small_config):
+    from shiftbench.config import ConfigError, validate
+
+    with pytest.raises(ConfigError, match=r"arch\.orders=\[7, 4\] is not accepted; accepted: one order a layer: 3 values"):
+        validate(small_config("arch=line_conv", "arch.orders=[7,4]", "arch.channels=[6,5,4]"))

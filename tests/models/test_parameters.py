@@ -50,6 +50,7 @@ def test_convolutional_counts_do_not_grow_with_nodes_while_fc_does():
 @pytest.mark.parametrize("arch", [
     "fc", "fc hidden=[7,3]", "line_conv", "line_conv readout=flatten normalization=batch",
     "graph_conv", "graph_conv order=0 channels=[4] readout=max normalization=batch",
+    "line_conv channels=[6,5,4] orders=[7,4,2]", "graph_conv channels=[6,5] orders=[0,3]",
 ])
 def test_planned_count_equals_the_count_of_the_built_model(arch):
     # Reference: torch's own parameter list (count_parameters sums Parameter.numel()).

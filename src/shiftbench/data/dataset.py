@@ -7,17 +7,18 @@ from dataclasses import asdict, dataclass
 
 import numpy as np
 
-from shiftbench.config import FRACTION, Schema, at_least, declared
+from shiftbench.config import Check, Schema, at_least, declared
 from shiftbench.graphs.graph import Graph
 
 
 @dataclass
 class DataConfig(Schema):
-    """What every data source has: the data seed and the validation share."""
+    """What every data source has: the data seed and the validation share (0: no validation
+    split, for runs whose ``train.keep`` chooses weights without one)."""
 
     source: str = "sensor_regimes"
     seed: int = declared(at_least(0), 0)
-    val_fraction: float = declared(FRACTION, 0.2)
+    val_fraction: float = declared(Check(lambda value: 0.0 <= value < 1.0, "a number in [0, 1) (0: no validation split)"), 0.2)
 
     def known_nodes(self) -> int | None:
         """The node count, when the config alone tells it (else it is known once loaded)."""

@@ -32,13 +32,16 @@ def stratified_splits(labels: np.ndarray, val_fraction: float, test_fraction: fl
 
     Args:
         labels: ``(samples,)`` class labels.
-        val_fraction, test_fraction: shares of all samples; the rest is training data.
+        val_fraction, test_fraction: shares of all samples; the rest is training data
+            (``val_fraction`` 0: no validation split).
         seed: the data seed (independent of the training seed).
     """
     indices = np.arange(len(labels))
     rest, test = train_test_split(
         indices, test_size=test_fraction, stratify=labels, random_state=seed
     )
+    if val_fraction == 0:
+        return Splits(train=np.sort(rest), val=rest[:0], test=np.sort(test))
     train, val = train_test_split(
         rest,
         test_size=val_fraction / (1.0 - test_fraction),

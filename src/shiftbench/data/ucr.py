@@ -85,9 +85,12 @@ def ucr(name: str = "GunPoint", seed: int = 0, val_fraction: float = 0.2) -> Dat
     labels, _ = encode_labels(np.concatenate([train_labels, test_labels]))
 
     archive_train = np.arange(len(train_labels))
-    train, val = train_test_split(
-        archive_train, test_size=val_fraction, stratify=labels[archive_train], random_state=seed
-    )
+    if val_fraction == 0:  # the whole archive train split is fitted on, as the archive's papers did
+        train, val = archive_train, archive_train[:0]
+    else:
+        train, val = train_test_split(
+            archive_train, test_size=val_fraction, stratify=labels[archive_train], random_state=seed
+        )
     test = np.arange(len(train_labels), len(labels))
     return Dataset(
         signals=series,
@@ -101,7 +104,9 @@ def ucr(name: str = "GunPoint", seed: int = 0, val_fraction: float = 0.2) -> Dat
 
 @dataclass
 class UcrConfig(DataConfig):
-    """A UCR/UEA series shipped with aeon; the archive's own train/test split is kept."""
+    """A UCR/UEA series shipped with aeon; the archive's own train/test split is kept. The
+    validation split comes out of the archive's train split; ``val_fraction: 0`` fits on all of
+    it."""
 
     source: str = "ucr"
     name: str = declared(one_of(shipped_names), "GunPoint")

@@ -4,12 +4,13 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Optional
+from typing import Any, Optional
 
 import torch
+from omegaconf import ListConfig
 from torch import nn
 
-from shiftbench.config import BUDGET, DROPOUT, Check, Schema, declared, one_of
+from shiftbench.config import BUDGET, Check, Schema, declared, one_of, require
 from shiftbench.models.nonlinearities import NONLINEARITIES
 from shiftbench.models.nonlinearities import nonlinearity as make_nonlinearity
 from shiftbench.registry import FAMILIES, Family
@@ -17,7 +18,10 @@ from shiftbench.registry import FAMILIES, Family
 
 class FullyConnected(nn.Module):
     """An MLP on the flattened signal:
-    ``z_0 = vec(x)``, ``z_{l+1} = dropout(sigma(W_l z_l + b_l))``, ``logits = W_L z_L + b_L``.
+    ``z_0 = vec(x)``, ``z_{l+1} = sigma(W_l dropout_l(z_l) + b_l)``, ``logits = W_L dropout_L(z_L) + b_L``.
+
+    ``dropout``: the rate before each linear map, a list of ``len(hidden) + 1``; a number ``p``
+    means none on the input and ``p`` before every later map.
 
     Its first layer has ``nodes * features * hidden[0]`` weights: it grows with the signal's size.
 
@@ -32,31 +36,53 @@ class FullyConnected(nn.Module):
         hidden: Sequence[int],
         classes: int,
         nonlinearity: str = "relu",
-        dropout: float = 0.0,
+        dropout: float | Sequence[float] = 0.0,
     ) -> None:
         super().__init__()
         sizes = [nodes * features, *hidden]
-        layers: list[nn.Module] = []
-        for width_in, width_out in zip(sizes[:-1], sizes[1:]):
-            layers += [nn.Linear(width_in, width_out), make_nonlinearity(nonlinearity), nn.Dropout(dropout)]
+        rates = dropout_rates(dropout, len(hidden))
+        layers: list[nn.Module] = [nn.Flatten(start_dim=1)]
+        if rates[0] > 0:
+            layers.append(nn.Dropout(rates[0]))
+        for rate, width_in, width_out in zip(rates[1:], sizes[:-1], sizes[1:]):
+            layers += [nn.Linear(width_in, width_out), make_nonlinearity(nonlinearity), nn.Dropout(rate)]
         layers.append(nn.Linear(sizes[-1], classes))
-        self.network = nn.Sequential(nn.Flatten(start_dim=1), *layers)
+        self.network = nn.Sequential(*layers)
 
     def forward(self, x: torch.Tensor) -> torch.Tensor:
         return self.network(x)
 
 
+def dropout_rates(dropout: float | Sequence[float], hidden_layers: int) -> list[float]:
+    """The dropout rate before each of the ``hidden_layers + 1`` linear maps."""
+    if isinstance(dropout, (int, float)):
+        return [0.0] + [float(dropout)] * hidden_layers
+    return [float(rate) for rate in dropout]
+
+
+def _rates_ok(value: Any) -> bool:
+    values = value if isinstance(value, (list, tuple, ListConfig)) else [value]
+    return all(isinstance(rate, (int, float)) and not isinstance(rate, bool) and 0.0 <= rate < 1.0 for rate in values)
+
+
 @dataclass
 class FcConfig(Schema):
-    """The MLP: hidden widths, nonlinearity, dropout."""
+    """The MLP: hidden widths, nonlinearity, dropout (a number, or one rate before each linear
+    map: ``len(hidden) + 1`` of them)."""
 
     family: str = "fc"
     hidden: list[int] = declared(
         Check(lambda value: all(w >= 1 for w in value), "a list of integers >= 1"), default_factory=lambda: [64]
     )
     nonlinearity: str = declared(one_of(NONLINEARITIES), "relu")
-    dropout: float = declared(DROPOUT, 0.0)
+    dropout: Any = declared(Check(_rates_ok, "a probability in [0, 1), or a list of them (one before each linear map)"), 0.0)
     budget: Optional[int] = declared(BUDGET, None)
+
+    def check(self) -> None:
+        if not isinstance(self.dropout, (int, float)):
+            self.dropout = [float(rate) for rate in self.dropout]
+            require("dropout", self.dropout, len(self.dropout) == len(self.hidden) + 1,
+                    f"one rate before each linear map: {len(self.hidden) + 1} values")
 
 
 def planned_fc_parameters(arch: FcConfig, nodes: int, features: int, classes: int) -> int:

@@ -10,7 +10,9 @@ from torch import nn
 
 from shiftbench.config import declared, one_of
 from shiftbench.models.readouts import Readout
-from shiftbench.models.stack import ConvConfig, FilterStack, planned_stack_activations, planned_stack_parameters, widths
+from shiftbench.models.stack import (
+    ConvConfig, FilterStack, per_layer, planned_stack_activations, planned_stack_parameters, widths,
+)
 from shiftbench.registry import FAMILIES, Family
 
 BOUNDARIES = ("zero", "circular")
@@ -77,8 +79,9 @@ class CausalConv1d(nn.Module):
 
 class LineConv(FilterStack):
     """A stack of Conv1d layers along the node axis (widths ``channels``; causal, or ``same``
-    padding), each followed by ``sigma``, then a readout. Parameters per layer:
-    ``(K + 1) * in * out + out``, independent of ``nodes``.
+    padding), each followed by ``sigma``, then a readout. ``order``: one for every layer, or a
+    list with one a layer (kernel sizes ``K_l + 1``). Parameters per layer:
+    ``(K_l + 1) * in * out + out``, independent of ``nodes``.
 
     Shapes:
         input ``(batch, nodes, features)`` -> logits ``(batch, classes)``.
@@ -90,7 +93,7 @@ class LineConv(FilterStack):
         features: int,
         channels: Sequence[int],
         classes: int,
-        order: int,
+        order: int | Sequence[int],
         boundary: str = "zero",
         nonlinearity: str = "relu",
         readout: str = "mean",
@@ -98,7 +101,10 @@ class LineConv(FilterStack):
         normalization: str = "none",
         padding: str = "causal",
     ) -> None:
-        layers = [CausalConv1d(i, o, order, boundary, padding) for i, o in widths(features, channels)]
+        layers = [
+            CausalConv1d(i, o, layer_order, boundary, padding)
+            for layer_order, (i, o) in zip(per_layer(order, len(channels)), widths(features, channels))
+        ]
         readout_layer = Readout(readout, nodes, channels[-1], classes)
         super().__init__(layers, readout_layer, nonlinearity, dropout, normalization, channels)
 
@@ -121,7 +127,7 @@ FAMILIES.add(
         planned_parameters=planned_stack_parameters,
         planned_activations=planned_stack_activations,
         build=lambda arch, nodes, features, classes, shift: LineConv(
-            nodes, features, arch.channels, classes, arch.order, arch.boundary,
+            nodes, features, arch.channels, classes, arch.layer_orders(), arch.boundary,
             arch.nonlinearity, arch.readout, arch.dropout, arch.normalization, arch.padding,
         ),
         width_key="channels",

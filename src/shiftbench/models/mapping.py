@@ -26,7 +26,8 @@ def line_conv_to_graph_conv(model: LineConv, shift: torch.Tensor, taps_from=kern
     first = model.layers[0].conv
     channels = [layer.conv.out_channels for layer in model.layers]
     graph_model = ShiftPolynomialNet(
-        shift, first.in_channels, channels, model.readout.linear.out_features, model.layers[0].order,
+        shift, first.in_channels, channels, model.readout.linear.out_features,
+        [layer.order for layer in model.layers],
         nonlinearity=model.nonlinearity, readout=model.readout.kind, dropout=model.dropout.p,
         normalization=model.normalization, structured=False,
     )

@@ -9,14 +9,16 @@ import torch
 
 from shiftbench.models.readouts import Readout
 from shiftbench.models.shift_polynomial import ShiftPolynomialLayer
-from shiftbench.models.stack import ConvConfig, FilterStack, planned_stack_activations, planned_stack_parameters, widths
+from shiftbench.models.stack import (
+    ConvConfig, FilterStack, per_layer, planned_stack_activations, planned_stack_parameters, widths,
+)
 from shiftbench.registry import FAMILIES, Family
 
 
 class ShiftPolynomialNet(FilterStack):
     """A stack of graph-filter layers ``X_{l+1} = sigma(sum_k S^k X_l H_{l,k} + b_l)`` (widths
-    ``channels``), then a readout. Parameters per layer: ``(K + 1) * in * out + out``,
-    independent of ``nodes``.
+    ``channels``), then a readout. ``order``: one for every layer, or a list with one a layer.
+    Parameters per layer: ``(K_l + 1) * in * out + out``, independent of ``nodes``.
 
     Args:
         shift: ``(nodes, nodes)`` sparse shift operator ``S``, shared by every layer.
@@ -33,7 +35,7 @@ class ShiftPolynomialNet(FilterStack):
         features: int,
         channels: Sequence[int],
         classes: int,
-        order: int,
+        order: int | Sequence[int],
         nonlinearity: str = "relu",
         readout: str = "mean",
         dropout: float = 0.0,
@@ -41,7 +43,10 @@ class ShiftPolynomialNet(FilterStack):
         structured: bool = True,
     ) -> None:
         nodes = shift.shape[0]
-        layers = [ShiftPolynomialLayer(shift, i, o, order, structured=structured) for i, o in widths(features, channels)]
+        layers = [
+            ShiftPolynomialLayer(shift, i, o, layer_order, structured=structured)
+            for layer_order, (i, o) in zip(per_layer(order, len(channels)), widths(features, channels))
+        ]
         readout_layer = Readout(readout, nodes, channels[-1], classes)
         super().__init__(layers, readout_layer, nonlinearity, dropout, normalization, channels)
 
@@ -55,7 +60,7 @@ class GraphConvConfig(ConvConfig):
 
 def _build(arch: GraphConvConfig, nodes: int, features: int, classes: int, shift: torch.Tensor) -> ShiftPolynomialNet:
     return ShiftPolynomialNet(
-        shift, features, arch.channels, classes, arch.order,
+        shift, features, arch.channels, classes, arch.layer_orders(),
         arch.nonlinearity, arch.readout, arch.dropout, arch.normalization,
     )
 

@@ -10,7 +10,7 @@ from typing import Optional
 import torch
 from torch import nn
 
-from shiftbench.config import BUDGET, DROPOUT, Check, Schema, at_least, declared, one_of
+from shiftbench.config import BUDGET, DROPOUT, Check, Schema, at_least, declared, one_of, require
 from shiftbench.models.nonlinearities import NONLINEARITIES
 from shiftbench.models.nonlinearities import nonlinearity as make_nonlinearity
 from shiftbench.models.readouts import READOUTS, Readout
@@ -85,10 +85,22 @@ def widths(features: int, channels: Sequence[int]) -> list[tuple[int, int]]:
     return list(zip(sizes[:-1], sizes[1:]))
 
 
+def per_layer(order: int | Sequence[int], layers: int) -> list[int]:
+    """The filter order of each of ``layers`` layers: ``order`` repeated, or the list as given
+    (it must have one entry a layer)."""
+    if isinstance(order, int):
+        return [order] * layers
+    if len(order) != layers:
+        raise ValueError(f"orders={list(order)!r} is not accepted; accepted: one order a layer ({layers})")
+    return list(order)
+
+
 @dataclass
 class ConvConfig(Schema):
-    """What the convolutional families share: ``order``, widths ``channels``, the nonlinearity,
-    the readout, dropout, normalization, and an optional parameter budget."""
+    """What the convolutional families share: ``order`` (or ``orders``, one a layer), widths
+    ``channels``, the nonlinearity, the readout, dropout, normalization, and an optional
+    parameter budget. With ``orders`` set, ``order`` becomes their largest (the highest power in
+    the stack), so records and tables keep one number a run."""
 
     family: str = "graph_conv"
     order: int = declared(at_least(0), 3)
@@ -101,6 +113,21 @@ class ConvConfig(Schema):
     dropout: float = declared(DROPOUT, 0.0)
     normalization: str = declared(one_of(NORMALIZATIONS), "none")
     budget: Optional[int] = declared(BUDGET, None)
+    orders: Optional[list[int]] = declared(
+        Check(lambda value: value is None or (len(value) >= 1 and all(order >= 0 for order in value)),
+              "null (order for every layer) or a list of integers >= 0, one a layer"),
+        None,
+    )
+
+    def check(self) -> None:
+        if self.orders is not None:
+            require("orders", self.orders, len(self.orders) == len(self.channels),
+                    f"one order a layer: {len(self.channels)} values, as channels has")
+            self.order = max(self.orders)
+
+    def layer_orders(self) -> list[int]:
+        """The filter order of each layer."""
+        return per_layer(self.order if self.orders is None else self.orders, len(self.channels))
 
 
 def planned_stack_activations(arch: ConvConfig, nodes: int, features: int, classes: int) -> int:
@@ -112,12 +139,12 @@ def planned_stack_activations(arch: ConvConfig, nodes: int, features: int, class
 
 
 def planned_stack_parameters(arch: ConvConfig, nodes: int, features: int, classes: int) -> int:
-    """``(K + 1) c_l c_{l+1} + c_{l+1}`` a layer over the widths ``features, *channels``,
+    """``(K_l + 1) c_l c_{l+1} + c_{l+1}`` a layer over the widths ``features, *channels``,
     ``2 c_{l+1}`` more with batch normalization, then a readout of ``(w + 1) classes`` with
     ``w = c_L`` (``nodes * c_L`` for ``flatten``)."""
     count = 0
-    for width_in, width_out in widths(features, arch.channels):
-        count += (arch.order + 1) * width_in * width_out + width_out
+    for order, (width_in, width_out) in zip(arch.layer_orders(), widths(features, arch.channels)):
+        count += (order + 1) * width_in * width_out + width_out
         if arch.normalization == "batch":
             count += 2 * width_out
     last = arch.channels[-1]
