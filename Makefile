@@ -32,6 +32,7 @@ bench: setup
 	$(BIN)/python -m benchmarks.end_to_end
 	$(BIN)/python -m benchmarks.decision
 	$(BIN)/python -m benchmarks.memory
+	$(BIN)/python -m benchmarks.startup
 
 clean:
 	rm -rf $(VENV) results/store results/sweeps results/families/jobs.jsonl

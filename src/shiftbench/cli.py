@@ -69,7 +69,10 @@ def _job(config: DictConfig) -> dict:
 def main() -> None:
     if not CONFIG_DIR.is_dir():
         fail(f"config folder {CONFIG_DIR} not found; install shiftbench from its source tree (pip install -e .)")
-    if override_arguments(sys.argv[1:]) is not None:  # not --help and its kin
+    if any(argument in ("-h", "--help") for argument in sys.argv[1:]):
+        print_help([argument for argument in sys.argv[1:] if not argument.startswith("-")])
+        return
+    if override_arguments(sys.argv[1:]) is not None:  # not --hydra-help and its kin
         refuse_committed_results(sys.argv[1:])
     if "hydra/launcher=slurm_cpu" in sys.argv[1:] and shutil.which("srun") is None:
         fail("hydra/launcher=slurm_cpu: no SLURM on this machine (srun not found); run with "
@@ -88,6 +91,16 @@ def main() -> None:
         print("shiftbench: interrupted; run the same command again to go on: finished jobs are kept and "
               "skipped, an interrupted one resumes from its last checkpoint", file=sys.stderr, flush=True)
         raise SystemExit(130) from None
+
+
+def print_help(overrides: list[str]) -> None:
+    from shiftbench.command_help import help_text
+
+    quiet_on_closed_pipe()
+    try:
+        print(help_text(CONFIG_DIR, overrides), end="")
+    except ConfigError as error:
+        fail(str(error))
 
 
 def quiet_on_closed_pipe() -> None:

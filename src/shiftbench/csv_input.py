@@ -2,13 +2,17 @@
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import csv
 from collections.abc import Callable
 from pathlib import Path
 
-import pandas as pd
 
 from shiftbench.errors import ConfigError
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 
 def read_user_csv(
@@ -18,6 +22,8 @@ def read_user_csv(
     unreadable file, a column name given twice, or a column without a name (a row index written
     by pandas' ``to_csv``) raises ``fail(path, problem)``, where ``empty_hint`` says what the file
     should hold."""
+    import pandas as pd
+
     try:
         table = pd.read_csv(path, dtype={column: str for column in text_columns})
     except pd.errors.EmptyDataError:

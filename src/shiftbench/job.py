@@ -16,10 +16,9 @@ from collections.abc import Callable
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
 from pathlib import Path
-from typing import Any
+from typing import Any, TYPE_CHECKING
 
 import numpy as np
-import pandas as pd
 import torch
 from omegaconf import DictConfig
 
@@ -39,6 +38,9 @@ from shiftbench.registry import FAMILIES, TASKS
 from shiftbench.runtime import available_memory_bytes
 from shiftbench.store import claim, clear_torn_writes, finished_record, home_of, note_launch, release, set_aside, touch_claim
 from shiftbench.training import Checkpointing, TrainingDiverged, TrainingResult, seed_everything, train
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 
 def load_data(run: RunConfig) -> Dataset:
@@ -162,6 +164,8 @@ class JobOutputs:
 def judge(run: RunConfig, dataset: Dataset, record: Record, result: TrainingResult) -> pd.DataFrame:
     """Fill ``record`` with the task's further figures and flags; return the test predictions
     as a table ``sample, label, predicted`` (``sample`` indexes the dataset)."""
+    import pandas as pd
+
     test, train = dataset.splits.test, dataset.splits.train
     judged = TASKS[run.task].judge(dataset.labels[test], result.test_predictions, dataset.labels[train], result.curve)
     for key, value in judged.items():

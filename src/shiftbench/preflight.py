@@ -87,10 +87,11 @@ def preflight(arguments: list[str], config_dir: Path) -> Checked:
         primary, fixed = user_dir, [f"hydra.searchpath=[file://{primary}]", *fixed]
     with initialize_config_dir(str(primary), version_base="1.3", job_name="shiftbench"):
         base = fixed + [values[0] for values in axes.values()]
-        config = _compose(base, name)
-        add_study_axes(axes, fixed, config.hydra.sweeper.get("params") or {})
-        base = fixed + [values[0] for values in axes.values()]
-        composed = _compose(base, name)
+        composed = compose_checked(base, name)
+        add_study_axes(axes, fixed, composed.hydra.sweeper.get("params") or {})
+        if fixed + [values[0] for values in axes.values()] != base:  # a study added axes: compose with them
+            base = fixed + [values[0] for values in axes.values()]
+            composed = compose_checked(base, name)
         first = _validate(composed)  # results_dir first: the folders below derive from it
         for key in ("run.dir", "sweep.dir"):  # as resolved: an interpolation may lead outside too
             try:
@@ -105,7 +106,7 @@ def preflight(arguments: list[str], config_dir: Path) -> Checked:
             for value in values[1:]:
                 variant = list(base)
                 variant[len(fixed) + position] = value
-                digest = _validate(_compose(variant, name))
+                digest = _validate(compose_checked(variant, name))
                 checked.configs += 1
                 if digest in seen:
                     checked.notes.append(
@@ -131,7 +132,9 @@ def config_source(arguments: list[str]) -> tuple[str, Path | None]:
     return name, folder
 
 
-def _compose(overrides: list[str], name: str = "config") -> DictConfig:
+def compose_checked(overrides: list[str], name: str = "config") -> DictConfig:
+    """The config (with its ``hydra`` node) that ``overrides`` compose to, inside an initialized
+    Hydra; a group option or key that does not exist is a one-line :class:`ConfigError`."""
     try:
         return compose(name, overrides=overrides, return_hydra_config=True)
     except MissingConfigException as error:

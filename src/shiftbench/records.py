@@ -14,13 +14,15 @@ import warnings
 from collections.abc import Callable, Iterable
 from dataclasses import asdict, dataclass, field, fields
 from pathlib import Path
-from typing import Any, BinaryIO
+from typing import Any, BinaryIO, TYPE_CHECKING
 
 import numpy as np
-import pandas as pd
 import torch
 
 import shiftbench
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 # Version 2: the record file is record.json in the store; configs carry split and task.
 SCHEMA_VERSION = 2
@@ -144,6 +146,8 @@ def write_record(folder: Path, record: dict[str, Any]) -> Path:
 
 
 def write_curve(folder: Path, curve: list[dict[str, float]]) -> Path:
+    import pandas as pd
+
     buffer = io.StringIO()
     pd.DataFrame(curve, columns=["epoch", "train_loss", "train_accuracy", "val_loss", "val_accuracy", "seconds"]).to_csv(
         buffer, index=False
@@ -264,6 +268,8 @@ def load_records(paths: PathLike | Iterable[PathLike]) -> pd.DataFrame:
     works. Files that cannot be read are skipped with a warning and listed in
     ``frame.attrs["skipped"]``; records of the old layout are read, with one note saying how to
     move them into the store."""
+    import pandas as pd
+
     rows, skipped, old = [], [], 0
     for path in find_records(paths):
         try:

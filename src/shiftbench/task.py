@@ -8,7 +8,6 @@ from typing import Any
 
 import numpy as np
 import torch
-from sklearn.metrics import balanced_accuracy_score, confusion_matrix, f1_score
 from torch import nn
 
 from shiftbench.registry import TASKS, Task
@@ -40,6 +39,8 @@ def judge_classification(
     confusion matrix, rows the true classes ``0..C-1``), the chance level, and flags:
     ``at_chance`` (test accuracy at or below the majority-class rate) and ``loss_never_fell``
     (no epoch's training loss below the first epoch's)."""
+    from sklearn.metrics import balanced_accuracy_score, confusion_matrix, f1_score
+
     classes = np.arange(max(int(labels.max()), int(predicted.max()), int(train_labels.max())) + 1)
     chance = chance_accuracy(train_labels, labels)
     flags = []

@@ -41,6 +41,7 @@ STAGES = {
     "shiftbench.export": 9,
     "shiftbench.sweep_progress": 9,
     "shiftbench.preflight": 9,
+    "shiftbench.command_help": 9,
     "shiftbench.claims": 10,
     "shiftbench.claims_report": 10,
     "shiftbench.statistics": 1,

@@ -5,7 +5,6 @@ from __future__ import annotations
 from dataclasses import dataclass, replace
 
 import numpy as np
-from sklearn.datasets import load_digits
 
 from shiftbench.data.dataset import Dataset, keyword_loader
 from shiftbench.data.splits import RandomSplitConfig, stratified_splits
@@ -23,6 +22,8 @@ def digits(seed: int = 0, val_fraction: float = 0.2, test_fraction: float = 0.2)
     Returns:
         A dataset with signals ``(1797, 64, 1)``, 10 classes, and the 8x8 grid as native graph.
     """
+    from sklearn.datasets import load_digits
+
     bunch = load_digits()
     signals = (bunch.data / MAX_INTENSITY).astype(np.float32)[:, :, None]
     labels = bunch.target.astype(np.int64)

@@ -11,6 +11,8 @@ Every problem is a :class:`ConfigError` with one line that names it and the fix.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import re
 import zipfile
 from functools import partial
@@ -18,7 +20,6 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 import torch
 
 from shiftbench.csv_input import read_user_csv
@@ -31,6 +32,9 @@ from shiftbench.npz_input import require_fits_in_memory
 from shiftbench.graphs.files import load_graph_file
 from shiftbench.graphs.standard import line_graph
 from shiftbench.registry import DATASETS, DatasetSource
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 SUFFIXES = (".npz", ".csv")
 SPLIT_NAMES = {0: "train", 1: "val", 2: "test"}
@@ -72,6 +76,8 @@ INTEGER_LABEL = re.compile(r"^-?(0|[1-9]\d{0,17})$")
 
 
 def read_csv(path: Path) -> dict[str, np.ndarray]:
+    import pandas as pd
+
     table = read_user_csv(
         path, _fail, "write a header row with a 'label' column and one column per node", text_columns=("label",)
     )

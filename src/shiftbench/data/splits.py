@@ -5,7 +5,6 @@ from __future__ import annotations
 from dataclasses import dataclass, replace
 
 import numpy as np
-from sklearn.model_selection import train_test_split
 
 from shiftbench.config import FRACTION, declared, require
 from shiftbench.data.dataset import DataConfig, Dataset, Splits
@@ -36,6 +35,8 @@ def stratified_splits(labels: np.ndarray, val_fraction: float, test_fraction: fl
             (``val_fraction`` 0: no validation split).
         seed: the data seed (independent of the training seed).
     """
+    from sklearn.model_selection import train_test_split
+
     indices = np.arange(len(labels))
     rest, test = train_test_split(
         indices, test_size=test_fraction, stratify=labels, random_state=seed

@@ -13,7 +13,6 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
-from sklearn.model_selection import train_test_split
 
 from shiftbench.config import declared, one_of
 from shiftbench.data.dataset import DataConfig, Dataset, Splits, keyword_loader
@@ -75,6 +74,8 @@ def ucr(name: str = "GunPoint", seed: int = 0, val_fraction: float = 0.2) -> Dat
         A dataset with signals ``(samples, length, channels)`` float32: the archive's train cases
         first, then its test cases; labels coded 0..C-1 in numeric (else text) order.
     """
+    from sklearn.model_selection import train_test_split
+
     folder = aeon_data_folder()
     if folder is None or name not in shipped_names():
         accepted = ", ".join(shipped_names()) or "none: install the ucr extra (pip install 'shiftbench[ucr]')"

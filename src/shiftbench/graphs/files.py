@@ -16,15 +16,15 @@ Duplicate edges are summed and self-loops kept (both noted in the record). Every
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import zipfile
 from collections.abc import Callable
 from functools import partial
 from dataclasses import dataclass, replace
 from pathlib import Path
 
-import networkx as nx
 import numpy as np
-import pandas as pd
 import scipy.sparse as sp
 import torch
 
@@ -36,6 +36,9 @@ from shiftbench.graphs.operators import GraphConfig
 from shiftbench.npz_input import require_fits_in_memory
 from shiftbench.registry import GRAPH_SOURCES, GraphSource
 
+if TYPE_CHECKING:
+    import networkx as nx
+
 SUFFIXES = (".csv", ".npz", ".graphml", ".gml")
 
 
@@ -43,6 +46,8 @@ Fail = Callable[[Path, str], Exception]
 
 
 def read_edge_list(path: Path, nodes: int, fail: Fail) -> Graph:
+    import pandas as pd
+
     table = read_user_csv(path, fail, "write a header source,target[,weight] and one edge a row")
     columns = [str(column).strip() for column in table.columns]
     if columns not in (["source", "target"], ["source", "target", "weight"]):
@@ -106,6 +111,8 @@ def integer_ids(graph: nx.Graph) -> list | None:
 
 
 def read_networkx(path: Path, fail: Fail) -> Graph:
+    import networkx as nx
+
     reader = nx.read_graphml if path.suffix.lower() == ".graphml" else nx.read_gml
     try:
         graph = reader(path)

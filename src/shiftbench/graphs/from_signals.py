@@ -9,7 +9,6 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.sparse as sp
-from sklearn.neighbors import kneighbors_graph
 
 from shiftbench.config import at_least, declared
 from shiftbench.errors import ConfigError
@@ -72,6 +71,8 @@ def signal_knn_graph(signals: np.ndarray, neighbors: int) -> Graph:
     Args:
         signals: ``(samples, nodes, features)``, the training split only.
     """
+    from sklearn.neighbors import kneighbors_graph
+
     directed = kneighbors_graph(node_profiles(signals), n_neighbors=neighbors, mode="connectivity")
     return Graph.from_adjacency(symmetrized(directed), name="knn")
 

@@ -7,12 +7,16 @@ Convention (used everywhere in shiftbench): an edge ``j -> i`` with weight ``w``
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 from dataclasses import dataclass
 
-import networkx as nx
 import numpy as np
 import scipy.sparse as sp
 import torch
+
+if TYPE_CHECKING:
+    import networkx as nx
 
 
 def symmetrized(matrix: sp.spmatrix) -> sp.spmatrix:
@@ -84,6 +88,8 @@ class Graph:
 
     def to_networkx(self) -> nx.DiGraph:
         """A networkx DiGraph with edges ``source -> target`` carrying ``weight``."""
+        import networkx as nx
+
         graph = nx.DiGraph()
         graph.add_nodes_from(range(self.nodes))
         source, target = self.edge_index.tolist()
@@ -92,6 +98,8 @@ class Graph:
 
     def to_undirected_simple(self) -> nx.Graph:
         """The graph as an undirected networkx graph, one unweighted edge per linked pair."""
+        import networkx as nx
+
         return nx.Graph(self.to_networkx().to_undirected())
 
     @classmethod
@@ -100,6 +108,8 @@ class Graph:
     ) -> Graph:
         """The inverse of :meth:`to_undirected_simple` on nodes ``0..nodes-1``: unit weights,
         each edge both ways."""
+        import networkx as nx
+
         matrix = nx.to_scipy_sparse_array(graph, nodelist=range(nodes), weight=None, format="csr")
         return cls.from_adjacency(sp.csr_matrix(matrix), name=name, positions=positions)
 
@@ -180,6 +190,8 @@ class Graph:
 
         An undirected networkx graph gives each edge in both directions.
         """
+        import networkx as nx
+
         order = list(graph.nodes) if order is None else order
         matrix = nx.to_scipy_sparse_array(graph, nodelist=order, weight=weight, format="csr")
         # networkx puts an edge u -> v at M[u, v]; our convention wants it at A[v, u].
@@ -190,6 +202,8 @@ def as_graph(value: object, name: str = "graph") -> Graph:
     """Accept a graph as users hold it: a :class:`Graph`, a networkx graph, a square scipy sparse
     matrix (read as ``A[target, source]``) or a PyG ``edge_index`` tensor or ``(edge_index,
     edge_weight)`` pair."""
+    import networkx as nx
+
     if isinstance(value, Graph):
         return value
     if isinstance(value, nx.Graph):

@@ -9,7 +9,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
-import networkx as nx
 import scipy.sparse as sp
 
 from shiftbench.config import PROBABILITY, POSITIVE, at_least, declared
@@ -21,12 +20,17 @@ from shiftbench.graphs.standard import cycle_graph, geometric_graph, grid_graph,
 from shiftbench.registry import GRAPH_SOURCES, GraphSource
 
 if TYPE_CHECKING:
+    import networkx as nx
+
+if TYPE_CHECKING:
     from shiftbench.data.dataset import Dataset
 
 
 def simple_graph(graph: Graph) -> nx.Graph | nx.DiGraph:
     """``graph``'s edges without weights or self-loops: an undirected networkx graph when every
     edge goes both ways, else a directed one."""
+    import networkx as nx
+
     simple = graph.to_undirected_simple() if graph.is_symmetric() else nx.DiGraph(graph.to_networkx())
     simple.remove_edges_from(nx.selfloop_edges(simple))
     return simple
@@ -34,6 +38,8 @@ def simple_graph(graph: Graph) -> nx.Graph | nx.DiGraph:
 
 def from_simple(simple: nx.Graph | nx.DiGraph, graph: Graph, name: str) -> Graph:
     """The inverse of :func:`simple_graph` on ``graph``'s nodes and positions: unit weights."""
+    import networkx as nx
+
     positions = None if graph.positions is None else graph.positions.numpy()
     if not simple.is_directed():
         return Graph.from_undirected_simple(simple, graph.nodes, name, positions)
@@ -48,6 +54,8 @@ def rewired_graph(graph: Graph, swaps_per_edge: float, seed: int) -> Graph:
     ``directed_edge_swap`` (``u->v->x->y -> u->x->v->y``: in- and out-degrees kept). The
     structure is scrambled: the control for "does this graph matter, or would any graph with
     these degrees do?"."""
+    import networkx as nx
+
     simple = simple_graph(graph)
     swaps = int(swaps_per_edge * simple.number_of_edges())
     try:
@@ -63,6 +71,8 @@ def rewired_graph(graph: Graph, swaps_per_edge: float, seed: int) -> Graph:
 def swap_edges(graph: nx.Graph | nx.DiGraph, swaps: int, seed: int) -> None:
     """``swaps`` degree-preserving edge swaps in place: ``u-v, x-y -> u-x, v-y`` on an undirected
     graph, ``u->v->x->y -> u->x->v->y`` on a directed one (networkx's)."""
+    import networkx as nx
+
     if swaps:
         swap = nx.directed_edge_swap if graph.is_directed() else nx.double_edge_swap
         swap(graph, nswap=swaps, max_tries=swaps * 100, seed=seed)
@@ -71,6 +81,8 @@ def swap_edges(graph: nx.Graph | nx.DiGraph, swaps: int, seed: int) -> None:
 def sbm_graph(nodes: int, blocks: int, p_in: float, p_out: float, seed: int) -> Graph:
     """An undirected stochastic block model: ``blocks`` near-equal blocks of consecutive nodes,
     edge probability ``p_in`` inside a block and ``p_out`` between blocks."""
+    import networkx as nx
+
     sizes = [nodes // blocks + (1 if b < nodes % blocks else 0) for b in range(blocks)]
     probabilities = [[p_in if a == b else p_out for b in range(blocks)] for a in range(blocks)]
     model = nx.stochastic_block_model(sizes, probabilities, seed=seed)

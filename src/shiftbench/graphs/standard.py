@@ -5,31 +5,37 @@ sources expose them to configs. No config is read here.
 
 from __future__ import annotations
 
-import networkx as nx
 import numpy as np
 import scipy.sparse as sp
-from sklearn.neighbors import kneighbors_graph, radius_neighbors_graph
 
 from shiftbench.graphs.graph import Graph, symmetrized
 
 
 def line_graph(nodes: int) -> Graph:
     """The directed line graph ``0 -> 1 -> ... -> nodes-1``: its adjacency is a one-sample delay."""
+    import networkx as nx
+
     return Graph.from_networkx(nx.path_graph(nodes, create_using=nx.DiGraph), name="line")
 
 
 def cycle_graph(nodes: int) -> Graph:
     """The directed cycle ``0 -> 1 -> ... -> nodes-1 -> 0``: a circular one-sample delay."""
+    import networkx as nx
+
     return Graph.from_networkx(nx.cycle_graph(nodes, create_using=nx.DiGraph), name="cycle")
 
 
 def path_graph(nodes: int) -> Graph:
     """The undirected path on ``nodes`` nodes (each edge in both directions)."""
+    import networkx as nx
+
     return Graph.from_networkx(nx.path_graph(nodes), name="path")
 
 
 def grid_graph(rows: int, cols: int) -> Graph:
     """The undirected ``rows x cols`` 4-neighbour grid, nodes in raster order ``r * cols + c``."""
+    import networkx as nx
+
     grid = nx.grid_2d_graph(rows, cols)
     raster = sorted(grid.nodes)
     matrix = nx.to_scipy_sparse_array(grid, nodelist=raster, format="csr")
@@ -44,6 +50,8 @@ def knn_graph(positions: np.ndarray, neighbors: int) -> Graph:
     Args:
         positions: ``(nodes, dims)`` coordinates.
     """
+    from sklearn.neighbors import kneighbors_graph
+
     directed = kneighbors_graph(positions, n_neighbors=neighbors, mode="connectivity")
     symmetric = symmetrized(directed)
     return Graph.from_adjacency(symmetric, name="knn", positions=positions)
@@ -55,5 +63,7 @@ def geometric_graph(positions: np.ndarray, radius: float) -> Graph:
     Args:
         positions: ``(nodes, dims)`` coordinates.
     """
+    from sklearn.neighbors import radius_neighbors_graph
+
     linked = radius_neighbors_graph(positions, radius=radius, mode="connectivity", include_self=False)
     return Graph.from_adjacency(symmetrized(linked), name="geometric", positions=positions)

@@ -11,7 +11,6 @@ import time
 from dataclasses import dataclass
 
 import numpy as np
-from sklearn.neighbors import KNeighborsClassifier
 
 from shiftbench.data.dataset import Dataset
 from shiftbench.registry import FAMILIES, Family
@@ -20,6 +19,8 @@ from shiftbench.training_result import TrainingResult
 
 def _predict(reference: np.ndarray, queries: np.ndarray, dataset: Dataset) -> np.ndarray:
     """The 1-NN class of each of ``queries`` with ``reference`` samples (index arrays)."""
+    from sklearn.neighbors import KNeighborsClassifier
+
     flat = dataset.signals.reshape(dataset.samples, -1)  # (samples, nodes * features)
     classifier = KNeighborsClassifier(n_neighbors=1, algorithm="brute").fit(flat[reference], dataset.labels[reference])
     return classifier.predict(flat[queries])
