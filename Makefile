@@ -33,6 +33,7 @@ bench: setup
 	$(BIN)/python -m benchmarks.decision
 	$(BIN)/python -m benchmarks.memory
 	$(BIN)/python -m benchmarks.startup
+	$(BIN)/python -m benchmarks.contention
 
 clean:
 	rm -rf $(VENV) results/store results/sweeps results/families/jobs.jsonl

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import platform
 import subprocess
 import sys
@@ -22,7 +23,7 @@ import torch
 
 from benchmarks.implementations import GRAPHS, IMPLEMENTATIONS, Case, applicable, build, make_graph
 from benchmarks.measure import (
-    copy_bandwidth_gbps, matmul_gflops, median_ms, peak_rss_mb, reset_peak_rss, traffic_bytes,
+    copy_bandwidth_gbps, matmul_gflops, median_ms, peak_rss_mb, reset_peak_rss, traffic_bytes, arithmetic_flops,
 )
 from benchmarks.report import write_layers_report
 from shiftbench.graphs.operators import shift_operator
@@ -81,7 +82,8 @@ def measure_group(graph_name: str, nodes: int, batch: int, orders: tuple[int, ..
             reference = None
             for implementation in IMPLEMENTATIONS:
                 row = {**case.key(), "implementation": implementation, "edges": edges,
-                       "bound_bytes": traffic_bytes(case.nodes, batch, CHANNELS, order, edges, pass_)}
+                       "bound_bytes": traffic_bytes(case.nodes, batch, CHANNELS, order, edges, pass_),
+                       "bound_flops": arithmetic_flops(case.nodes, batch, CHANNELS, order, edges, pass_)}
                 reason = applicable(case, implementation, edges)
                 if reason is not None:
                     rows.append({**row, "skipped": reason})
@@ -121,9 +123,11 @@ def machine() -> dict:
     }
 
 
-def in_subprocess(arguments: list[str]) -> list[dict]:
-    """Run this module with ``arguments`` in a fresh process and read the JSON lines it prints."""
-    done = subprocess.run([sys.executable, "-m", "benchmarks.layers", *arguments], capture_output=True, text=True)
+def in_subprocess(arguments: list[str], environment: dict[str, str] | None = None) -> list[dict]:
+    """Run this module with ``arguments`` in a fresh process (with ``environment`` added to
+    this one's) and read the JSON lines it prints."""
+    done = subprocess.run([sys.executable, "-m", "benchmarks.layers", *arguments], capture_output=True, text=True,
+                          env={**os.environ, **(environment or {})})
     if done.returncode != 0:
         raise SystemExit(f"benchmark worker {' '.join(arguments)} failed:\n{done.stderr}")
     return [json.loads(line) for line in done.stdout.splitlines() if line.startswith("{")]

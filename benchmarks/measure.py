@@ -75,3 +75,12 @@ def traffic_bytes(nodes: int, batch: int, channels: int, order: int, edges: int,
     signal = 4 * nodes * batch * channels
     forward = 2 * signal + order * (2 * signal + 12 * edges)
     return forward if pass_ == "forward" else 2 * forward + signal
+
+
+def arithmetic_flops(nodes: int, batch: int, channels: int, order: int, edges: int, pass_: str) -> int:
+    """The floating-point operations of a polynomial filter with square taps: ``K`` sparse
+    products (``2 E B F`` each: a multiply and an add an edge and value) and ``K + 1`` tap
+    products (``2 N B F^2`` each). The backward pass does both again twice (the input's
+    gradient through ``S^T`` and the taps', ``X^T Z_k``)."""
+    forward = order * 2 * edges * batch * channels + (order + 1) * 2 * nodes * batch * channels * channels
+    return forward if pass_ == "forward" else 3 * forward

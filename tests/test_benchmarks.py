@@ -30,3 +30,20 @@ def test_the_result_file_holds_exactly_the_documented_keys(tmp_path):
     entries = json.loads((tmp_path / "layers.json").read_text())
     assert len(entries) == 6 and all(tuple(entry) == RESULT_KEYS for entry in entries)  # 3 implementations, 2 passes
     assert "| grid | 36 | 2 | 1 | forward |" in (tmp_path / "layers.md").read_text()
+
+
+def test_the_arithmetic_bound_counts_the_tap_products_as_torch_counts_them():
+    # Reference: torch.utils.flop_counter.FlopCounterMode (2 FLOPs a multiply-add of a matmul).
+    # Order 0 leaves the tap product alone: 2 N B F^2 FLOPs.
+    import torch
+    from torch.utils.flop_counter import FlopCounterMode
+
+    from benchmarks.measure import arithmetic_flops
+    from shiftbench.graphs.operators import shift_operator
+    from shiftbench.graphs.standard import path_graph
+    from shiftbench.models.shift_polynomial import ShiftPolynomialLayer
+
+    layer = ShiftPolynomialLayer(shift_operator(path_graph(50)), 16, 16, 0, bias=False, structured=False)
+    with FlopCounterMode(display=False) as counter:
+        layer(torch.randn(8, 50, 16))
+    assert counter.get_total_flops() == arithmetic_flops(50, 8, 16, 0, 98, "forward") == 2 * 50 * 8 * 16 * 16
