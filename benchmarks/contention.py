@@ -14,34 +14,22 @@ from __future__ import annotations
 
 import argparse
 import json
-import subprocess
 import sys
 from datetime import datetime, timezone
 from pathlib import Path
 
 from benchmarks.layers import in_subprocess
+from benchmarks.measure import busy_competitor
 from shiftbench.records import write_atomic
 
 CASE = ["--group", "knn", "1024", "256", "--orders", "4"]
 POLICIES = ("ACTIVE", "PASSIVE")
-COMPETITOR = (
-    "import torch\n"
-    "torch.set_num_threads(1)\n"
-    "a = torch.randn(512, 512)\n"
-    "while True:\n"
-    "    a = torch.tanh(a @ a)\n"
-)
 
 
 def measure(policy: str, busy: bool) -> list[dict]:
     """The case's rows under ``policy``, with a competitor running throughout when ``busy``."""
-    competitor = subprocess.Popen([sys.executable, "-c", COMPETITOR]) if busy else None
-    try:
+    with busy_competitor(busy):
         return in_subprocess(CASE, {"OMP_WAIT_POLICY": policy})
-    finally:
-        if competitor is not None:
-            competitor.kill()
-            competitor.wait()
 
 
 def main(argv: list[str] | None = None) -> None:

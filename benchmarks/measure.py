@@ -2,11 +2,14 @@
 
 from __future__ import annotations
 
+import contextlib
 import ctypes
 import ctypes.util
 import statistics
+import subprocess
+import sys
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
 from pathlib import Path
 
 import torch
@@ -84,3 +87,26 @@ def arithmetic_flops(nodes: int, batch: int, channels: int, order: int, edges: i
     gradient through ``S^T`` and the taps', ``X^T Z_k``)."""
     forward = order * 2 * edges * batch * channels + (order + 1) * 2 * nodes * batch * channels * channels
     return forward if pass_ == "forward" else 3 * forward
+
+
+# Other work on a shared machine: one process multiplying matrices on one thread.
+COMPETITOR = (
+    "import torch\n"
+    "torch.set_num_threads(1)\n"
+    "a = torch.randn(512, 512)\n"
+    "while True:\n"
+    "    a = torch.tanh(a @ a)\n"
+)
+
+
+@contextlib.contextmanager
+def busy_competitor(busy: bool = True) -> Iterator[None]:
+    """Run :data:`COMPETITOR` in a process of its own for the ``with`` block (nothing when not
+    ``busy``)."""
+    competitor = subprocess.Popen([sys.executable, "-c", COMPETITOR]) if busy else None
+    try:
+        yield
+    finally:
+        if competitor is not None:
+            competitor.kill()
+            competitor.wait()
