@@ -112,3 +112,15 @@ def test_a_planted_back_reference_is_caught(tmp_path, monkeypatch):
         assert back_references() == ["shiftbench.data._planted_for_test (stage 3) imports shiftbench.models (stage 5)"]
     finally:
         planted.unlink()
+
+
+def test_the_command_line_and_every_component_load_without_the_heavy_libraries():
+    # Start-up: scikit-learn, pandas, networkx and matplotlib cost about as much as torch to
+    # import; modules on the job path import them inside the functions that use them.
+    import subprocess
+    import sys
+
+    probe = ("import sys, shiftbench.cli; from shiftbench.registry import load_components; load_components(); "
+             "print(sorted(name for name in ('sklearn', 'pandas', 'networkx', 'matplotlib') if name in sys.modules))")
+    done = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, check=True)
+    assert done.stdout.strip() == "[]"
