@@ -9,7 +9,8 @@ Two plans, chosen by the structure of ``S``:
 - :class:`SparseShift`: any other ``S``, as torch CSR with its transpose stored for the backward
   pass, on the nodes renumbered by reverse Cuthill-McKee so that neighbours lie close in memory
   (measured on random k-NN graphs: the layer 1.8x faster at 1024 nodes, the sparse product 2.9x
-  faster at 16384).
+  faster at 16384). The matrices and index vectors are built on the device of the signals they
+  meet (on CUDA, torch's CUDA sparse product runs).
 """
 
 from __future__ import annotations
@@ -51,23 +52,34 @@ class SparseShift:
         self.nodes = matrix.shape[0]
         order = reverse_cuthill_mckee((abs(matrix) + abs(matrix.T)).tocsr(), symmetric_mode=True)
         renumbered = matrix[order][:, order].tocsr()
-        self.order = torch.from_numpy(order.astype(np.int64))
-        self.inverse = torch.argsort(self.order)
+        self._order = torch.from_numpy(order.astype(np.int64))
         self._renumbered = {"forward": renumbered, "transpose": renumbered.T.tocsr()}
-        self._matrices: dict[tuple[str, torch.dtype], torch.Tensor] = {}
+        self._matrices: dict[tuple[str, torch.dtype, torch.device], torch.Tensor] = {}
+        self._indices: dict[torch.device, tuple[torch.Tensor, torch.Tensor]] = {}
 
-    def _matrix(self, which: str, dtype: torch.dtype) -> torch.Tensor:
-        """``S'`` (``forward``) or ``S'^T`` (``transpose``) as torch CSR of ``dtype``, built once."""
-        key = (which, dtype)
+    def _matrix(self, which: str, dtype: torch.dtype, device: torch.device) -> torch.Tensor:
+        """``S'`` (``forward``) or ``S'^T`` (``transpose``) as torch CSR of ``dtype`` on
+        ``device``, built once."""
+        key = (which, dtype, device)
         if key not in self._matrices:
-            self._matrices[key] = scipy_to_torch_csr(self._renumbered[which], dtype)
+            self._matrices[key] = scipy_to_torch_csr(self._renumbered[which], dtype).to(device)
         return self._matrices[key]
 
+    def renumbering(self, device: torch.device) -> tuple[torch.Tensor, torch.Tensor]:
+        """The reverse Cuthill-McKee order and its inverse, as int64 on ``device``."""
+        if device not in self._indices:
+            order = self._order.to(device)
+            self._indices[device] = (order, torch.argsort(order))
+        return self._indices[device]
+
     def _product(self, which: str, local: torch.Tensor) -> torch.Tensor:
-        # torch's CSR "sum" reduction kernel: measured 1.5x ahead of the plain CSR product on
-        # these shapes, which zero-fills and copies its result.
+        # On CPU, torch's CSR "sum" reduction kernel: measured 1.5x ahead of the plain CSR
+        # product on these shapes, which zero-fills and copies its result. It exists on CPU
+        # only; elsewhere the plain product runs.
         # (nodes * chunk, channels) -> (nodes, chunk * channels)
-        product = torch.sparse.mm(self._matrix(which, local.dtype), local.view(self.nodes, -1), "sum")
+        matrix = self._matrix(which, local.dtype, local.device)
+        columns = local.view(self.nodes, -1)
+        product = torch.sparse.mm(matrix, columns, "sum") if local.device.type == "cpu" else matrix @ columns
         return product.view(local.shape)  # back to (nodes * chunk, channels)
 
     def gather(self, samples: torch.Tensor) -> torch.Tensor:
@@ -76,14 +88,16 @@ class SparseShift:
         # Copy first, then permute rows: the copy streams from memory, the permutation's
         # scattered reads then hit the cache.
         node_major = samples.transpose(0, 1).contiguous()  # (chunk, nodes, channels) -> (nodes, chunk, channels)
-        return node_major.index_select(0, self.order).view(nodes * chunk, channels)  # renumbered, (nodes * chunk, channels)
+        order, _ = self.renumbering(samples.device)
+        return node_major.index_select(0, order).view(nodes * chunk, channels)  # renumbered, (nodes * chunk, channels)
 
     def scatter(self, local: torch.Tensor, into: torch.Tensor) -> None:
         """Write ``(nodes * chunk, channels)`` (renumbered, node-major) into ``into``
         ``(chunk, nodes, channels)`` in the original numbering."""
         chunk, nodes, channels = into.shape
+        _, inverse = self.renumbering(into.device)
         # (nodes * chunk, channels) -> (chunk, nodes, channels)
-        into.transpose(0, 1).copy_(local.view(nodes, chunk, channels).index_select(0, self.inverse))
+        into.transpose(0, 1).copy_(local.view(nodes, chunk, channels).index_select(0, inverse))
 
     def apply(self, local: torch.Tensor) -> torch.Tensor:
         """``S' Z`` for ``Z`` of shape ``(nodes * chunk, channels)``; same shape out."""
