@@ -1,10 +1,10 @@
 """The layer on a busy machine: each implementation idle and beside one competing busy process,
-under OpenMP's active and passive waiting.
+under OpenMP's default, active and passive waiting.
 
 ``python -m benchmarks.contention`` measures the k-NN case of the targets (N=1024, B=256, F=16,
-K=4, forward and forward+backward) with torch on every core, four ways: waiting policy
-``ACTIVE`` (threads spin at barriers, OpenMP's usual default) or ``PASSIVE`` (they sleep), each
-idle and beside a competitor (one process multiplying matrices on one thread, as other work on a
+K=4, forward and forward+backward) with torch on every core, six ways: waiting policy unset
+(libgomp spins a while at a barrier, then sleeps), ``ACTIVE`` (threads spin) or ``PASSIVE``
+(they sleep), each idle and beside a competitor (one process multiplying matrices on one thread, as other work on a
 shared machine would). It writes ``results/benchmarks/contention.json`` and ``.md``: the medians
 and each slowdown (busy over idle). Goal: at most 2.5x, about the share of the cores the
 competitor takes (2x on 2 cores) plus some.
@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import sys
 from datetime import datetime, timezone
 from pathlib import Path
@@ -23,13 +24,17 @@ from benchmarks.measure import busy_competitor
 from shiftbench.records import write_atomic
 
 CASE = ["--group", "knn", "1024", "256", "--orders", "4"]
-POLICIES = ("ACTIVE", "PASSIVE")
+# "default": the variable unset, so libgomp spins a while at a barrier and then sleeps.
+POLICIES = ("default", "ACTIVE", "PASSIVE")
 
 
 def measure(policy: str, busy: bool) -> list[dict]:
     """The case's rows under ``policy``, with a competitor running throughout when ``busy``."""
+    environment = {key: value for key, value in os.environ.items() if key != "OMP_WAIT_POLICY"}
+    if policy != "default":
+        environment["OMP_WAIT_POLICY"] = policy
     with busy_competitor(busy):
-        return in_subprocess(CASE, {"OMP_WAIT_POLICY": policy})
+        return in_subprocess(CASE, environment, inherit=False)
 
 
 def main(argv: list[str] | None = None) -> None:

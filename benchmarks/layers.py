@@ -123,11 +123,11 @@ def machine() -> dict:
     }
 
 
-def in_subprocess(arguments: list[str], environment: dict[str, str] | None = None) -> list[dict]:
-    """Run this module with ``arguments`` in a fresh process (with ``environment`` added to
-    this one's) and read the JSON lines it prints."""
+def in_subprocess(arguments: list[str], environment: dict[str, str] | None = None, inherit: bool = True) -> list[dict]:
+    """Run this module with ``arguments`` in a fresh process and read the JSON lines it prints;
+    ``environment`` is added to this process's (``inherit``) or replaces it."""
     done = subprocess.run([sys.executable, "-m", "benchmarks.layers", *arguments], capture_output=True, text=True,
-                          env={**os.environ, **(environment or {})})
+                          env={**(os.environ if inherit else {}), **(environment or {})})
     if done.returncode != 0:
         raise SystemExit(f"benchmark worker {' '.join(arguments)} failed:\n{done.stderr}")
     return [json.loads(line) for line in done.stdout.splitlines() if line.startswith("{")]
