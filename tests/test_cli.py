@@ -195,9 +195,12 @@ def test_a_sweep_killed_mid_job_finishes_on_rerun_without_retraining_what_was_do
                                stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
     deadline = time.monotonic() + 120
     while True:
-        done = [path.parent for path in sweep.rglob("record.json")]
-        started = [path.parent for path in sweep.rglob("checkpoint.pt") if path.parent not in done]
-        if done and started:
+        # Checkpoints first, records after: a job whose checkpoint was there and whose record was
+        # not yet, a moment later, is still training. Killed while one job is done, another still
+        # waits, so the signal cannot land as the sweep ends.
+        started = {path.parent for path in sweep.rglob("checkpoint.pt")}
+        done = {path.parent for path in sweep.rglob("record.json")}
+        if len(done) == 1 and started - done:
             break
         assert process.poll() is None, "the sweep ended before it could be killed mid-job"
         assert time.monotonic() < deadline
