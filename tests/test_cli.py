@@ -191,8 +191,11 @@ def test_a_sweep_killed_mid_job_finishes_on_rerun_without_retraining_what_was_do
                  "train.epochs=100", "train.patience=100", "train.checkpoint_every=1"]
     if launcher == "joblib":
         arguments += ["hydra/launcher=joblib", "hydra.launcher.n_jobs=2"]
+    # Ctrl-C reaches a foreground process, whose SIGINT is at its default; the suite itself may
+    # run as a background job, for which bash ignores SIGINT, and children inherit that.
     process = subprocess.Popen([str(BIN / "shiftbench"), *arguments], cwd=tmp_path, start_new_session=True,
-                               stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
+                               stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True,
+                               preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
     deadline = time.monotonic() + 120
     while True:
         # Checkpoints first, records after: a job whose checkpoint was there and whose record was
