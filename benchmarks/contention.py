@@ -20,7 +20,7 @@ from datetime import datetime, timezone
 from pathlib import Path
 
 from benchmarks.layers import in_subprocess
-from benchmarks.measure import busy_competitor
+from benchmarks.measure import busy_competitor, write_markdown_table
 from shiftbench.records import write_atomic
 
 CASE = ["--group", "knn", "1024", "256", "--orders", "4"]
@@ -57,18 +57,15 @@ def main(argv: list[str] | None = None) -> None:
     date = datetime.now(timezone.utc).strftime("%Y-%m-%d")
     write_atomic(arguments.out / "contention.json", json.dumps({"date": date, "cpu": limits["cpu"], "cores": limits["cores"],
                                                                 "rows": rows}, indent=1) + "\n")
-    lines = [
-        "# The layer beside a busy process", "",
+    write_markdown_table(
+        arguments.out / "contention.md", "The layer beside a busy process",
         f"`python -m benchmarks.contention`, {date}, {limits['cpu']}, {limits['cores']} cores, torch on every core; "
         "k-NN graph, N=1024, B=256, F=16, K=4; medians in ms. Busy: one competing process multiplying 512x512 "
-        "matrices on one thread throughout. Goal: a slowdown of at most 2.5x.", "",
-        "| OMP_WAIT_POLICY | implementation | pass | idle | busy | slowdown |", "| --- | --- | --- | ---: | ---: | ---: |",
-    ]
-    lines += [f"| {row['policy']} | {row['implementation']} | {row['pass']} | {row['idle']:.1f} | {row['busy']:.1f} | "
-              f"{row['slowdown']:.2f}x |" for row in rows]
-    write_atomic(arguments.out / "contention.md", "\n".join(lines) + "\n")
-    print("\n".join(lines))
-
+        "matrices on one thread throughout. Goal: a slowdown of at most 2.5x.",
+        {"OMP_WAIT_POLICY": "---", "implementation": "---", "pass": "---", "idle": "---:", "busy": "---:", "slowdown": "---:"},
+        [[row["policy"], row["implementation"], row["pass"], f"{row['idle']:.1f}", f"{row['busy']:.1f}", f"{row['slowdown']:.2f}x"]
+         for row in rows],
+    )
 
 if __name__ == "__main__":
     main()

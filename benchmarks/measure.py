@@ -14,6 +14,8 @@ from pathlib import Path
 
 import torch
 
+from shiftbench.records import write_atomic
+
 MIN_REPEATS = 3
 MAX_REPEATS = 15
 # Repeat a fast case until this much time is spent, so its median is stable.
@@ -110,3 +112,12 @@ def busy_competitor(busy: bool = True) -> Iterator[None]:
         if competitor is not None:
             competitor.kill()
             competitor.wait()
+
+
+def write_markdown_table(path: Path, title: str, intro: str, columns: dict[str, str], rows: list[list[str]]) -> None:
+    """A benchmark's ``.md``: ``# title``, the ``intro`` paragraph, and a table of ``rows`` under
+    ``columns`` (each name with its alignment, ``---`` or ``---:``); printed as well."""
+    lines = [f"# {title}", "", intro, "", "| " + " | ".join(columns) + " |", "| " + " | ".join(columns.values()) + " |"]
+    lines += ["| " + " | ".join(row) + " |" for row in rows]
+    write_atomic(path, "\n".join(lines) + "\n")
+    print("\n".join(lines))

@@ -15,6 +15,7 @@ import sys
 from datetime import datetime, timezone
 from pathlib import Path
 
+from benchmarks.measure import write_markdown_table
 from shiftbench.records import write_atomic
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -71,18 +72,15 @@ def main(argv: list[str] | None = None) -> None:
                   f"{result['measured'] / 2**20:,.0f} MiB, ratio {rows[-1]['ratio']:.2f}", file=sys.stderr)
     facts = {"date": datetime.now(timezone.utc).strftime("%Y-%m-%d"), "machine": machine(), "common": COMMON, "cases": rows}
     write_atomic(arguments.out / "memory.json", json.dumps(facts, indent=2) + "\n")
-    lines = [
-        "# Memory: the estimate that refuses jobs, against measured peaks", "",
+    write_markdown_table(
+        arguments.out / "memory.md", "Memory: the estimate that refuses jobs, against measured peaks",
         f"`python -m benchmarks.memory`, {facts['date']}; every case also sets `{' '.join(COMMON)}`. "
         "Measured: the growth of the peak resident size across one job in a fresh process. Goal: a ratio "
-        "(estimate / measured) between 1 and 1.5.", "",
-        "| family | case | parameters | estimate MiB | measured MiB | ratio |", "| --- | --- | ---: | ---: | ---: | ---: |",
-    ]
-    lines += [f"| {row['family']} | `{row['case']}` | {row['parameters']:,} | {row['planned'] / 2**20:,.0f} | "
-              f"{row['measured'] / 2**20:,.0f} | {row['ratio']:.2f} |" for row in rows]
-    write_atomic(arguments.out / "memory.md", "\n".join(lines) + "\n")
-    print("\n".join(lines))
-
+        "(estimate / measured) between 1 and 1.5.",
+        {"family": "---", "case": "---", "parameters": "---:", "estimate MiB": "---:", "measured MiB": "---:", "ratio": "---:"},
+        [[row["family"], f"`{row['case']}`", f"{row['parameters']:,}", f"{row['planned'] / 2**20:,.0f}",
+          f"{row['measured'] / 2**20:,.0f}", f"{row['ratio']:.2f}"] for row in rows],
+    )
 
 if __name__ == "__main__":
     main()

@@ -20,6 +20,7 @@ import time
 from datetime import datetime, timezone
 from pathlib import Path
 
+from benchmarks.measure import write_markdown_table
 from shiftbench.records import write_atomic
 
 BIN = Path(sys.executable).parent
@@ -68,16 +69,13 @@ def main(argv: list[str] | None = None) -> None:
              "repeats": arguments.repeats,
              "seconds": medians, "ratio_to_import_torch": {label: value / reference for label, value in medians.items()}}
     write_atomic(arguments.out / "startup.json", json.dumps(facts, indent=2) + "\n")
-    lines = [
-        "# Start-up: commands against importing torch", "",
+    write_markdown_table(
+        arguments.out / "startup.md", "Start-up: commands against importing torch",
         f"`python -m benchmarks.startup`, {facts['date']}, {facts['machine']}; median of {arguments.repeats} "
-        "fresh processes each. Goal: `shiftbench --help` and a one-epoch fc job at most 1.5x `import torch`.", "",
-        "| command | seconds | ratio to `import torch` |", "| --- | ---: | ---: |",
-    ]
-    lines += [f"| `{label}` | {value:.2f} | {value / reference:.2f} |" for label, value in medians.items()]
-    write_atomic(arguments.out / "startup.md", "\n".join(lines) + "\n")
-    print("\n".join(lines))
-
+        "fresh processes each. Goal: `shiftbench --help` and a one-epoch fc job at most 1.5x `import torch`.",
+        {"command": "---", "seconds": "---:", "ratio to `import torch`": "---:"},
+        [[f"`{label}`", f"{value:.2f}", f"{value / reference:.2f}"] for label, value in medians.items()],
+    )
 
 if __name__ == "__main__":
     main()

@@ -14,7 +14,7 @@ from hydra.core.config_store import ConfigStore
 from omegaconf import OmegaConf
 
 from shiftbench.config_store import register_defaults
-from shiftbench.preflight import compose_checked
+from shiftbench.preflight import compose_checked, job_config
 
 USAGE = """\
 shiftbench: train MLPs, 1-D CNNs and GNNs of polynomial graph filters on one dataset.
@@ -51,8 +51,7 @@ def help_text(config_dir: Path, overrides: list[str]) -> str:
     """
     register_defaults()
     with initialize_config_dir(str(config_dir), version_base="1.3", job_name="shiftbench"):
-        composed = compose_checked(overrides)
-    config = OmegaConf.masked_copy(composed, [key for key in composed.keys() if key != "hydra"])
+        config = job_config(compose_checked(overrides))
     groups = "".join(f"{group}: {', '.join(options)}\n" for group, options in group_options(config_dir).items())
     return (f"{USAGE}\n== Config groups (group=option; a group outside the defaults: +group=option) ==\n{groups}\n"
             f"== Config (override any key: key=value) ==\n{OmegaConf.to_yaml(config)}")

@@ -89,9 +89,9 @@ def preflight(arguments: list[str], config_dir: Path) -> Checked:
         base = fixed + [values[0] for values in axes.values()]
         composed = compose_checked(base, name)
         add_study_axes(axes, fixed, composed.hydra.sweeper.get("params") or {})
-        if fixed + [values[0] for values in axes.values()] != base:  # a study added axes: compose with them
-            base = fixed + [values[0] for values in axes.values()]
-            composed = compose_checked(base, name)
+        widened = fixed + [values[0] for values in axes.values()]
+        if widened != base:  # a study added axes: compose with them
+            base, composed = widened, compose_checked(widened, name)
         first = _validate(composed)  # results_dir first: the folders below derive from it
         for key in ("run.dir", "sweep.dir"):  # as resolved: an interpolation may lead outside too
             try:
@@ -164,9 +164,14 @@ def _added_key_retry(overrides: list[str], error: HydraException, name: str) -> 
         return None
 
 
+def job_config(composed: DictConfig) -> DictConfig:
+    """A composed config without its ``hydra`` node: what a job receives."""
+    return OmegaConf.masked_copy(composed, [key for key in composed.keys() if key != "hydra"])
+
+
 def _validate(config: DictConfig) -> str:
     """Check a composed job config and its files; return its config hash."""
-    job = OmegaConf.masked_copy(config, [key for key in config.keys() if key != "hydra"])
+    job = job_config(config)
     _require_resolvable(job)
     run = validate(job)
     require_writable_folder(Path(run.results_dir))
