@@ -38,17 +38,17 @@ def is_png(path):
 
 def test_accuracy_against_parameters_draws_every_row(tmp_path):
     table = records(tmp_path)
-    path, points = plots.accuracy_vs_parameters(table, tmp_path / "a.png")
+    path, points = plots.score_vs_parameters(table, tmp_path / "a.png")
     assert is_png(path)
-    pd.testing.assert_series_equal(points["test_accuracy_mean"], table["test_accuracy_mean"], check_names=False)
+    pd.testing.assert_series_equal(points["mean"], table["test_accuracy_mean"], check_names=False)
     assert points["x"].tolist() == table["parameters"].astype(float).tolist()
 
 
 def test_accuracy_against_order_draws_every_row_with_an_order(tmp_path):
     table = records(tmp_path)
-    path, points = plots.accuracy_vs_order(table, tmp_path / "o.png")
+    path, points = plots.score_vs_order(table, tmp_path / "o.png")
     assert is_png(path)
-    assert sorted(zip(points["order"], points["test_accuracy_mean"])) == sorted(zip(table["order"], table["test_accuracy_mean"]))
+    assert sorted(zip(points["order"], points["mean"])) == sorted(zip(table["order"], table["test_accuracy_mean"]))
 
 
 def test_scaling_plot_draws_accuracy_and_parameters_per_node_count(tmp_path):
@@ -56,7 +56,7 @@ def test_scaling_plot_draws_accuracy_and_parameters_per_node_count(tmp_path):
     path, points = plots.scaling(table, tmp_path / "s.png")
     assert is_png(path)
     expected = sorted(zip(table["family"], table["nodes"], table["parameters"], table["test_accuracy_mean"]))
-    assert sorted(zip(points["family"], points["nodes"], points["parameters"], points["test_accuracy_mean"])) == expected
+    assert sorted(zip(points["family"], points["nodes"], points["parameters"], points["mean"])) == expected
 
 
 def test_learning_curves_draw_each_seed_of_a_row_labelled_by_seed(tmp_path):

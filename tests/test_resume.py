@@ -51,7 +51,7 @@ def test_a_resumed_run_ends_with_the_figures_of_an_uninterrupted_one_bit_for_bit
     assert resumed.resumed_from_epoch == kill_after + 1
     drop_seconds = [{key: value for key, value in row.items() if key != "seconds"} for row in resumed.curve]
     assert drop_seconds == [{key: value for key, value in row.items() if key != "seconds"} for row in whole.curve]
-    for figure in ("train_accuracy", "val_accuracy", "test_accuracy", "test_loss", "best_epoch", "epochs_run"):
+    for figure in ("train_score", "val_score", "test_score", "test_loss", "best_epoch", "epochs_run"):
         assert getattr(resumed, figure) == getattr(whole, figure), figure
 
 

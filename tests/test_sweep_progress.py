@@ -8,9 +8,9 @@ from shiftbench.sweep_progress import append_line, job_line, read_progress, tall
 
 HEADER = {"total": 3, "started": 100.0}
 FINISHED = [
-    {"status": "completed", "family": "fc", "data": "digits", "test_accuracy": 0.9},
-    {"status": "skipped", "family": "fc", "data": "digits", "test_accuracy": 0.9},
-    {"status": "failed", "family": "graph_conv", "data": "digits", "test_accuracy": None},
+    {"status": "completed", "family": "fc", "data": "digits", "metric": "accuracy", "test_score": 0.9},
+    {"status": "skipped", "family": "fc", "data": "digits", "metric": "accuracy", "test_score": 0.9},
+    {"status": "failed", "family": "graph_conv", "data": "digits", "metric": "accuracy", "test_score": None},
 ]
 
 

@@ -34,4 +34,4 @@ def test_the_kept_epoch_is_the_one_its_criterion_picks_from_the_curve(small_conf
         "best_val": lambda row: (row["val_accuracy"], -row["val_loss"]),
     }[keep]
     best = max(curve, key=lambda row: (ranked(row), -row["epoch"]))
-    assert result.best_epoch == best["epoch"] and result.val_accuracy == best["val_accuracy"]
+    assert result.best_epoch == best["epoch"] and result.val_score == best["val_accuracy"]

@@ -67,7 +67,7 @@ def _transfer(dataset: Dataset, seed: int, boundary: str, config: TrainConfig, t
     labels = torch.from_numpy(dataset.labels[dataset.splits.test])
     return {
         "max_abs_logit_difference": float((cnn_logits - gnn_logits).abs().max()),
-        "cnn_test_accuracy": result.test_accuracy,
+        "cnn_test_accuracy": result.test_score,
         "gnn_test_accuracy": int((gnn_logits.argmax(1) == labels).sum()) / len(labels),
     }
 

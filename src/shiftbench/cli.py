@@ -19,6 +19,7 @@ from shiftbench.job import run_job
 from shiftbench.preflight import override_arguments, preflight
 from shiftbench.config_store import register_defaults
 from shiftbench.records import MANIFEST_FILE as MANIFEST
+from shiftbench.registry import TASKS
 from shiftbench.runtime import keep_freed_memory
 
 # The groups' options come from the components' schemas (see config_store); registered on import,
@@ -63,7 +64,9 @@ def _job(config: DictConfig) -> dict:
     except ConfigError as error:
         fail(str(error))
     # What the sweep progress callback shows for this job.
-    return {key: record.get(key) for key in ("status", "skipped", "family", "data", "test_accuracy")}
+    metric = TASKS[record.get("task", "classification")].metric
+    return {**{key: record.get(key) for key in ("status", "skipped", "family", "data")},
+            "metric": metric, "test_score": record.get(f"test_{metric}")}
 
 
 def main() -> None:

@@ -215,7 +215,22 @@ def validate(config: DictConfig) -> RunConfig:
     if nodes is not None:
         check_graph_fits(run.graph, run.arch.family, nodes)
     check_validation_split(run)
+    check_task(run)
     return run
+
+
+def check_task(run: RunConfig) -> None:
+    """Checks across groups: the data source has targets for the task, and the family gives
+    the task's head (a ``node`` readout for a task on every node, a pooling one otherwise; the
+    floors classify whole signals)."""
+    task = TASKS[run.task]
+    served = DATASETS[run.data.source].tasks
+    require("task", run.task, run.task in served, f"{', '.join(served)} for data={run.data.source}")
+    family = FAMILIES[run.arch.family]
+    if family.fit is not None:
+        require("task", run.task, run.task == "classification", f"classification for arch={run.arch.family} (a floor)")
+    if hasattr(run.arch, "check_head"):
+        run.arch.check_head(task.head)
 
 
 def check_validation_split(run: RunConfig) -> None:

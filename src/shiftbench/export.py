@@ -1,8 +1,8 @@
 """Curves where people already look at them: a results folder exported as TensorBoard runs.
 
 One run a record, named by what it is (``graph_conv-native-seed2-<hash>``): its learning curve
-as scalars per epoch (``train/loss``, ``train/accuracy``, ``val/loss``, ``val/accuracy``), its test
-figures at its last epoch, and its config as text. Written with ``torch.utils.tensorboard``
+as scalars per epoch (``train/loss``, ``train/<metric>``, ``val/loss``, ``val/<metric>``, the
+metric being the task's: ``accuracy``, ``rmse``), its test figure at its last epoch, and its config as text. Written with ``torch.utils.tensorboard``
 (which needs the ``tensorboard`` package: the ``tracking`` extra); the records are not touched.
 """
 
@@ -16,8 +16,6 @@ import pandas as pd
 
 from shiftbench.records import CURVE_FILE, load_records
 
-SCALARS = {"train_loss": "train/loss", "train_accuracy": "train/accuracy", "val_loss": "val/loss",
-           "val_accuracy": "val/accuracy"}
 
 
 def run_name(record: pd.Series) -> str:
@@ -41,12 +39,15 @@ def export_tensorboard(paths: Iterable[Path], out: Path) -> list[Path]:
         with SummaryWriter(log_dir=str(folder)) as writer:
             curve_file = Path(record["path"]) / CURVE_FILE
             curve = pd.read_csv(curve_file) if curve_file.is_file() else pd.DataFrame()
+            metric = record["metric"]
+            scalars = {"train_loss": "train/loss", f"train_{metric}": f"train/{metric}", "val_loss": "val/loss",
+                       f"val_{metric}": f"val/{metric}"}
             for _, row in curve.iterrows():
-                for column, tag in SCALARS.items():
+                for column, tag in scalars.items():
                     if pd.notna(row[column]):  # a run without a validation split has no val figures
                         writer.add_scalar(tag, float(row[column]), int(row["epoch"]))
             last = int(record["epochs_run"]) if pd.notna(record.get("epochs_run")) else 0
-            writer.add_scalar("test/accuracy", float(record["test_accuracy"]), last)
+            writer.add_scalar(f"test/{metric}", float(record["test_score"]), last)
             writer.add_text("config", "```\n" + json.dumps(record["config"], indent=2) + "\n```")
         written.append(folder)
     return written

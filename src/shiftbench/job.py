@@ -163,14 +163,22 @@ class JobOutputs:
 
 def judge(run: RunConfig, dataset: Dataset, record: Record, result: TrainingResult) -> pd.DataFrame:
     """Fill ``record`` with the task's further figures and flags; return the test predictions
-    as a table ``sample, label, predicted`` (``sample`` indexes the dataset)."""
+    as a table (``sample`` indexes the dataset): ``sample, label, predicted`` for a whole-signal
+    task, ``sample, node, output, target, predicted`` for each scored entry of a node task."""
     import pandas as pd
 
     test, train = dataset.splits.test, dataset.splits.train
     judged = TASKS[run.task].judge(dataset.labels[test], result.test_predictions, dataset.labels[train], result.curve)
     for key, value in judged.items():
         setattr(record, key, value)
-    return pd.DataFrame({"sample": test, "label": dataset.labels[test], "predicted": result.test_predictions})
+    if dataset.labels.ndim == 1:
+        return pd.DataFrame({"sample": test, "label": dataset.labels[test], "predicted": result.test_predictions})
+    targets = dataset.labels[test]
+    sample, node, output = np.nonzero(~np.isnan(targets))
+    return pd.DataFrame({
+        "sample": test[sample], "node": node, "output": output,
+        "target": targets[sample, node, output], "predicted": result.test_predictions[sample, node, output],
+    })
 
 
 def execute(run: RunConfig, record: Record, home: Path, live: bool, label: str = "", in_sweep: bool = False) -> JobOutputs:
@@ -192,9 +200,9 @@ def execute(run: RunConfig, record: Record, home: Path, live: bool, label: str =
             print(f"resumed at epoch {result.resumed_from_epoch} (the checkpoint holds epochs 1 to "
                   f"{result.resumed_from_epoch - 1})", flush=True)
         record.status = result.status
-        record.train_accuracy = result.train_accuracy
-        record.val_accuracy = result.val_accuracy
-        record.test_accuracy = result.test_accuracy
+        metric = TASKS[run.task].metric
+        for split in ("train", "val", "test"):
+            setattr(record, f"{split}_{metric}", getattr(result, f"{split}_score"))
         record.test_loss = result.test_loss
         record.best_epoch = result.best_epoch
         record.epochs_run = result.epochs_run
@@ -224,7 +232,7 @@ def finish(record: Record, home: Path, outputs: JobOutputs) -> Path:
     record.torch_threads = torch.get_num_threads()
     record.versions = versions()
     record.finished = datetime.now(timezone.utc).isoformat(timespec="seconds")
-    write_curve(home, outputs.curve)
+    write_curve(home, outputs.curve, TASKS[record.task].metric)
     if outputs.predictions is not None:
         write_predictions(home, outputs.predictions)
     if outputs.weights is not None:
@@ -289,7 +297,8 @@ def run_job(
 
 
 def summary_line(record: dict[str, Any]) -> str:
-    """One line per job: family, data, graph, order, parameters, test accuracy (or the failure)."""
+    """One line per job: family, data, graph, order, parameters, the test figure of the task's
+    metric (or the failure)."""
     order = "-" if record["order"] is None else record["order"]
     head = f"{record['family']} on {record['data']}, graph {record['graph']}, order {order}"
     if record["status"] == "claimed":
@@ -299,8 +308,9 @@ def summary_line(record: dict[str, Any]) -> str:
     epochs = "" if record["epochs_run"] is None else f"best epoch {record['best_epoch']} of {record['epochs_run']}, "
     if record["status"] == "timed_out":
         epochs = f"timed out (train.max_seconds), {epochs}"
+    metric = TASKS[record.get("task", "classification")].metric
     return (
-        f"{head}: {record['parameters']:,} parameters, test accuracy {record['test_accuracy']:.3f} "
+        f"{head}: {record['parameters']:,} parameters, test {metric} {record[f'test_{metric}']:.3f} "
         f"({epochs}{record['train_seconds']:.1f} s)"
     )
 

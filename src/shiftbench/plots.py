@@ -36,80 +36,99 @@ def _label(row: pd.Series, keys: list[str]) -> str:
     return " ".join(str(row[key]) for key in keys if not pd.isna(row[key]))
 
 
-def clipped_error(mean: pd.Series, half_width: pd.Series) -> np.ndarray:
-    """``(2, rows)`` error bar lengths of ``mean +- half_width`` clipped to accuracy's [0, 1]."""
+# The range each metric lives in: error bars are clipped to it.
+METRIC_RANGE = {"accuracy": (0.0, 1.0)}
+
+
+def clipped_error(mean: pd.Series, half_width: pd.Series, metric: str = "accuracy") -> np.ndarray:
+    """``(2, rows)`` error bar lengths of ``mean +- half_width`` clipped to the metric's range
+    (accuracy's [0, 1]; an error's [0, inf))."""
+    low, high = METRIC_RANGE.get(metric, (0.0, np.inf))
     half = half_width.fillna(0).to_numpy(dtype=float)
     centre = mean.to_numpy(dtype=float)
-    return np.vstack([np.minimum(half, centre), np.minimum(half, 1.0 - centre)])
+    return np.vstack([np.minimum(half, centre - low), np.minimum(half, high - centre)])
 
 
-def accuracy_vs_parameters(table: pd.DataFrame, path: Path) -> tuple[Path, pd.DataFrame]:
-    """Mean test accuracy (with its 95% interval, clipped to [0, 1]) against trainable parameters,
-    log x, one marker and colour per family and graph. Parameter-free rows (the floors) are drawn
-    as labelled horizontal lines, not at some parameter count."""
-    points = table[["family", "graph", "parameters", "test_accuracy_mean", "test_accuracy_ci95"]].dropna(subset=["test_accuracy_mean"])
+def score_label(table: pd.DataFrame) -> str:
+    """The y label of a table's metric: ``test accuracy (mean, 95% CI; higher is better)``."""
+    return f"test {table.attrs['metric']} (mean, 95% CI; {table.attrs['better']} is better)"
+
+
+def score_vs_parameters(table: pd.DataFrame, path: Path) -> tuple[Path, pd.DataFrame]:
+    """Mean test figure of the table's metric (with its 95% interval, clipped to the metric's
+    range) against trainable parameters, log x, one marker and colour per family and graph.
+    Parameter-free rows (the floors) are drawn as labelled horizontal lines, not at some
+    parameter count. The points' columns are ``mean`` and ``ci95``."""
+    metric = table.attrs["metric"]
+    points = table[["family", "graph", "parameters", f"test_{metric}_mean", f"test_{metric}_ci95"]].rename(
+        columns={f"test_{metric}_mean": "mean", f"test_{metric}_ci95": "ci95"}
+    ).dropna(subset=["mean"])
     points = points.assign(x=points["parameters"].astype(float))
     figure, axis = plt.subplots(figsize=(6, 4))
     trained = points[points["x"] > 0]
     for (family, graph), group in trained.groupby(["family", "graph"], sort=True):
         label = family if graph in ("none", "line", "cycle") and family != "graph_conv" else f"{family} on {graph}"
         axis.errorbar(
-            group["x"], group["test_accuracy_mean"], yerr=clipped_error(group["test_accuracy_mean"], group["test_accuracy_ci95"]),
+            group["x"], group["mean"], yerr=clipped_error(group["mean"], group["ci95"], metric),
             marker=marker(family), linestyle="none", capsize=3, label=label,
         )
     for family, group in points[~(points["x"] > 0)].groupby("family", sort=True):
-        axis.axhline(group["test_accuracy_mean"].mean(), linestyle="--", linewidth=1, color="grey")
-        axis.annotate(f"{family} (no parameters)", (0.01, group["test_accuracy_mean"].mean()), xycoords=("axes fraction", "data"),
+        axis.axhline(group["mean"].mean(), linestyle="--", linewidth=1, color="grey")
+        axis.annotate(f"{family} (no parameters)", (0.01, group["mean"].mean()), xycoords=("axes fraction", "data"),
                       fontsize=7, va="bottom", color="dimgrey")
     axis.set_xscale("log")
     axis.set_xlabel("trainable parameters (log)")
-    axis.set_ylabel("test accuracy (mean, 95% CI)")
+    axis.set_ylabel(score_label(table))
     axis.legend(fontsize=8)
     axis.grid(alpha=0.3)
     return _save(figure, path), points.reset_index(drop=True)
 
 
-def accuracy_vs_order(table: pd.DataFrame, path: Path) -> tuple[Path, pd.DataFrame]:
-    """Mean test accuracy against filter order, one line per (family, graph, operator)."""
-    points = table.dropna(subset=["order", "test_accuracy_mean"])[
-        ["family", "graph", "operator", "order", "test_accuracy_mean", "test_accuracy_ci95"]
-    ]
+def score_vs_order(table: pd.DataFrame, path: Path) -> tuple[Path, pd.DataFrame]:
+    """Mean test figure of the table's metric against filter order, one line per (family,
+    graph, operator). The points' columns are ``mean`` and ``ci95``."""
+    metric = table.attrs["metric"]
+    points = table.rename(columns={f"test_{metric}_mean": "mean", f"test_{metric}_ci95": "ci95"}).dropna(
+        subset=["order", "mean"]
+    )[["family", "graph", "operator", "order", "mean", "ci95"]]
     figure, axis = plt.subplots(figsize=(6, 4))
     for _, group in points.groupby(["family", "graph", "operator"], sort=True):
         group = group.sort_values("order")
         axis.errorbar(
-            group["order"].astype(float), group["test_accuracy_mean"], yerr=group["test_accuracy_ci95"].fillna(0).to_numpy(),
+            group["order"].astype(float), group["mean"], yerr=group["ci95"].fillna(0).to_numpy(),
             marker=marker(group["family"].iloc[0]), capsize=3,
             label=_label(group.iloc[0], ["family", "graph", "operator"]),
         )
     axis.set_xlabel("filter order K")
-    axis.set_ylabel("test accuracy (mean, 95% CI)")
+    axis.set_ylabel(score_label(table))
     axis.legend(fontsize=8)
     axis.grid(alpha=0.3)
     return _save(figure, path), points.reset_index(drop=True)
 
 
 def scaling(table: pd.DataFrame, path: Path) -> tuple[Path, pd.DataFrame]:
-    """Test accuracy and trainable parameters against nodes, one line per family (log x)."""
-    points = table.dropna(subset=["nodes", "test_accuracy_mean"])[
-        ["family", "nodes", "parameters", "test_accuracy_mean", "test_accuracy_ci95", "epoch_seconds_mean"]
-    ]
-    figure, (accuracy, parameters) = plt.subplots(1, 2, figsize=(10, 4))
+    """The test figure of the table's metric and trainable parameters against nodes, one line
+    per family (log x). The points' columns are ``mean`` and ``ci95``."""
+    metric = table.attrs["metric"]
+    points = table.rename(columns={f"test_{metric}_mean": "mean", f"test_{metric}_ci95": "ci95"}).dropna(
+        subset=["nodes", "mean"]
+    )[["family", "nodes", "parameters", "mean", "ci95", "epoch_seconds_mean"]]
+    figure, (score, parameters) = plt.subplots(1, 2, figsize=(10, 4))
     for family, group in points.groupby("family", sort=True):
         group = group.sort_values("nodes")
         shape = marker(family)
-        accuracy.errorbar(
-            group["nodes"].astype(float), group["test_accuracy_mean"], yerr=group["test_accuracy_ci95"].fillna(0).to_numpy(),
+        score.errorbar(
+            group["nodes"].astype(float), group["mean"], yerr=group["ci95"].fillna(0).to_numpy(),
             marker=shape, capsize=3, label=family,
         )
         parameters.plot(group["nodes"].astype(float), group["parameters"].astype(float).clip(lower=1), marker=shape, label=family)
-    for axis in (accuracy, parameters):
+    for axis in (score, parameters):
         axis.set_xscale("log")
         axis.set_xlabel("nodes (log)")
         axis.grid(alpha=0.3)
         axis.legend()
     parameters.set_yscale("log")
-    accuracy.set_ylabel("test accuracy (mean, 95% CI)")
+    score.set_ylabel(score_label(table))
     parameters.set_ylabel("trainable parameters (log)")
     return _save(figure, path), points.reset_index(drop=True)
 
@@ -126,8 +145,8 @@ def run_label(folder: Path) -> str:
 
 
 def learning_curves(folders: list[str], path: Path) -> tuple[Path, pd.DataFrame]:
-    """Training loss and validation accuracy per epoch, one line per seed of a table row,
-    labelled by seed."""
+    """Training loss and the validation figure of the task's metric (the curve's ``val_<metric>``
+    column) per epoch, one line per seed of a table row, labelled by seed."""
     curves = []
     for folder in folders:
         file = Path(folder) / CURVE_FILE
@@ -136,26 +155,29 @@ def learning_curves(folders: list[str], path: Path) -> tuple[Path, pd.DataFrame]
             if not curve.empty:
                 curves.append(curve.assign(run=run_label(Path(folder))))
     points = pd.concat(curves, ignore_index=True) if curves else pd.DataFrame(columns=["epoch", "run"])
-    figure, (loss, accuracy) = plt.subplots(1, 2, figsize=(10, 4))
+    validation = next((column for column in points.columns if column.startswith("val_") and column != "val_loss"), "val_accuracy")
+    figure, (loss, score) = plt.subplots(1, 2, figsize=(10, 4))
     for name, curve in points.groupby("run", sort=True):
         loss.plot(curve["epoch"], curve["train_loss"], label=name)
-        accuracy.plot(curve["epoch"], curve["val_accuracy"], label=name)
+        score.plot(curve["epoch"], curve[validation], label=name)
     loss.set_ylabel("training loss")
-    accuracy.set_ylabel("validation accuracy")
+    score.set_ylabel(f"validation {validation[4:]}")
     if len(points):
-        accuracy.legend(fontsize=7)
-    for axis in (loss, accuracy):
+        score.legend(fontsize=7)
+    for axis in (loss, score):
         axis.set_xlabel("epoch")
         axis.grid(alpha=0.3)
     return _save(figure, path), points
 
 
 def standard_plots(table: pd.DataFrame, out: Path) -> list[Path]:
-    """The plots a table supports: accuracy against parameters always; against order when rows
-    differ in order; the scaling plot when they differ in nodes."""
-    written = [accuracy_vs_parameters(table, out / "accuracy_vs_parameters.png")[0]]
+    """The plots a table supports: its metric against parameters always
+    (``accuracy_vs_parameters.png``, ``rmse_vs_parameters.png``); against order when rows differ
+    in order; the scaling plot when they differ in nodes."""
+    metric = table.attrs["metric"]
+    written = [score_vs_parameters(table, out / f"{metric}_vs_parameters.png")[0]]
     if table["order"].dropna().nunique() > 1:
-        written.append(accuracy_vs_order(table, out / "accuracy_vs_order.png")[0])
+        written.append(score_vs_order(table, out / f"{metric}_vs_order.png")[0])
     if table["nodes"].dropna().nunique() > 1:
         written.append(scaling(table, out / "scaling.png")[0])
     return written

@@ -24,7 +24,7 @@ class EpochProgress:
         epoch = int(row["epoch"])
         line = self.prefix + (
             f"epoch {epoch:>4}/{self.epochs}  train loss {row['train_loss']:.4f}  "
-            + ("no validation split" if row["val_accuracy"] is None else f"val accuracy {row['val_accuracy']:.3f}")
+            + self.validation(row)
         )
         if self.live:
             self.stream.write("\r" + line)
@@ -32,6 +32,12 @@ class EpochProgress:
         elif epoch == 1 or epoch % LOG_EVERY == 0:
             self.stream.write(line + "\n")
             self.stream.flush()
+
+    @staticmethod
+    def validation(row: dict[str, float]) -> str:
+        """``val <metric> <figure>`` from a curve row (``val_accuracy``, ``val_rmse``)."""
+        key = next(key for key in row if key.startswith("val_") and key != "val_loss")
+        return "no validation split" if row[key] is None else f"val {key[4:]} {row[key]:.3f}"
 
     def close(self) -> None:
         if self.live:

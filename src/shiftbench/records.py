@@ -40,8 +40,12 @@ MANIFEST_FILE = "jobs.jsonl"
 # Record fields that only some jobs have; the rest are in every record of this version.
 OPTIONAL_FIELDS = (
     "graph_name", "graph_notes", "budget", "sized_widths", "chosen", "chance_accuracy", "balanced_accuracy", "macro_f1",
-    "confusion_matrix", "flags", "resumed_from_epoch", "failed_epoch", "traceback",
+    "confusion_matrix", "train_rmse", "val_rmse", "test_rmse", "test_mae", "test_r2", "chance_rmse", "flags",
+    "resumed_from_epoch", "failed_epoch", "traceback",
 )
+# The splits whose primary-metric figure a record holds as ``<split>_<metric>``, and the chance
+# level ``chance_<metric>``; load_records also gives them task-neutral columns ``<split>_score``.
+SCORED = ("train", "val", "test", "chance")
 # Keys of the config that say where output goes, whether to recompute, how many threads compute
 # it (the record keeps the count), or how often to save progress, not what is computed.
 OUTPUT_KEYS = ("results_dir", "force", "threads")
@@ -86,7 +90,8 @@ def write_atomic(path: Path, content: str | bytes | Callable[[BinaryIO], None]) 
 @dataclass
 class Record:
     """What a job writes to ``record.json``: its config, what it used, and what it measured.
-    Figures a job did not reach (a failed job's accuracies) stay None."""
+    The task's primary metric is kept under its own name (``test_accuracy``, ``test_rmse``);
+    figures a job did not reach (a failed job's) or that its task does not have stay None."""
 
     config: dict[str, Any]
     overrides: list[str]
@@ -130,6 +135,12 @@ class Record:
     flags: list[str] | None = None
     resumed_from_epoch: int | None = None
     failed_epoch: int | None = None
+    train_rmse: float | None = None
+    val_rmse: float | None = None
+    test_rmse: float | None = None
+    test_mae: float | None = None
+    test_r2: float | None = None
+    chance_rmse: float | None = None
     traceback: str | None = None
 
     def as_dict(self) -> dict[str, Any]:
@@ -145,13 +156,13 @@ def write_record(folder: Path, record: dict[str, Any]) -> Path:
     return write_atomic(folder / RECORD_FILE, json.dumps(record, indent=2, sort_keys=False) + "\n")
 
 
-def write_curve(folder: Path, curve: list[dict[str, float]]) -> Path:
+def write_curve(folder: Path, curve: list[dict[str, float]], metric: str = "accuracy") -> Path:
+    """``curve.csv``: one row an epoch, the figures of the task's ``metric`` under its name."""
     import pandas as pd
 
     buffer = io.StringIO()
-    pd.DataFrame(curve, columns=["epoch", "train_loss", "train_accuracy", "val_loss", "val_accuracy", "seconds"]).to_csv(
-        buffer, index=False
-    )
+    columns = ["epoch", "train_loss", f"train_{metric}", "val_loss", f"val_{metric}", "seconds"]
+    pd.DataFrame(curve, columns=columns).to_csv(buffer, index=False)
     return write_atomic(folder / CURVE_FILE, buffer.getvalue())
 
 
@@ -292,4 +303,21 @@ def load_records(paths: PathLike | Iterable[PathLike]) -> pd.DataFrame:
         flat = pd.json_normalize(configs, sep=".").add_prefix("config.")
         frame = pd.concat([frame, flat.set_index(frame.index)], axis=1)
     frame.attrs["skipped"] = skipped
+    return with_scores(frame)
+
+
+def with_scores(frame: pd.DataFrame) -> pd.DataFrame:
+    """``frame`` with task-neutral columns: ``metric`` (the task's primary metric), ``better``
+    (``higher`` or ``lower``) and ``<split>_score`` for each of :data:`SCORED`, read from each
+    record's ``<split>_<metric>``."""
+    from shiftbench.registry import TASKS
+
+    # Records of version 1 name no task: they are classification's.
+    names = frame["task"] if "task" in frame else ["classification"] * len(frame)
+    tasks = [TASKS[task] if task in TASKS else TASKS["classification"] for task in names]
+    rows = frame.to_dict("records")
+    frame["metric"] = [task.metric for task in tasks]
+    frame["better"] = ["higher" if task.higher_is_better else "lower" for task in tasks]
+    for split in SCORED:
+        frame[f"{split}_score"] = [row.get(f"{split}_{task.metric}") for task, row in zip(tasks, rows)]
     return frame

@@ -43,12 +43,15 @@ class Family:
         name: the ``arch.family`` value.
         schema: its config dataclass (``__post_init__`` checks ranges with one-line errors).
         display: how tables and plots name it.
-        build: ``(arch, nodes, features, classes, shift) -> nn.Module`` for trained families.
+        build: ``(arch, nodes, features, outputs, shift, head) -> nn.Module`` for trained
+            families: ``head`` ``pooled`` maps a signal to ``outputs`` numbers (class logits),
+            ``nodes`` maps it to ``outputs`` numbers on every node.
         fit: ``(arch, dataset, seed) -> TrainingResult`` for families fitted without the loop.
-        planned_parameters: ``(arch, nodes, features, classes) -> int``, from the config alone.
-        planned_activations: ``(arch, nodes, features, classes) -> int``: the numbers one sample
-            keeps alive between its forward and backward pass (0 for families fitted without
-            the loop), for the memory check.
+        planned_parameters: ``(arch, nodes, features, outputs, head) -> int``, from the config
+            alone.
+        planned_activations: ``(arch, nodes, features, outputs, head) -> int``: the numbers one
+            sample keeps alive between its forward and backward pass (0 for families fitted
+            without the loop), for the memory check.
         width_key: the config key that ``arch.budget`` scales, or None.
         uses_graph: True when the family reads the configured graph (its shift operator).
         structure: ``(arch) -> (graph, operator)`` that the family uses when it does not read the
@@ -60,7 +63,7 @@ class Family:
     schema: type
     display: str
     planned_parameters: Callable[..., int]
-    planned_activations: Callable[..., int] = lambda arch, nodes, features, classes: 0
+    planned_activations: Callable[..., int] = lambda arch, nodes, features, outputs, head: 0
     build: Callable[..., Any] | None = None
     fit: Callable[..., Any] | None = None
     width_key: str | None = None
@@ -84,12 +87,14 @@ class GraphSource:
 
 @dataclass(frozen=True)
 class DatasetSource:
-    """A data source: ``load(config) -> Dataset``; ``schema`` is its config dataclass."""
+    """A data source: ``load(config) -> Dataset``; ``schema`` is its config dataclass;
+    ``tasks`` names the tasks its targets serve."""
 
     name: str
     schema: type
     load: Callable[..., Any]
     display: str = ""
+    tasks: tuple[str, ...] = ("classification",)
 
 
 @dataclass(frozen=True)
@@ -105,26 +110,38 @@ class Task:
     """What a job learns and how it is scored.
 
     Attributes:
-        loss: ``(outputs, targets) -> scalar tensor``, averaged over the batch.
-        correct: ``(outputs, targets) -> tensor`` of per-sample scores summed into the metric.
-        predict: ``outputs -> tensor`` of predicted targets (class indices).
+        loss: ``(outputs, targets) -> scalar tensor``, the mean over the scored targets.
+        tally: ``(outputs, targets) -> (total, count)``, float64 tensors that sum over batches
+            into the primary metric (``finish(total, count)``).
+        finish: ``(total, count) -> float``, the primary metric of summed tallies.
+        predict: ``outputs -> tensor`` of predictions (class indices, or the outputs themselves).
         judge: ``(targets, predicted, train_targets, curve) -> dict`` of the record's further
-            figures (per-class metrics, the chance level) and its ``flags`` on a suspect run.
-        metric: the primary metric's name in records (``accuracy``).
+            figures (per-class metrics or error figures, the chance level) and its ``flags`` on
+            a suspect run.
+        metric: the primary metric's name in records and tables (``accuracy``, ``rmse``).
         higher_is_better: the metric's direction.
         head: ``pooled`` (one output per signal) or ``nodes`` (one per node).
-        split_rule: how samples are split (``stratified`` keeps class shares).
+        split_rule: how samples are split (``stratified`` keeps class shares, ``random``).
     """
 
     name: str
     loss: Callable[..., Any]
-    correct: Callable[..., Any]
+    tally: Callable[..., Any]
+    finish: Callable[..., float]
     predict: Callable[..., Any]
     judge: Callable[..., dict[str, Any]]
     metric: str
     higher_is_better: bool
     head: str
     split_rule: str
+
+    def score(self, outputs: Any, targets: Any) -> float:
+        """The primary metric of ``outputs`` against ``targets`` (one tally, finished)."""
+        return self.finish(*self.tally(outputs, targets))
+
+    def better(self, value: float) -> float:
+        """``value`` signed so that larger is better (for ranking epochs and settings)."""
+        return value if self.higher_is_better else -value
 
 
 Entry = TypeVar("Entry")

@@ -12,34 +12,56 @@ import pandas as pd
 from scipy import stats
 
 from shiftbench import plots
-from shiftbench.records import FINAL_STATUSES, MANIFEST_FILE, computed_content, load_records, read_manifest, write_atomic
+from shiftbench.records import (
+    FINAL_STATUSES, MANIFEST_FILE, computed_content, load_records, read_manifest, with_scores, write_atomic,
+)
 
 # What tells settings apart, in the order tables show it.
 DESCRIBE = ["data", "nodes", "graph", "operator", "family", "order", "budget"]
-FIGURES = [
-    "parameters",
-    "test_accuracy_mean",
-    "test_accuracy_std",
-    "test_accuracy_ci95",
-    "test_accuracy_ci95_low",
-    "test_accuracy_ci95_high",
-    "seeds",
-    "train_seconds_mean",
-    "epoch_seconds_mean",
-    "failed",
-    "chance",
-    "flags",
-]
-# What the terminal and markdown tables show (the CSV holds every column).
-SHOWN = ["parameters", "test_accuracy_mean", "test_accuracy_ci95", "seeds", "train_seconds_mean", "failed", "flags"]
-HEADERS = {
-    "test_accuracy_mean": "test acc",
-    "test_accuracy_std": "± std",
-    "test_accuracy_ci95": "± 95% CI",
-    "train_seconds_mean": "train s",
-    "epoch_seconds_mean": "s/epoch",
-    "chance": "chance acc",
-}
+# The figures of a table whose records are scored by ``metric`` (accuracy, rmse): the test
+# figures are named for it (``test_accuracy_mean``, ``test_rmse_mean``).
+SCORE_SUFFIXES = ("mean", "std", "ci95", "ci95_low", "ci95_high")
+
+
+def figure_columns(metric: str) -> list[str]:
+    """Every figure column of a table scored by ``metric``, in the CSV's order."""
+    return ["parameters", *(f"test_{metric}_{suffix}" for suffix in SCORE_SUFFIXES), "seeds", "train_seconds_mean",
+            "epoch_seconds_mean", "failed", "chance", "flags"]
+
+
+def shown_columns(metric: str) -> list[str]:
+    """What the terminal and markdown tables show (the CSV holds every column)."""
+    return ["parameters", f"test_{metric}_mean", f"test_{metric}_ci95", "seeds", "train_seconds_mean", "failed", "flags"]
+
+
+# Short names of metrics in headers, and the arrow that says which way is better.
+SHORT = {"accuracy": "acc"}
+ARROW = {"higher": "↑", "lower": "↓"}
+
+
+def headers(metric: str, better: str) -> dict[str, str]:
+    """Column headers: the metric and its direction (``test acc ↑``, ``test rmse ↓``)."""
+    short = SHORT.get(metric, metric)
+    return {
+        f"test_{metric}_mean": f"test {short} {ARROW[better]}",
+        f"test_{metric}_std": "± std",
+        f"test_{metric}_ci95": "± 95% CI",
+        "train_seconds_mean": "train s",
+        "epoch_seconds_mean": "s/epoch",
+        "chance": f"chance {short}",
+    }
+
+
+def table_metric(records: pd.DataFrame) -> tuple[str, str]:
+    """The one metric the records are scored by and its direction (``higher``/``lower``);
+    ValueError when they mix tasks of different metrics."""
+    metrics = sorted(set(records["metric"]))
+    if len(metrics) > 1:
+        raise ValueError(
+            f"records scored by {' and '.join(metrics)} cannot share one table; "
+            "accepted: records of one task (select with --where task=NAME)"
+        )
+    return metrics[0], str(records["better"].iloc[0])
 # What a record's flags say in a table row ("2 of 5 seeds at chance").
 FLAG_TEXT = {"at_chance": "at chance", "loss_never_fell": "loss never fell"}
 CONFIDENCE = 0.95
@@ -81,7 +103,7 @@ def setting_of(record: pd.Series, flat: dict[str, str], ignored: set[str]) -> st
 
 
 # Config keys the describing fields already show (or that tell seeds and splits apart).
-DESCRIBED_KEYS = {"seed", "split", "data.source", "data.name", "graph.source", "graph.operator", "arch.family",
+DESCRIBED_KEYS = {"seed", "split", "data.source", "data.name", "data.nodes", "graph.source", "graph.operator", "arch.family",
                   "arch.order", "arch.budget"}
 
 
@@ -147,17 +169,20 @@ def summary_table(records: pd.DataFrame, by: Iterable[str] = ()) -> pd.DataFrame
     Columns: the describing fields (``data, nodes, graph, operator, family, order, budget``),
     every other config key whose value differs between records (named by its dotted key, such
     as ``arch.readout`` or ``train.lr``; ``-`` where a record's config lacks it),
-    ``parameters`` (median over completed jobs), ``test_accuracy_mean`` and ``_std`` (sample
-    standard deviation), the 95% Student t interval of the mean (``_ci95_low``, ``_ci95_high``
+    ``parameters`` (median over completed jobs), ``test_<metric>_mean`` and ``_std`` (sample
+    standard deviation; the metric is the records' task's: ``test_accuracy_mean``,
+    ``test_rmse_mean``), the 95% Student t interval of the mean (``_ci95_low``, ``_ci95_high``
     and half-width ``_ci95``), ``seeds`` (completed jobs), ``train_seconds_mean``,
-    ``epoch_seconds_mean``, ``failed`` (failed jobs), ``chance`` (the majority-class rate on the
-    test split), ``flags`` (``2 of 5 seeds at chance``: suspect runs, kept in the figures) and
+    ``epoch_seconds_mean``, ``failed`` (failed jobs), ``chance`` (the task's floor on the test
+    split: the majority-class rate, the RMSE of predicting the training mean), ``flags`` (``2 of 5 seeds at chance``: suspect runs, kept in the figures) and
     ``paths`` (the records' folders). ``graph`` names the graph a native or file source stood for.
-    Rows are sorted by ``by`` (default: the describing fields).
+    Rows are sorted by ``by`` (default: the describing fields). ``attrs`` holds ``varied``,
+    ``metric`` and ``better``.
     """
-    frame = records.copy()
-    for column in [*DESCRIBE, "parameters", "test_accuracy", "train_seconds", "epochs_run", "path", "graph_name",
-                   "chance_accuracy", "flags"]:
+    frame = records.copy() if "metric" in records else with_scores(records.copy())
+    metric, better = table_metric(frame)
+    for column in [*DESCRIBE, "parameters", "test_score", "train_seconds", "epochs_run", "path", "graph_name",
+                   "chance_score", "flags"]:
         if column not in frame:
             frame[column] = float("nan")
     varied, configs, following = varied_keys(frame)
@@ -170,7 +195,7 @@ def summary_table(records: pd.DataFrame, by: Iterable[str] = ()) -> pd.DataFrame
     completed = frame["status"].isin(FINAL_STATUSES)
     frame["completed"] = completed
     frame["is_failed"] = ~completed
-    for column in ("parameters", "test_accuracy", "train_seconds"):
+    for column in ("parameters", "test_score", "train_seconds"):
         frame[column] = pd.to_numeric(frame[column].where(completed), errors="coerce")
     frame["epoch_seconds"] = frame["train_seconds"] / pd.to_numeric(frame["epochs_run"], errors="coerce")
     table = (
@@ -178,13 +203,13 @@ def summary_table(records: pd.DataFrame, by: Iterable[str] = ()) -> pd.DataFrame
         .agg(
             **{column: (column, "first") for column in [*DESCRIBE, *varied]},
             parameters=("parameters", "median"),
-            test_accuracy_mean=("test_accuracy", "mean"),
-            test_accuracy_std=("test_accuracy", "std"),
+            score_mean=("test_score", "mean"),
+            score_std=("test_score", "std"),
             seeds=("completed", "sum"),
             train_seconds_mean=("train_seconds", "mean"),
             epoch_seconds_mean=("epoch_seconds", "mean"),
             failed=("is_failed", "sum"),
-            chance=("chance_accuracy", "mean"),
+            chance=("chance_score", "mean"),
             flag_lists=("flags", list),
             paths=("path", lambda paths: [p for p in paths if isinstance(p, str)]),
         )
@@ -194,19 +219,22 @@ def summary_table(records: pd.DataFrame, by: Iterable[str] = ()) -> pd.DataFrame
     for column in INTEGER_COLUMNS:
         table[column] = pd.to_numeric(table[column], errors="coerce").round().astype("Int64")
     intervals = [
-        t_interval(mean, std, int(count))
-        for mean, std, count in zip(table["test_accuracy_mean"], table["test_accuracy_std"], table["seeds"])
+        t_interval(mean, std, int(count)) for mean, std, count in zip(table["score_mean"], table["score_std"], table["seeds"])
     ]
-    table["test_accuracy_ci95_low"] = [low for low, _ in intervals]
-    table["test_accuracy_ci95_high"] = [high for _, high in intervals]
-    table["test_accuracy_ci95"] = (table["test_accuracy_ci95_high"] - table["test_accuracy_ci95_low"]) / 2
+    score = f"test_{metric}"
+    table = table.rename(columns={"score_mean": f"{score}_mean", "score_std": f"{score}_std"})
+    table[f"{score}_ci95_low"] = [low for low, _ in intervals]
+    table[f"{score}_ci95_high"] = [high for _, high in intervals]
+    table[f"{score}_ci95"] = (table[f"{score}_ci95_high"] - table[f"{score}_ci95_low"]) / 2
     order = list(by) or [*DESCRIBE, *varied]
+    figures = figure_columns(metric)
     unknown = [column for column in order if column not in table.columns]
     if unknown:
-        raise ValueError(f"--by {unknown[0]!r} is not accepted; accepted: {', '.join(DESCRIBE + varied + FIGURES)}")
+        raise ValueError(f"--by {unknown[0]!r} is not accepted; accepted: {', '.join(DESCRIBE + varied + figures)}")
     table = table.sort_values(order, na_position="last", kind="stable").reset_index(drop=True)
-    table.attrs["varied"] = varied
-    return table[[*DESCRIBE, *varied, *FIGURES, "paths"]]
+    table = table[[*DESCRIBE, *varied, *figures, "paths"]]
+    table.attrs.update(varied=varied, metric=metric, better=better)
+    return table
 
 
 # Figures that, when equal in every row (all seeds done, none failed), are said once instead.
@@ -227,18 +255,20 @@ def split_constants(table: pd.DataFrame) -> tuple[dict[str, str], pd.DataFrame]:
             if not pd.isna(value):  # a field no row has is not worth a word
                 constants[column] = str(value)
     varied = table.attrs.get("varied", [])
-    return constants, table[[column for column in [*DESCRIBE, *varied, *SHOWN] if column not in single]]
+    shown = table[[column for column in [*DESCRIBE, *varied, *shown_columns(table.attrs["metric"])] if column not in single]]
+    shown.attrs.update(table.attrs)
+    return constants, shown
 
 
 def _cells(table: pd.DataFrame) -> list[list[str]]:
-    """Every value of ``table`` as display text (accuracies to 3 places, seconds to 1)."""
+    """Every value of ``table`` as display text (figures of the metric to 3 places, seconds to 1)."""
 
     def show(column: str, value: object) -> str:
         if isinstance(value, (list, tuple)):
             return ", ".join(map(str, value))
         if pd.isna(value):
             return "-"
-        if column.startswith("test_accuracy") or column == "chance":
+        if column.startswith("test_") or column == "chance":
             return f"{value:.3f}"
         if column.endswith("seconds_mean"):
             return f"{value:.1f}" if column.startswith("train") else f"{value:.3f}"
@@ -253,23 +283,28 @@ def _numeric(table: pd.DataFrame) -> list[bool]:
     return [pd.api.types.is_numeric_dtype(table[column]) for column in table.columns]
 
 
+def column_headers(table: pd.DataFrame) -> list[str]:
+    """The header of each column of a table that :func:`summary_table` made."""
+    named = headers(table.attrs["metric"], table.attrs["better"])
+    return [named.get(column, column) for column in table.columns]
+
+
 def format_markdown(table: pd.DataFrame) -> str:
-    headers = [HEADERS.get(column, column) for column in table.columns]
-    lines = ["| " + " | ".join(headers) + " |", "|" + "".join(" ---: |" if n else " --- |" for n in _numeric(table))]
+    lines = ["| " + " | ".join(column_headers(table)) + " |", "|" + "".join(" ---: |" if n else " --- |" for n in _numeric(table))]
     lines += ["| " + " | ".join(row) + " |" for row in _cells(table)]
     return "\n".join(lines) + "\n"
 
 
 def format_terminal(table: pd.DataFrame) -> str:
-    headers = ["row", *(HEADERS.get(column, column) for column in table.columns)]
+    titles = ["row", *column_headers(table)]
     rows = [[str(number), *cells] for number, cells in enumerate(_cells(table))]
-    widths = [max(len(text) for text in column) for column in zip(headers, *rows)]
+    widths = [max(len(text) for text in column) for column in zip(titles, *rows)]
     numeric = [True, *_numeric(table)]
 
     def line(texts: list[str]) -> str:
         return "  ".join(t.rjust(w) if n else t.ljust(w) for t, w, n in zip(texts, widths, numeric)).rstrip()
 
-    return "\n".join([line(headers), line(["-" * w for w in widths]), *map(line, rows)])
+    return "\n".join([line(titles), line(["-" * w for w in widths]), *map(line, rows)])
 
 
 OUTCOMES = ("trained", "resumed", "skipped", "claimed", "failed")
@@ -291,7 +326,8 @@ def launch_outcomes(paths: Iterable[Path]) -> dict[str, int]:
 
 
 # A family's best row is "near chance" when it closes less than this share of the gap between
-# chance and a perfect score, while another family's best closes at least WELL_ABOVE of it.
+# chance and a perfect score (accuracy 1, error 0), while another family's best closes at least
+# WELL_ABOVE of it.
 NEAR_CHANCE, WELL_ABOVE = 0.1, 0.3
 
 
@@ -306,12 +342,16 @@ def near_chance_notes(table: pd.DataFrame, configs: dict[str, dict[str, str]]) -
     Args:
         configs: each row's flat config (``dotted.key -> value``) by the row's first path.
     """
-    scored = table.dropna(subset=["test_accuracy_mean", "chance"])
+    mean = f"test_{table.attrs['metric']}_mean"
+    scored = table.dropna(subset=[mean, "chance"]).copy()
     if scored.empty:
         return []
-    best = scored.loc[scored.groupby("family")["test_accuracy_mean"].idxmax()]
-    gap = lambda row: (row["test_accuracy_mean"] - row["chance"]) / max(1 - row["chance"], 1e-9)
-    leader = best.loc[best["test_accuracy_mean"].idxmax()]
+    higher = table.attrs["better"] == "higher"
+    scored["rank"] = scored[mean] if higher else -scored[mean]
+    best = scored.loc[scored.groupby("family")["rank"].idxmax()]
+    perfect = 1.0 if higher else 0.0
+    gap = lambda row: (row[mean] - row["chance"]) / (perfect - row["chance"] if abs(perfect - row["chance"]) > 1e-9 else 1e-9)
+    leader = best.loc[best["rank"].idxmax()]
     if gap(leader) < WELL_ABOVE:
         return []
     notes = []
@@ -326,8 +366,8 @@ def near_chance_notes(table: pd.DataFrame, configs: dict[str, dict[str, str]]) -
             hint = (f"; a pooled readout ({mine['arch.readout']}) keeps no trace of where on the graph a signal "
                     "lies: try arch.readout=flatten, or let shiftbench-decide choose it")
         notes.append(
-            f"{row['family']}'s best row scores {row['test_accuracy_mean']:.3f}, near chance ({row['chance']:.3f}), "
-            f"while {leader['family']} reaches {leader['test_accuracy_mean']:.3f}; that {row['family']} row differs "
+            f"{row['family']}'s best row scores {row[mean]:.3f}, near chance ({row['chance']:.3f}), "
+            f"while {leader['family']} reaches {leader[mean]:.3f}; that {row['family']} row differs "
             f"in {', '.join(differ[:8]) or 'no config key'}{hint}"
         )
     return notes

@@ -12,6 +12,7 @@ from __future__ import annotations
 import json
 import os
 import socket
+import sys
 import time
 from pathlib import Path
 from typing import Any
@@ -52,14 +53,22 @@ def read_progress(path: Path) -> tuple[dict[str, Any], list[dict[str, Any]]]:
     return lines[0], lines[1:]
 
 
+def say(line: str) -> None:
+    """Print ``line`` in one write: parallel jobs share the terminal, and an unbuffered
+    ``print`` writes the text and its newline apart, so another process's line could land
+    between them."""
+    sys.stdout.write(line + "\n")
+    sys.stdout.flush()
+
+
 def job_line(header: dict[str, Any], finished: list[dict[str, Any]], now: float) -> str:
-    """``[k/n] family on data: test accuracy (status), elapsed, left`` for the latest job, as
+    """``[k/n] family on data: test <metric> (status), elapsed, left`` for the latest job, as
     of the time it finished (``now`` for an entry that does not say)."""
     latest, count = finished[-1], len(finished)
     elapsed = latest.get("finished_at", now) - header["started"]
     left = elapsed / count * max(header["total"] - count, 0)
-    accuracy = latest.get("test_accuracy")
-    result = f"test accuracy {accuracy:.3f}" if accuracy is not None else latest["status"]
+    metric, figure = latest.get("metric", "accuracy"), latest.get("test_score")
+    result = f"test {metric} {figure:.3f}" if figure is not None else latest["status"]
     return (
         f"[{count}/{header['total']}] {latest.get('family')} on {latest.get('data')}: {result} "
         f"({latest['status']}), elapsed {format_seconds(elapsed)}, left ~{format_seconds(left)}"
@@ -119,7 +128,7 @@ class SweepProgress(Callback):
         append_line(path, {**outcome, "status": status, "finished_at": time.time()})
         header, finished = read_progress(path)
         if "total" in header:  # a worker that did not inherit the sweep's file has no header
-            print(job_line(header, finished, time.time()), flush=True)
+            say(job_line(header, finished, time.time()))
 
     def on_multirun_end(self, config: DictConfig, **kwargs: Any) -> None:
         path = self._path(config)
@@ -129,6 +138,6 @@ class SweepProgress(Callback):
         if "submitit" in str(config.hydra.launcher.get("_target_", "")):
             # submitit jobs print into their own log files: their lines are shown here, in order.
             for count in range(1, len(finished) + 1):
-                print(job_line(header, finished[:count], time.time()), flush=True)
-        print(tally_line(header, finished, time.time()), flush=True)
+                say(job_line(header, finished[:count], time.time()))
+        say(tally_line(header, finished, time.time()))
         path.unlink(missing_ok=True)

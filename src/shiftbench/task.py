@@ -1,5 +1,11 @@
-"""Tasks: what a job learns and how it is scored. Whole-signal classification is the one task
-so far; the loop, records and reports read the loss, metric and judgement from here."""
+"""Tasks: what a job learns and how it is scored. The loop, records and reports read the loss,
+the primary metric (its name and direction) and the judgement of a run from here.
+
+- ``classification``: one class per signal; cross-entropy, accuracy.
+- ``node_regression``: a value (or several) on every node; mean squared error over the scored
+  entries, RMSE. Entries that are not targets (a sensor that is not masked, an unobserved node)
+  hold NaN and are left out of the loss and of every figure.
+"""
 
 from __future__ import annotations
 
@@ -18,11 +24,38 @@ def predicted_classes(logits: torch.Tensor) -> torch.Tensor:
     return logits.argmax(dim=1)
 
 
-def correct_classes(logits: torch.Tensor, labels: torch.Tensor) -> torch.Tensor:
-    """1 where the highest logit is the label, else 0.
+def tally_correct(logits: torch.Tensor, labels: torch.Tensor) -> tuple[torch.Tensor, torch.Tensor]:
+    """``(correct, samples)``: how many highest logits are the label, out of how many.
 
-    Shapes: logits ``(batch, classes)``, labels ``(batch,)`` -> ``(batch,)``."""
-    return (predicted_classes(logits) == labels).long()
+    Shapes: logits ``(batch, classes)``, labels ``(batch,)`` -> two float64 scalars."""
+    correct = (predicted_classes(logits) == labels).sum().double()
+    return correct, torch.tensor(float(len(labels)), dtype=torch.float64, device=logits.device)
+
+
+def share(total: torch.Tensor, count: torch.Tensor) -> float:
+    """``total / count``: accuracy from summed tallies."""
+    return float(total / count)
+
+
+def masked_squared_error(outputs: torch.Tensor, targets: torch.Tensor) -> torch.Tensor:
+    """``mean over scored entries of (outputs - targets)^2``, the entries where ``targets`` is
+    not NaN. Shapes: ``(batch, nodes, outputs)`` both -> scalar."""
+    scored = ~torch.isnan(targets)
+    return ((outputs - targets)[scored] ** 2).mean()
+
+
+def tally_squared_error(outputs: torch.Tensor, targets: torch.Tensor) -> tuple[torch.Tensor, torch.Tensor]:
+    """``(sum of squared errors, scored entries)`` over the entries where ``targets`` is not NaN.
+
+    Shapes: ``(batch, nodes, outputs)`` both -> two float64 scalars."""
+    scored = ~torch.isnan(targets)
+    errors = (outputs - targets)[scored].double()
+    return (errors**2).sum(), scored.sum().double()
+
+
+def root_mean(total: torch.Tensor, count: torch.Tensor) -> float:
+    """``sqrt(total / count)``: RMSE from summed squared errors."""
+    return float(torch.sqrt(total / count))
 
 
 def chance_accuracy(train_labels: np.ndarray, labels: np.ndarray) -> float:
@@ -46,8 +79,7 @@ def judge_classification(
     flags = []
     if float((predicted == labels).mean()) <= chance:
         flags.append("at_chance")
-    losses = [row["train_loss"] for row in curve]
-    if len(losses) >= 2 and min(losses[1:]) >= losses[0]:
+    if loss_never_fell(curve):
         flags.append("loss_never_fell")
     with warnings.catch_warnings():  # a class never predicted is scored as it comes
         warnings.simplefilter("ignore")
@@ -61,16 +93,68 @@ def judge_classification(
     }
 
 
+def loss_never_fell(curve: list[dict[str, float]]) -> bool:
+    """No epoch's training loss below the first epoch's (with two epochs or more)."""
+    losses = [row["train_loss"] for row in curve]
+    return len(losses) >= 2 and min(losses[1:]) >= losses[0]
+
+
+def judge_node_regression(
+    targets: np.ndarray, predicted: np.ndarray, train_targets: np.ndarray, curve: list[dict[str, float]]
+) -> dict[str, Any]:
+    """Error figures of the test predictions on the scored entries (scikit-learn's RMSE, MAE and
+    R^2 over all scored entries pooled), the chance level ``chance_rmse`` (the RMSE of predicting
+    each node's training mean: the mean-prediction floor) and flags: ``at_chance`` (test RMSE at
+    or above that floor) and ``loss_never_fell``.
+
+    Shapes: targets and predicted ``(samples, nodes, outputs)``; train_targets
+    ``(train samples, nodes, outputs)``; NaN targets are not scored."""
+    from sklearn.metrics import mean_absolute_error, mean_squared_error, r2_score
+
+    scored = ~np.isnan(targets)
+    truth, guess = targets[scored], predicted[scored]
+    with warnings.catch_warnings():  # a node never scored in training takes the overall mean
+        warnings.simplefilter("ignore", RuntimeWarning)
+        means = np.nanmean(train_targets, axis=0)
+    means = np.where(np.isnan(means), np.nanmean(train_targets), means)
+    floor = np.broadcast_to(means, targets.shape)[scored]
+    rmse = float(np.sqrt(mean_squared_error(truth, guess)))
+    chance = float(np.sqrt(mean_squared_error(truth, floor)))
+    flags = ["at_chance"] * (rmse >= chance) + ["loss_never_fell"] * loss_never_fell(curve)
+    return {
+        "chance_rmse": chance,
+        "test_mae": float(mean_absolute_error(truth, guess)),
+        "test_r2": float(r2_score(truth, guess)),
+        "flags": flags,
+    }
+
+
 CLASSIFICATION = TASKS.add(
     Task(
         name="classification",
         loss=nn.functional.cross_entropy,
-        correct=correct_classes,
+        tally=tally_correct,
+        finish=share,
         predict=predicted_classes,
         judge=judge_classification,
         metric="accuracy",
         higher_is_better=True,
         head="pooled",
         split_rule="stratified",
+    )
+)
+
+NODE_REGRESSION = TASKS.add(
+    Task(
+        name="node_regression",
+        loss=masked_squared_error,
+        tally=tally_squared_error,
+        finish=root_mean,
+        predict=lambda outputs: outputs,
+        judge=judge_node_regression,
+        metric="rmse",
+        higher_is_better=False,
+        head="nodes",
+        split_rule="random",
     )
 )

@@ -85,47 +85,51 @@ def outputs_of(model: nn.Module, signals: torch.Tensor, batch_size: int) -> torc
     return torch.cat([model(signals[start : start + batch_size]) for start in range(0, len(signals), batch_size)])
 
 
-def scores(outputs: torch.Tensor, labels: torch.Tensor, task: Task = CLASSIFICATION) -> tuple[float, float]:
-    """Mean loss and mean metric (accuracy) of ``outputs`` against ``labels``.
+def scores(outputs: torch.Tensor, targets: torch.Tensor, task: Task = CLASSIFICATION) -> tuple[float, float]:
+    """Mean loss and the task's primary metric of ``outputs`` against ``targets``.
 
-    Shapes: outputs ``(samples, outputs)``, labels ``(samples,)``."""
-    return task.loss(outputs, labels, reduction="sum").item() / len(labels), int(task.correct(outputs, labels).sum()) / len(labels)
+    Shapes: outputs ``(samples, classes)`` and targets ``(samples,)`` for a whole-signal task;
+    both ``(samples, nodes, outputs)`` for a node task."""
+    return task.loss(outputs, targets).item(), task.score(outputs, targets)
 
 
 def evaluate(
     model: nn.Module, signals: torch.Tensor, labels: torch.Tensor, batch_size: int, task: Task = CLASSIFICATION
 ) -> tuple[float, float]:
-    """Mean loss and mean metric (accuracy) of ``model`` in eval mode.
+    """Mean loss and the task's primary metric of ``model`` in eval mode.
 
     Args:
-        signals: ``(samples, nodes, features)``; labels: ``(samples,)``.
+        signals: ``(samples, nodes, features)``; labels: the task's targets for them.
     """
     return scores(outputs_of(model, signals, batch_size), labels, task)
 
 
-# What each ``train.keep`` ranks an epoch by (larger is better); ``last`` ranks later epochs higher.
-CRITERIA: dict[str, Callable[[dict[str, Any]], tuple[float, ...]]] = {
-    "best_val": lambda row: (row["val_accuracy"], -row["val_loss"]),
-    "lowest_train_loss": lambda row: (-row["train_loss"],),
-    "last": lambda row: (row["epoch"],),
+# What each ``train.keep`` ranks an epoch by (larger is better) for a task; ``last`` ranks later
+# epochs higher.
+CRITERIA: dict[str, Callable[[dict[str, Any], Task], tuple[float, ...]]] = {
+    "best_val": lambda row, task: (task.better(row[f"val_{task.metric}"]), -row["val_loss"]),
+    "lowest_train_loss": lambda row, task: (-row["train_loss"],),
+    "last": lambda row, task: (row["epoch"],),
 }
 
 
 @dataclass
 class EarlyStopping:
     """The best epoch so far by the criterion ``keep`` names (see :data:`CRITERIA`; for
-    ``best_val``, higher validation accuracy, ties broken by lower validation loss) and its
-    weights. Training stops after ``patience`` epochs without improvement (``patience`` 0: never)."""
+    ``best_val``, a better validation figure of the task's metric, ties broken by lower validation
+    loss) and its weights. Training stops after ``patience`` epochs without improvement
+    (``patience`` 0: never)."""
 
     patience: int
     keep: str = "best_val"
+    task: Task = CLASSIFICATION
     best: tuple[float, ...] = ()
     best_state: dict[str, Any] = field(default_factory=dict)
     best_epoch: int = 0
 
     def update(self, row: dict[str, Any], model: nn.Module) -> bool:
         """Note an epoch's curve row; True when it improves on the best."""
-        rank = CRITERIA[self.keep](row)
+        rank = CRITERIA[self.keep](row, self.task)
         improved = not self.best or rank > self.best
         if improved:
             self.best, self.best_state, self.best_epoch = rank, copy.deepcopy(model.state_dict()), int(row["epoch"])
@@ -211,7 +215,7 @@ def run_epoch(
     device = train_x.device
     # Sums stay on the device during the epoch: one read at its end, not one per step.
     loss_sum = torch.zeros((), dtype=torch.float64, device=device)
-    correct = torch.zeros((), dtype=torch.long, device=device)
+    tallied = torch.zeros(2, dtype=torch.float64, device=device)
     for batch in torch.randperm(len(train_y), generator=order_generator).split(config.batch_size):
         batch = batch.to(device)
         outputs = model(train_x[batch])
@@ -220,10 +224,10 @@ def run_epoch(
         loss.backward()
         optimizer.step()
         loss_sum += loss.detach().double() * len(batch)
-        correct += task.correct(outputs, train_y[batch]).sum()
+        tallied += torch.stack(task.tally(outputs.detach(), train_y[batch]))
         if out_of_time():
             return float("nan"), float("nan"), True
-    return loss_sum.item() / len(train_y), correct.item() / len(train_y), False
+    return loss_sum.item() / len(train_y), task.finish(tallied[0], tallied[1]), False
 
 
 def train(
@@ -237,7 +241,7 @@ def train(
     task: Task = CLASSIFICATION,
 ) -> TrainingResult:
     """Train ``model`` on ``dataset``'s training split with the task's loss, stop when the
-    criterion ``config.keep`` names (validation accuracy by default) has not improved for
+    criterion ``config.keep`` names (the validation figure of the task's metric by default) has not improved for
     ``config.patience`` epochs (see :class:`EarlyStopping`) or when ``config.max_seconds`` have
     passed, restore the kept weights and measure every split. Without a validation split its
     figures are None.
@@ -260,7 +264,7 @@ def train(
     config = replace(config, batch_size=batch_size_for(config, len(train_y)), batch_fraction=None)
     optimizer = make_optimizer(model, config)
     state = LoopState(
-        EarlyStopping(config.patience, config.keep, best_state=copy.deepcopy(model.state_dict())),
+        EarlyStopping(config.patience, config.keep, task, best_state=copy.deepcopy(model.state_dict())),
         torch.Generator().manual_seed(seed),
         make_schedule(optimizer, config),
     )
@@ -284,15 +288,15 @@ def train(
             break
         if not math.isfinite(train_loss):
             raise TrainingDiverged(f"the training loss became {train_loss} in epoch {epoch}", epoch)
-        val_loss, val_accuracy = evaluate(model, val_x, val_y, config.batch_size, task) if len(val_y) else (None, None)
+        val_loss, val_metric = evaluate(model, val_x, val_y, config.batch_size, task) if len(val_y) else (None, None)
         if state.schedule is not None:
             state.schedule.step(train_loss)
         row = {
             "epoch": epoch,
             "train_loss": train_loss,
-            "train_accuracy": train_metric,
+            f"train_{task.metric}": train_metric,
             "val_loss": val_loss,
-            "val_accuracy": val_accuracy,
+            f"val_{task.metric}": val_metric,
             "seconds": time.perf_counter() - epoch_started,
         }
         state.curve.append(row)
@@ -311,26 +315,26 @@ def final_result(
     config: TrainConfig, task: Task, state: LoopState, train_seconds: float, status: str,
 ) -> TrainingResult:
     """Restore the kept weights and measure the training and test splits (and the time a test
-    sample takes to predict); the validation accuracy is the kept epoch's (None without a
+    sample takes to predict); the validation figure is the kept epoch's (None without a
     validation split)."""
     model.load_state_dict(state.stopping.best_state)
     train_x, train_y = signals[split["train"]], labels[split["train"]]
-    _, train_accuracy = evaluate(model, train_x, train_y, config.batch_size, task)
+    _, train_score = evaluate(model, train_x, train_y, config.batch_size, task)
     predicting = time.perf_counter()
     test_outputs = outputs_of(model, signals[split["test"]], config.batch_size)
     inference = (time.perf_counter() - predicting) / max(len(split["test"]), 1)
-    test_loss, test_accuracy = scores(test_outputs, labels[split["test"]], task)
+    test_loss, test_score = scores(test_outputs, labels[split["test"]], task)
     curve = state.curve
     if not len(split["val"]):
-        val_accuracy = None
+        val_score = None
     elif curve:
-        val_accuracy = curve[state.stopping.best_epoch - 1]["val_accuracy"]
+        val_score = curve[state.stopping.best_epoch - 1][f"val_{task.metric}"]
     else:
-        val_accuracy = evaluate(model, signals[split["val"]], labels[split["val"]], config.batch_size, task)[1]
+        val_score = evaluate(model, signals[split["val"]], labels[split["val"]], config.batch_size, task)[1]
     return TrainingResult(
-        train_accuracy=train_accuracy,
-        val_accuracy=val_accuracy,
-        test_accuracy=test_accuracy,
+        train_score=train_score,
+        val_score=val_score,
+        test_score=test_score,
         test_loss=test_loss,
         best_epoch=state.stopping.best_epoch,
         epochs_run=len(curve),

@@ -10,16 +10,17 @@ import numpy as np
 
 @dataclass
 class TrainingResult:
-    """What a finished training run measured. ``curve`` holds one dict per epoch with keys
-    ``epoch, train_loss, train_accuracy, val_loss, val_accuracy, seconds``. Figures that a
+    """What a finished training run measured: ``*_score`` are the task's primary metric
+    (accuracy, RMSE) on each split. ``curve`` holds one dict per epoch with keys
+    ``epoch, train_loss, train_<metric>, val_loss, val_<metric>, seconds``. Figures that a
     family does not have (the 1-NN floor has no loss and no epochs) are None. ``chosen`` holds the
     setting a self-tuning floor picked on the validation split. ``test_predictions`` holds the
-    predicted class of each test sample (in the order of the split's indices), ``weights`` the
+    prediction for each test sample (a class, or the outputs) (in the order of the split's indices), ``weights`` the
     trained network's final ``state_dict`` as numpy arrays (None for the floors)."""
 
-    train_accuracy: float
-    val_accuracy: float
-    test_accuracy: float
+    train_score: float
+    val_score: float | None
+    test_score: float
     test_loss: float | None
     best_epoch: int | None
     epochs_run: int | None

@@ -45,8 +45,8 @@ class StarConfig(GraphConfig):
 
 FAMILIES.add(Family(
     name="toy_mean", schema=ToyConfig, display="toy",
-    planned_parameters=lambda arch, nodes, features, classes: (features + 1) * classes,
-    build=lambda arch, nodes, features, classes, shift: NodeMean(features, classes),
+    planned_parameters=lambda arch, nodes, features, outputs, head: (features + 1) * outputs,
+    build=lambda arch, nodes, features, outputs, shift, head: NodeMean(features, outputs),
 ))
 GRAPH_SOURCES.add(GraphSource(
     "star", StarConfig, lambda config, dataset: Graph.from_networkx(nx.star_graph(dataset.nodes - 1), name="star")

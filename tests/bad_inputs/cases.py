@@ -124,7 +124,7 @@ CONFIG_CASES: list[tuple[list[str], str]] = [
     (["data.nodes=1"], "data.nodes=1 is not accepted; accepted: an integer >= 2"),
     (["seed=-1"], "seed=-1 is not accepted; accepted: an integer >= 0"),
     (["arch.channels=[]"], "arch.channels=[] is not accepted; accepted: a non-empty list of integers >= 1"),
-    (["arch.readout=sum"], "arch.readout='sum' is not accepted; accepted: one of mean, max, flatten"),
+    (["arch.readout=sum"], "arch.readout='sum' is not accepted; accepted: one of mean, max, flatten, node"),
     (["arch=line_conv", "arch.boundary=reflect"], "arch.boundary='reflect' is not accepted; accepted: one of zero, circular"),
     (["data.val_fraction=0.9"], "data.test_fraction=0.2 is not accepted; accepted: a fraction below 0.1 "
                                 "(val_fraction + test_fraction < 1)"),

@@ -31,7 +31,7 @@ def test_nearest_reproduces_the_archive_1nn_euclidean_error(name, published_erro
     # Source: the UCR Time Series Archive 2018, DataSummary table, column "ED (w=0)"
     # (Dau et al. 2019, "The UCR time series archive", IEEE/CAA J. Autom. Sinica 6(6)).
     result = fit_nearest(ucr(name))
-    assert round(1.0 - result.test_accuracy, 4) == published_error
+    assert round(1.0 - result.test_score, 4) == published_error
 
 
 @pytest.mark.parametrize(
@@ -84,7 +84,7 @@ def test_val_fraction_zero_fits_on_the_whole_archive_train_split(tmp_path):
     assert len(dataset.splits.train) == 50 and len(dataset.splits.val) == 0
     seed_everything(0)
     result = train(build_model(run.arch, dataset.nodes, dataset.features, dataset.classes, None), dataset, run.train, 0)
-    assert result.val_accuracy is None and result.best_epoch == result.epochs_run == 3
+    assert result.val_score is None and result.best_epoch == result.epochs_run == 3
 
 
 # Source for the published means: Fawaz et al. 2019, "Deep learning for time series
@@ -112,5 +112,5 @@ def test_the_presets_match_the_published_mean_accuracy_within_five_points(tmp_pa
         torch.set_num_threads(run.threads)  # as a job computes (the thread count changes float sums)
         seed_everything(seed)
         model = build_model(run.arch, dataset.nodes, dataset.features, dataset.classes, shift=None)
-        accuracies.append(train(model, dataset, run.train, seed=seed).test_accuracy)
+        accuracies.append(train(model, dataset, run.train, seed=seed).test_score)
     assert abs(np.mean(accuracies) - published) <= 0.05

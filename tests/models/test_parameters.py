@@ -13,7 +13,7 @@ from shiftbench.models import FullyConnected, ShiftPolynomialNet, LineConv, coun
 
 
 def test_fc_count_follows_the_linear_formula():
-    model = FullyConnected(nodes=50, features=2, hidden=[32, 16], classes=4)
+    model = FullyConnected(nodes=50, features=2, hidden=[32, 16], outputs=4)
     expected = (100 * 32 + 32) + (32 * 16 + 16) + (16 * 4 + 4)
     assert count_parameters(model) == expected == sum(p.numel() for p in model.parameters())
 

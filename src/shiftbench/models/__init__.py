@@ -26,12 +26,15 @@ __all__ = [
 ]
 
 
-def build_model(arch: Any, nodes: int, features: int, classes: int, shift: torch.Tensor | None) -> nn.Module:
+def build_model(
+    arch: Any, nodes: int, features: int, classes: int, shift: torch.Tensor | None, head: str = "pooled"
+) -> nn.Module:
     """The family that ``arch.family`` names, sized for the data; ``shift`` is needed by the
-    families that read a graph only."""
+    families that read a graph only. ``head`` ``pooled``: ``classes`` outputs a signal;
+    ``nodes``: ``classes`` outputs on every node (the task's head)."""
     family = FAMILIES[arch.family]
     if family.build is None:
         raise ValueError(f"family {arch.family!r} is fitted, not built; use its fit")
     if family.uses_graph and shift is None:
         raise ValueError(f"{arch.family} needs a shift operator")
-    return family.build(arch, nodes, features, classes, shift)
+    return family.build(arch, nodes, features, classes, shift, head)

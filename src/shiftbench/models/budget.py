@@ -34,7 +34,7 @@ def _scaled(arch: Any, scale: float) -> Any:
     return replace(arch, **{key: [max(1, round(scale * width)) for width in getattr(arch, key)]})
 
 
-def fit_budget(arch: Any, budget: int, nodes: int, features: int, classes: int) -> tuple[Any, int]:
+def fit_budget(arch: Any, budget: int, nodes: int, features: int, classes: int, head: str = "pooled") -> tuple[Any, int]:
     """The arch config with widths scaled to ``budget`` parameters, and the count it has.
 
     Raises:
@@ -43,22 +43,22 @@ def fit_budget(arch: Any, budget: int, nodes: int, features: int, classes: int) 
     """
     key = width_key(arch.family)
     smallest = _scaled(arch, 0.0)
-    least = planned_parameters(smallest, nodes, features, classes)
+    least = planned_parameters(smallest, nodes, features, classes, head)
     if least > budget * (1 + TOLERANCE):
         raise BudgetError(
             f"arch.budget={budget} cannot be met: {arch.family} with {key}={getattr(smallest, key)} already has "
             f"{least:,} parameters at {nodes} nodes; accepted: a budget of at least {least:,}"
         )
     low, high = 0.0, 1.0
-    while planned_parameters(_scaled(arch, high), nodes, features, classes) < budget:
+    while planned_parameters(_scaled(arch, high), nodes, features, classes, head) < budget:
         low, high = high, high * 2
     for _ in range(40):
         middle = (low + high) / 2
-        if planned_parameters(_scaled(arch, middle), nodes, features, classes) < budget:
+        if planned_parameters(_scaled(arch, middle), nodes, features, classes, head) < budget:
             low = middle
         else:
             high = middle
-    candidates = [(planned_parameters(_scaled(arch, scale), nodes, features, classes), scale) for scale in (low, high)]
+    candidates = [(planned_parameters(_scaled(arch, scale), nodes, features, classes, head), scale) for scale in (low, high)]
     count, scale = min(candidates, key=lambda pair: abs(pair[0] - budget))
     if abs(count - budget) > TOLERANCE * budget:
         raise BudgetError(

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any, Optional
@@ -18,15 +19,18 @@ from shiftbench.registry import FAMILIES, Family
 
 class FullyConnected(nn.Module):
     """An MLP on the flattened signal:
-    ``z_0 = vec(x)``, ``z_{l+1} = sigma(W_l dropout_l(z_l) + b_l)``, ``logits = W_L dropout_L(z_L) + b_L``.
+    ``z_0 = vec(x)``, ``z_{l+1} = sigma(W_l dropout_l(z_l) + b_l)``, ``y = W_L dropout_L(z_L) + b_L``.
 
     ``dropout``: the rate before each linear map, a list of ``len(hidden) + 1``; a number ``p``
     means none on the input and ``p`` before every later map.
 
     Its first layer has ``nodes * features * hidden[0]`` weights: it grows with the signal's size.
+    With ``head="nodes"`` its last layer has ``nodes * outputs`` units, read as ``outputs`` on
+    every node, so that layer grows with the nodes too.
 
     Shapes:
-        input ``(batch, nodes, features)`` -> logits ``(batch, classes)``.
+        input ``(batch, nodes, features)`` -> ``(batch, outputs)`` (``head="pooled"``: class
+        logits) or ``(batch, nodes, outputs)`` (``head="nodes"``).
     """
 
     def __init__(
@@ -34,11 +38,13 @@ class FullyConnected(nn.Module):
         nodes: int,
         features: int,
         hidden: Sequence[int],
-        classes: int,
+        outputs: int,
         nonlinearity: str = "relu",
         dropout: float | Sequence[float] = 0.0,
+        head: str = "pooled",
     ) -> None:
         super().__init__()
+        self.shape = (nodes, outputs) if head == "nodes" else (outputs,)
         sizes = [nodes * features, *hidden]
         rates = dropout_rates(dropout, len(hidden))
         layers: list[nn.Module] = [nn.Flatten(start_dim=1)]
@@ -46,11 +52,11 @@ class FullyConnected(nn.Module):
             layers.append(nn.Dropout(rates[0]))
         for rate, width_in, width_out in zip(rates[1:], sizes[:-1], sizes[1:]):
             layers += [nn.Linear(width_in, width_out), make_nonlinearity(nonlinearity), nn.Dropout(rate)]
-        layers.append(nn.Linear(sizes[-1], classes))
+        layers.append(nn.Linear(sizes[-1], math.prod(self.shape)))
         self.network = nn.Sequential(*layers)
 
     def forward(self, x: torch.Tensor) -> torch.Tensor:
-        return self.network(x)
+        return self.network(x).view(len(x), *self.shape)
 
 
 def dropout_rates(dropout: float | Sequence[float], hidden_layers: int) -> list[float]:
@@ -85,16 +91,22 @@ class FcConfig(Schema):
                     f"one rate before each linear map: {len(self.hidden) + 1} values")
 
 
-def planned_fc_parameters(arch: FcConfig, nodes: int, features: int, classes: int) -> int:
-    """``sum_l (w_l + 1) w_{l+1}`` over the widths ``nodes * features, *hidden, classes``."""
-    sizes = [nodes * features, *arch.hidden, classes]
+def output_units(nodes: int, outputs: int, head: str) -> int:
+    """The last layer's width: ``outputs``, or ``nodes * outputs`` for a node head."""
+    return nodes * outputs if head == "nodes" else outputs
+
+
+def planned_fc_parameters(arch: FcConfig, nodes: int, features: int, outputs: int, head: str) -> int:
+    """``sum_l (w_l + 1) w_{l+1}`` over the widths ``nodes * features, *hidden, u`` with ``u``
+    the outputs (``nodes * outputs`` for a node head)."""
+    sizes = [nodes * features, *arch.hidden, output_units(nodes, outputs, head)]
     return sum((width_in + 1) * width_out for width_in, width_out in zip(sizes[:-1], sizes[1:]))
 
 
-def planned_fc_activations(arch: FcConfig, nodes: int, features: int, classes: int) -> int:
-    """``nodes * features + 2 sum_l w_l + classes``: the flattened input, each hidden layer's
-    output and its nonlinearity's, the logits."""
-    return nodes * features + 2 * sum(arch.hidden) + classes
+def planned_fc_activations(arch: FcConfig, nodes: int, features: int, outputs: int, head: str) -> int:
+    """``nodes * features + 2 sum_l w_l + u``: the flattened input, each hidden layer's
+    output and its nonlinearity's, the outputs."""
+    return nodes * features + 2 * sum(arch.hidden) + output_units(nodes, outputs, head)
 
 
 FAMILIES.add(
@@ -104,8 +116,8 @@ FAMILIES.add(
         display="MLP",
         planned_parameters=planned_fc_parameters,
         planned_activations=planned_fc_activations,
-        build=lambda arch, nodes, features, classes, shift: FullyConnected(
-            nodes, features, arch.hidden, classes, arch.nonlinearity, arch.dropout
+        build=lambda arch, nodes, features, outputs, shift, head: FullyConnected(
+            nodes, features, arch.hidden, outputs, arch.nonlinearity, arch.dropout, head
         ),
         width_key="hidden",
         marker="s",

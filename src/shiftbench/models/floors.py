@@ -111,9 +111,9 @@ def fit_floor(name: str, dataset: Dataset, seed: int) -> TrainingResult:
     inference = (time.perf_counter() - predicting) / max(len(test) + len(train), 1)
     test_accuracy = float((predicted == labels[test]).mean())
     return TrainingResult(
-        train_accuracy=train_accuracy,
-        val_accuracy=val_accuracy,
-        test_accuracy=test_accuracy,
+        train_score=train_accuracy,
+        val_score=val_accuracy,
+        test_score=test_accuracy,
         test_loss=None,
         best_epoch=None,
         epochs_run=None,
@@ -135,7 +135,7 @@ for _name in FLOORS:
             name=_name,
             schema=FloorConfig,
             display=DISPLAY[_name],
-            planned_parameters=lambda arch, nodes, features, classes: 0,
+            planned_parameters=lambda arch, nodes, features, outputs, head: 0,
             fit=_fit(_name),
             marker="x",
         )

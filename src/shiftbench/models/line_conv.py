@@ -126,8 +126,8 @@ FAMILIES.add(
         display="1-D CNN",
         planned_parameters=planned_stack_parameters,
         planned_activations=planned_stack_activations,
-        build=lambda arch, nodes, features, classes, shift: LineConv(
-            nodes, features, arch.channels, classes, arch.layer_orders(), arch.boundary,
+        build=lambda arch, nodes, features, outputs, shift, head: arch.check_head(head) or LineConv(
+            nodes, features, arch.channels, outputs, arch.layer_orders(), arch.boundary,
             arch.nonlinearity, arch.readout, arch.dropout, arch.normalization, arch.padding,
         ),
         width_key="channels",

@@ -40,9 +40,9 @@ def fit_nearest(dataset: Dataset) -> TrainingResult:
     seconds = time.perf_counter() - started
     test_accuracy = float((predicted == dataset.labels[splits.test]).mean())
     return TrainingResult(
-        train_accuracy=_accuracy(splits.train, splits.train, dataset),
-        val_accuracy=_accuracy(splits.train, splits.val, dataset),
-        test_accuracy=test_accuracy,
+        train_score=_accuracy(splits.train, splits.train, dataset),
+        val_score=_accuracy(splits.train, splits.val, dataset),
+        test_score=test_accuracy,
         test_loss=None,
         best_epoch=None,
         epochs_run=None,
@@ -66,7 +66,7 @@ FAMILIES.add(
         name="nearest",
         schema=NearestConfig,
         display="1-NN floor",
-        planned_parameters=lambda arch, nodes, features, classes: 0,
+        planned_parameters=lambda arch, nodes, features, outputs, head: 0,
         fit=lambda arch, dataset, seed: fit_nearest(dataset),
         marker="x",
     )

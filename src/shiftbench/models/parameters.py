@@ -31,11 +31,11 @@ def count_parameters(model: nn.Module) -> int:
     return sum(parameter.numel() for parameter in model.parameters() if parameter.requires_grad)
 
 
-def planned_parameters(arch: Any, nodes: int, features: int, classes: int) -> int:
-    """The count :func:`count_parameters` gives for the model ``arch`` would build, computed
-    from the config alone (each family states its formula), so a model too large to allocate
-    can be refused first."""
-    return FAMILIES[arch.family].planned_parameters(arch, nodes, features, classes)
+def planned_parameters(arch: Any, nodes: int, features: int, classes: int, head: str = "pooled") -> int:
+    """The count :func:`count_parameters` gives for the model ``arch`` would build (with the
+    task's ``head``), computed from the config alone (each family states its formula), so a
+    model too large to allocate can be refused first."""
+    return FAMILIES[arch.family].planned_parameters(arch, nodes, features, classes, head)
 
 
 @dataclass(frozen=True)
@@ -54,10 +54,12 @@ class MemoryPlan:
         return self.parameter_bytes + self.activation_bytes + self.data_bytes + JOB_OVERHEAD_BYTES
 
 
-def planned_memory(arch: Any, nodes: int, features: int, classes: int, batch_size: int, samples: int) -> MemoryPlan:
+def planned_memory(
+    arch: Any, nodes: int, features: int, classes: int, batch_size: int, samples: int, head: str = "pooled"
+) -> MemoryPlan:
     family = FAMILIES[arch.family]
-    count = planned_parameters(arch, nodes, features, classes)
-    activations = family.planned_activations(arch, nodes, features, classes)
+    count = planned_parameters(arch, nodes, features, classes, head)
+    activations = family.planned_activations(arch, nodes, features, classes, head)
     return MemoryPlan(
         parameters=count,
         parameter_bytes=count * BYTES_PER_PARAMETER,
@@ -67,11 +69,12 @@ def planned_memory(arch: Any, nodes: int, features: int, classes: int, batch_siz
 
 
 def require_memory_for(
-    arch: Any, nodes: int, features: int, classes: int, batch_size: int, samples: int, memory_bytes: int
+    arch: Any, nodes: int, features: int, classes: int, batch_size: int, samples: int, memory_bytes: int,
+    head: str = "pooled",
 ) -> None:
     """Refuse, before anything is allocated, a job whose training would not fit in
     ``memory_bytes``: one line with the estimate and its parts."""
-    plan = planned_memory(arch, nodes, features, classes, batch_size, samples)
+    plan = planned_memory(arch, nodes, features, classes, batch_size, samples, head)
     if plan.total > memory_bytes:
         gb = lambda count: f"{count / 1e9:,.1f} GB"
         raise ConfigError(

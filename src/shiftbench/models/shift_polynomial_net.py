@@ -58,7 +58,10 @@ class GraphConvConfig(ConvConfig):
     family: str = "graph_conv"
 
 
-def _build(arch: GraphConvConfig, nodes: int, features: int, classes: int, shift: torch.Tensor) -> ShiftPolynomialNet:
+def _build(
+    arch: GraphConvConfig, nodes: int, features: int, classes: int, shift: torch.Tensor, head: str
+) -> ShiftPolynomialNet:
+    arch.check_head(head)
     return ShiftPolynomialNet(
         shift, features, arch.channels, classes, arch.layer_orders(),
         arch.nonlinearity, arch.readout, arch.dropout, arch.normalization,

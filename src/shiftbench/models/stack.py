@@ -13,7 +13,7 @@ from torch import nn
 from shiftbench.config import BUDGET, DROPOUT, Check, Schema, at_least, declared, one_of, require
 from shiftbench.models.nonlinearities import NONLINEARITIES
 from shiftbench.models.nonlinearities import nonlinearity as make_nonlinearity
-from shiftbench.models.readouts import READOUTS, Readout
+from shiftbench.models.readouts import POOLED, READOUTS, Readout
 
 
 NORMALIZATIONS = ("none", "batch")
@@ -125,12 +125,19 @@ class ConvConfig(Schema):
                     f"one order a layer: {len(self.channels)} values, as channels has")
             self.order = max(self.orders)
 
+    def check_head(self, head: str) -> None:
+        """A one-line error unless the readout gives the task's ``head``: ``node`` for a task
+        on every node (``nodes``), a pooling readout for one on whole signals (``pooled``)."""
+        wanted = ("node",) if head == "nodes" else POOLED
+        what = "a value on every node" if head == "nodes" else "one value per signal"
+        require("arch.readout", self.readout, self.readout in wanted, f"{', '.join(wanted)} for a task that predicts {what}")
+
     def layer_orders(self) -> list[int]:
         """The filter order of each layer."""
         return per_layer(self.order if self.orders is None else self.orders, len(self.channels))
 
 
-def planned_stack_activations(arch: ConvConfig, nodes: int, features: int, classes: int) -> int:
+def planned_stack_activations(arch: ConvConfig, nodes: int, features: int, classes: int, head: str) -> int:
     """``nodes * (features + 3 sum_l c_{l+1})``: the input, and per layer the filter's output,
     the nonlinearity's and a temporary of the backward pass, each ``(nodes, c_{l+1})`` (the
     filter's own backward recomputes its partial sums instead of keeping them); set beside
@@ -138,10 +145,11 @@ def planned_stack_activations(arch: ConvConfig, nodes: int, features: int, class
     return nodes * (features + 3 * sum(width_out for _, width_out in widths(features, arch.channels)))
 
 
-def planned_stack_parameters(arch: ConvConfig, nodes: int, features: int, classes: int) -> int:
+def planned_stack_parameters(arch: ConvConfig, nodes: int, features: int, classes: int, head: str) -> int:
     """``(K_l + 1) c_l c_{l+1} + c_{l+1}`` a layer over the widths ``features, *channels``,
     ``2 c_{l+1}`` more with batch normalization, then a readout of ``(w + 1) classes`` with
-    ``w = c_L`` (``nodes * c_L`` for ``flatten``)."""
+    ``w = c_L`` (``nodes * c_L`` for ``flatten``; the ``node`` readout of a node head is the
+    same per-node map, so no count depends on ``nodes`` but flatten's)."""
     count = 0
     for order, (width_in, width_out) in zip(arch.layer_orders(), widths(features, arch.channels)):
         count += (order + 1) * width_in * width_out + width_out
