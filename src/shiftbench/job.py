@@ -105,16 +105,17 @@ def fit_family(
         for note in record.graph_notes:
             print(f"note: graph {record.graph}: {note}", flush=True)
         shift = shared(f"shift/split{run.split}", key, lambda: shift_operator(graph, run.graph.operator, run.graph.scale))
-    arch = run.arch
+    arch, head = run.arch, TASKS[run.task].head
     if getattr(arch, "budget", None) is not None:
         record.budget = arch.budget
-        arch, _ = fit_budget(arch, arch.budget, dataset.nodes, dataset.features, dataset.classes)
+        arch, _ = fit_budget(arch, arch.budget, dataset.nodes, dataset.features, dataset.classes, head)
         record.sized_widths = getattr(arch, width_key(arch.family))
     require_memory_for(
-        arch, dataset.nodes, dataset.features, dataset.classes, run.train.batch_size, dataset.samples, available_memory_bytes()
+        arch, dataset.nodes, dataset.features, dataset.classes, run.train.batch_size, dataset.samples,
+        available_memory_bytes(), head,
     )
     seed_everything(run.seed)
-    model = build_model(arch, dataset.nodes, dataset.features, dataset.classes, shift)
+    model = build_model(arch, dataset.nodes, dataset.features, dataset.classes, shift, head)
     record.parameters = count_parameters(model)
     progress = EpochProgress(run.train.epochs, live, label=label)
 

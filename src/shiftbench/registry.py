@@ -21,6 +21,7 @@ COMPONENT_MODULES = [
     "shiftbench.task",
     "shiftbench.graphs.operators",
     "shiftbench.data.sensor_regimes",
+    "shiftbench.data.sensor_dynamics",
     "shiftbench.data.digits",
     "shiftbench.data.ucr",
     "shiftbench.data.files",

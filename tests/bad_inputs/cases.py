@@ -125,6 +125,13 @@ CONFIG_CASES: list[tuple[list[str], str]] = [
     (["seed=-1"], "seed=-1 is not accepted; accepted: an integer >= 0"),
     (["arch.channels=[]"], "arch.channels=[] is not accepted; accepted: a non-empty list of integers >= 1"),
     (["arch.readout=sum"], "arch.readout='sum' is not accepted; accepted: one of mean, max, flatten, node"),
+    (["task=node_regression"], "task='node_regression' is not accepted; accepted: classification for data=sensor_regimes"),
+    (["data=sensor_forecast"], "task='classification' is not accepted; accepted: node_regression for data=sensor_forecast"),
+    (["task=node_regression", "data=sensor_forecast"],
+     "arch.readout='mean' is not accepted; accepted: node for a task that predicts a value on every node"),
+    (["arch.readout=node"], "arch.readout='node' is not accepted; accepted: mean, max, flatten for a task that predicts one value per signal"),
+    (["task=node_regression", "data=sensor_reconstruction", "arch=nearest"],
+     "task='node_regression' is not accepted; accepted: classification for arch=nearest (a floor)"),
     (["arch=line_conv", "arch.boundary=reflect"], "arch.boundary='reflect' is not accepted; accepted: one of zero, circular"),
     (["data.val_fraction=0.9"], "data.test_fraction=0.2 is not accepted; accepted: a fraction below 0.1 "
                                 "(val_fraction + test_fraction < 1)"),
@@ -136,7 +143,7 @@ CONFIG_CASES: list[tuple[list[str], str]] = [
     (["-m", "arch=fc,cnn"], "arch='cnn' is not accepted; accepted: one of fc, forest, graph_conv, lda, line_conv, logistic, nearest, qda"),
     (["-m", "arch.order=1,2,-3"], "arch.order=-3 is not accepted; accepted: an integer >= 0"),
     (["-m", "+experiment=nope"], "experiment='nope' is not accepted; accepted: one of budget, claims, families, "
-                                 "graphs, orders, scaling"),
+                                 "graphs, node_tasks, orders, scaling"),
     (["results_dir=../outside"], "results_dir='../outside' is not accepted; accepted: a folder below the working "
                                  "folder (no '..'), or an absolute path"),
     (["-m", "hydra.sweep.dir=runs/../../x"], "hydra.sweep.dir='runs/../../x' is not accepted; accepted: a folder "

@@ -158,3 +158,29 @@ def test_per_layer_orders_need_one_order_a_layer(small_config):
 
     with pytest.raises(ConfigError, match=r"arch\.orders=\[7, 4\] is not accepted; accepted: one order a layer: 3 values"):
         validate(small_config("arch=line_conv", "arch.orders=[7,4]", "arch.channels=[6,5,4]"))
+
+
+def test_without_a_readout_a_graph_filter_stack_on_the_line_graph_equals_a_causal_cnn_producing_a_sequence():
+    # Reference: torch.nn.Conv1d layers on the left-padded signal (causal), each followed by ReLU,
+    # then a kernel-1 Conv1d as the per-node output map: a 1-D CNN that outputs a sequence.
+    from shiftbench.models.line_conv import LineConv
+    from shiftbench.models.mapping import line_conv_to_graph_conv
+
+    torch.manual_seed(4)
+    nodes, orders = 25, [3, 2]
+    cnn = LineConv(nodes, 2, [6, 5], 3, orders, readout="node").eval()
+    gnn = line_conv_to_graph_conv(cnn, shift_operator(line_graph(nodes), "adjacency", "none")).eval()
+    reference = []
+    for layer, order in zip(cnn.layers, orders):
+        conv = torch.nn.Conv1d(layer.conv.in_channels, layer.conv.out_channels, order + 1)
+        conv.load_state_dict(layer.conv.state_dict())
+        reference += [torch.nn.ConstantPad1d((order, 0), 0.0), conv, torch.nn.ReLU()]
+    output_map = torch.nn.Conv1d(5, 3, 1)
+    with torch.no_grad():
+        output_map.weight.copy_(cnn.readout.linear.weight[:, :, None])
+        output_map.bias.copy_(cnn.readout.linear.bias)
+    x = torch.randn(4, nodes, 2)
+    sequence = torch.nn.Sequential(*reference, output_map)(x.transpose(1, 2)).transpose(1, 2)
+    assert gnn(x).shape == (4, nodes, 3)
+    torch.testing.assert_close(cnn(x), sequence, atol=1e-5, rtol=1e-5)
+    torch.testing.assert_close(gnn(x), sequence, atol=1e-5, rtol=1e-5)

@@ -51,6 +51,7 @@ def test_convolutional_counts_do_not_grow_with_nodes_while_fc_does():
     "fc", "fc hidden=[7,3]", "line_conv", "line_conv readout=flatten normalization=batch",
     "graph_conv", "graph_conv order=0 channels=[4] readout=max normalization=batch",
     "line_conv channels=[6,5,4] orders=[7,4,2]", "graph_conv channels=[6,5] orders=[0,3]",
+    "fc head=nodes", "line_conv readout=node head=nodes", "graph_conv readout=node normalization=batch head=nodes",
 ])
 def test_planned_count_equals_the_count_of_the_built_model(arch):
     # Reference: torch's own parameter list (count_parameters sums Parameter.numel()).
@@ -66,10 +67,38 @@ def test_planned_count_equals_the_count_of_the_built_model(arch):
 
     family, *options = arch.split()
     config = {"fc": FcConfig, "line_conv": LineConvConfig, "graph_conv": GraphConvConfig}[family]()
+    head = "pooled"
     for option in options:
         key, value = option.split("=")
+        if key == "head":
+            head = value
+            continue
         config = replace(config, **{key: eval(value) if value[0] in "[0123456789" else value})
     nodes, features, classes = 25, 2, 3
     shift = shift_operator(knn_graph(np.random.default_rng(0).random((nodes, 2)), 4))
-    model = build_model(config, nodes, features, classes, shift)
-    assert planned_parameters(config, nodes, features, classes) == count_parameters(model)
+    model = build_model(config, nodes, features, classes, shift, head)
+    assert planned_parameters(config, nodes, features, classes, head) == count_parameters(model)
+
+
+def test_for_outputs_on_every_node_fc_grows_with_nodes_squared_while_filters_do_not():
+    # Common practice, no source: an MLP from nodes inputs to nodes outputs through one hidden
+    # layer of width w has (nodes + 1) w + (w + 1) nodes parameters; with w = nodes / 4 that is
+    # quadratic in nodes. Graph filters with a per-node output map keep one count at every size.
+    from dataclasses import replace
+
+    from shiftbench.models.fc import FcConfig
+    from shiftbench.models.parameters import planned_parameters
+
+    def counts(nodes):
+        shift = shift_operator(knn_graph(np.random.default_rng(0).random((nodes, 2)), 4))
+        fc = FullyConnected(nodes, 1, [nodes // 4], 1, head="nodes")
+        graph_conv = ShiftPolynomialNet(shift, 1, [16], 1, order=3, readout="node")
+        planned = planned_parameters(replace(FcConfig(), hidden=[nodes // 4]), nodes, 1, 1, "nodes")
+        return count_parameters(fc), planned, count_parameters(graph_conv)
+
+    for nodes in (16, 64, 256):
+        fc, planned, graph_conv = counts(nodes)
+        width = nodes // 4
+        assert fc == planned == (nodes + 1) * width + (width + 1) * nodes
+        assert graph_conv == counts(16)[2] == 4 * 16 + 16 + 17
+    assert counts(256)[0] / counts(64)[0] > 15  # 4x the nodes, about 16x the parameters

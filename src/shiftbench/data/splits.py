@@ -1,4 +1,5 @@
-"""Stratified train/validation/test splits, fixed by the data seed."""
+"""Train/validation/test splits, fixed by the data seed: stratified by class where samples have
+one, plain random where their targets are values (regression)."""
 
 from __future__ import annotations
 
@@ -52,9 +53,20 @@ def stratified_splits(labels: np.ndarray, val_fraction: float, test_fraction: fl
     return Splits(train=np.sort(train), val=np.sort(val), test=np.sort(test))
 
 
+def random_splits(samples: int, val_fraction: float, test_fraction: float, seed: int) -> Splits:
+    """Split ``samples`` indices at random (targets without classes to stratify by), with the
+    shares and seeding of :func:`stratified_splits`."""
+    return stratified_splits(np.zeros(samples, dtype=np.int64), val_fraction, test_fraction, seed)
+
+
+def has_classes(labels: np.ndarray) -> bool:
+    """True for class labels ``(samples,)`` of integers; False for value targets."""
+    return labels.ndim == 1 and labels.dtype.kind in "iu"
+
+
 def resplit(dataset: Dataset, split: int) -> Dataset:
     """The dataset under random split number ``split``: 0 keeps the dataset's own split; any
-    other number draws a new stratified split of all samples with the same train, validation
+    other number draws a new split (stratified where samples have classes) of all samples with the same train, validation
     and test sizes (seeded by ``split``), so repeated evaluations differ in their data."""
     if split == 0:
         return dataset
@@ -63,6 +75,8 @@ def resplit(dataset: Dataset, split: int) -> Dataset:
     test_fraction = len(sizes.test) / samples
     val_fraction = len(sizes.val) / samples
     try:
+        if not has_classes(dataset.labels):
+            raise ValueError("no classes to stratify by")
         splits = stratified_splits(dataset.labels, val_fraction, test_fraction, 10_000 + split)
     except ValueError:  # a class too small to stratify: draw plainly
         order = np.random.default_rng(10_000 + split).permutation(samples)

@@ -1,0 +1,87 @@
+"""The node-level demo scenarios: shapes, targets, seeding, and that the graph carries what is to
+be predicted (a predictor that reads the graph beats the best one that does not)."""
+
+import numpy as np
+import pytest
+from sklearn.linear_model import LinearRegression
+
+from shiftbench.data.sensor_dynamics import diffusion, sensor_forecast, sensor_reconstruction
+from shiftbench.graphs.operators import normalized_adjacency
+
+
+def rmse(predicted, truth):
+    return float(np.sqrt(np.mean((predicted - truth) ** 2)))
+
+
+def test_forecast_samples_hold_the_last_snapshots_and_the_next_one_as_target():
+    data = sensor_forecast(nodes=30, samples=50, window=4)
+    assert data.signals.shape == (50, 30, 4) and data.labels.shape == (50, 30, 1)
+    assert data.signals.dtype == np.float32 and not np.isnan(data.labels).any()
+    again = sensor_forecast(nodes=30, samples=50, window=4)
+    assert np.array_equal(data.signals, again.signals) and np.array_equal(data.labels, again.labels)
+    splits = data.splits
+    assert sorted(np.concatenate([splits.train, splits.val, splits.test]).tolist()) == list(range(50))
+
+
+def test_forecasting_on_the_graph_beats_the_best_predictor_from_each_sensors_own_past():
+    # The process itself (its H(S) applied to the last snapshot) is the best one-step forecast;
+    # least squares on each sensor's own window (scikit-learn's LinearRegression, pooled over
+    # sensors) is the best graph-free linear one. The gap is what a graph model can gain.
+    data = sensor_forecast()
+    shift = normalized_adjacency(data.native_graph)
+    train, test = data.splits.train, data.splits.test
+    truth = data.labels[:, :, 0]
+    graph_forecast = diffusion(shift, data.signals[:, :, -1].T.astype(np.float64), 0.98, 0.9, 1).T
+    window = data.signals.shape[2]
+    own_past = LinearRegression().fit(data.signals[train].reshape(-1, window), truth[train].reshape(-1))
+    own_forecast = own_past.predict(data.signals[test].reshape(-1, window))
+    floor = rmse(truth[train].mean(axis=0), truth[test])
+    assert rmse(graph_forecast[test], truth[test]) < 0.92 * rmse(own_forecast, truth[test].reshape(-1)) < 0.92 * floor
+
+
+def test_reconstruction_targets_are_the_failed_sensors_and_nothing_else():
+    data = sensor_reconstruction(nodes=20, samples=80, masked=0.3)
+    readings, working = data.signals[:, :, 0], data.signals[:, :, 1]
+    failed = ~np.isnan(data.labels[:, :, 0])
+    assert set(np.unique(working)) == {0.0, 1.0} and np.array_equal(failed, working == 0)
+    assert (readings[failed] == 0).all()
+    assert failed.any(axis=1).all() and (~failed).any(axis=1).all()  # one of each in every sample
+    assert 0.2 < failed.mean() < 0.4
+
+
+def test_reconstructing_from_graph_neighbours_beats_the_mean_and_a_rewired_graph():
+    # The mean of a failed sensor's working neighbours on the sensor network against the same on
+    # a graph with the same degrees and random links (networkx's double edge swap), and against
+    # each sensor's training mean.
+    import networkx as nx
+
+    from shiftbench.graphs.graph import Graph
+
+    data = sensor_reconstruction()
+    readings, working = data.signals[:, :, 0].astype(np.float64), data.signals[:, :, 1].astype(np.float64)
+    truth = data.labels[:, :, 0]
+    test = np.zeros(len(truth), dtype=bool)
+    test[data.splits.test] = True
+    scored = ~np.isnan(truth) & test[:, None]
+
+    def neighbour_mean(graph) -> float:
+        links = (normalized_adjacency(graph) != 0).astype(np.float64)
+        total, count = (links @ (readings * working).T).T, (links @ working.T).T
+        estimate = np.where(count > 0, total / np.maximum(count, 1), 0.0)
+        return rmse(estimate[scored], truth[scored])
+
+    rewired = data.native_graph.to_undirected_simple()
+    nx.double_edge_swap(rewired, nswap=4 * rewired.number_of_edges(), max_tries=10**6, seed=0)
+    floor = rmse(np.broadcast_to(np.nanmean(truth[data.splits.train], axis=0), truth.shape)[scored], truth[scored])
+    on_graph = neighbour_mean(data.native_graph)
+    assert on_graph < 0.92 * floor
+    assert on_graph < 0.92 * neighbour_mean(Graph.from_undirected_simple(rewired, data.nodes, "rewired"))
+
+
+@pytest.mark.parametrize("knob", ["data.masked=1.0", "data.decay=1.5", "data.hops=0"])
+def test_bad_knobs_get_one_line(knob):
+    from shiftbench.config import ConfigError, validate
+    from tests.conftest import composed
+
+    with pytest.raises(ConfigError, match=rf"{knob.split('=')[0].split('.')[1]}=.* is not accepted; accepted: "):
+        validate(composed(["task=node_regression", "data=sensor_reconstruction", knob]))
