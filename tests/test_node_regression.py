@@ -76,3 +76,14 @@ def test_every_family_runs_the_task_and_the_table_speaks_rmse(tmp_path, data):
     assert "test rmse ↓" in text and "rmse_vs_parameters.png" in text
     table = pd.read_csv(tmp_path / "report" / "summary.csv")
     assert {"test_rmse_mean", "test_rmse_ci95"} <= set(table.columns) and len(table) == 3
+
+
+def test_the_claims_refuse_records_of_another_task_in_one_line(tmp_path):
+    from shiftbench.claims_report import write_claims
+    from shiftbench.job import run_job
+
+    overrides = ["task=node_regression", "data=sensor_forecast", "data.samples=60", "data.nodes=12", "train.epochs=2",
+                 f"results_dir={tmp_path}", "arch=fc"]
+    run_job(composed(overrides), None, overrides, live=False, quiet=True)
+    with pytest.raises(ValueError, match="are of task node_regression; accepted: records of task classification"):
+        write_claims([tmp_path / "store"], tmp_path / "claims")

@@ -270,6 +270,12 @@ def write_claims(
     paths = list(paths)
     records = load_records(paths)
     where = ", ".join(map(str, paths))
+    other = sorted(set(records.get("task", [])) - {"classification"})
+    if other:
+        raise ValueError(
+            f"the records under {where} are of task {', '.join(other)}; accepted: records of task classification "
+            "(the claims are checked on classification so far)"
+        )
     subject = subject_of(records, where, demo if demo is not None else sensor_regimes())
     checked = evaluate(records, seeds, subject)
     suggest_runs(checked, subject, paths[0])

@@ -152,7 +152,10 @@ def claims_main(arguments: list[str] | None = None) -> None:
         parser.exit(2, f"shiftbench-claims: error: --seeds {options.seeds} is not accepted; accepted: an integer >= 1\n")
     from shiftbench.claims_report import write_claims  # here, not at import: jobs do not need it
 
-    print(write_claims([options.path], options.out or options.path, tuple(range(options.seeds))))
+    try:
+        print(write_claims([options.path], options.out or options.path, tuple(range(options.seeds))))
+    except ValueError as error:
+        parser.exit(2, f"shiftbench-claims: error: {error}\n")
 
 
 def decide_main(arguments: list[str] | None = None) -> None:
