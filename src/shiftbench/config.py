@@ -227,8 +227,8 @@ def check_task(run: RunConfig) -> None:
     served = DATASETS[run.data.source].tasks
     require("task", run.task, run.task in served, f"{', '.join(served)} for data={run.data.source}")
     family = FAMILIES[run.arch.family]
-    if family.fit is not None:
-        require("task", run.task, run.task == "classification", f"classification for arch={run.arch.family} (a floor)")
+    if family.tasks is not None:
+        require("task", run.task, run.task in family.tasks, f"{', '.join(family.tasks)} for arch={run.arch.family}")
     if hasattr(run.arch, "check_head"):
         run.arch.check_head(task.head)
 

@@ -95,7 +95,7 @@ def fit_family(
     family = FAMILIES[run.arch.family]
     if family.fit is not None:
         record.parameters = 0
-        return family.fit(run.arch, dataset, run.seed)
+        return family.fit(run.arch, dataset, run.seed, TASKS[run.task])
     shift = None
     if family.uses_graph:
         key = (run.data, run.graph)
@@ -164,8 +164,8 @@ class JobOutputs:
 
 def judge(run: RunConfig, dataset: Dataset, record: Record, result: TrainingResult) -> pd.DataFrame:
     """Fill ``record`` with the task's further figures and flags; return the test predictions
-    as a table (``sample`` indexes the dataset): ``sample, label, predicted`` for a whole-signal
-    task, ``sample, node, output, target, predicted`` for each scored entry of a node task."""
+    as a table (``sample`` indexes the dataset): ``sample, label, predicted`` for classification,
+    ``sample, [node,] output, target, predicted`` for each scored entry of a regression task."""
     import pandas as pd
 
     test, train = dataset.splits.test, dataset.splits.train
@@ -175,11 +175,10 @@ def judge(run: RunConfig, dataset: Dataset, record: Record, result: TrainingResu
     if dataset.labels.ndim == 1:
         return pd.DataFrame({"sample": test, "label": dataset.labels[test], "predicted": result.test_predictions})
     targets = dataset.labels[test]
-    sample, node, output = np.nonzero(~np.isnan(targets))
-    return pd.DataFrame({
-        "sample": test[sample], "node": node, "output": output,
-        "target": targets[sample, node, output], "predicted": result.test_predictions[sample, node, output],
-    })
+    scored = np.nonzero(~np.isnan(targets))  # (sample, output) or (sample, node, output) indices
+    columns = {"sample": test[scored[0]], "node": scored[1] if targets.ndim == 3 else None, "output": scored[-1],
+               "target": targets[scored], "predicted": result.test_predictions[scored]}
+    return pd.DataFrame({key: value for key, value in columns.items() if value is not None})
 
 
 def execute(run: RunConfig, record: Record, home: Path, live: bool, label: str = "", in_sweep: bool = False) -> JobOutputs:

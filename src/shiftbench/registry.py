@@ -24,6 +24,7 @@ COMPONENT_MODULES = [
     "shiftbench.data.sensor_dynamics",
     "shiftbench.data.digits",
     "shiftbench.data.ucr",
+    "shiftbench.data.tser",
     "shiftbench.data.files",
     "shiftbench.graphs.sources",
     "shiftbench.graphs.from_signals",
@@ -47,7 +48,7 @@ class Family:
         build: ``(arch, nodes, features, outputs, shift, head) -> nn.Module`` for trained
             families: ``head`` ``pooled`` maps a signal to ``outputs`` numbers (class logits),
             ``nodes`` maps it to ``outputs`` numbers on every node.
-        fit: ``(arch, dataset, seed) -> TrainingResult`` for families fitted without the loop.
+        fit: ``(arch, dataset, seed, task) -> TrainingResult`` for families fitted without the loop.
         planned_parameters: ``(arch, nodes, features, outputs, head) -> int``, from the config
             alone.
         planned_activations: ``(arch, nodes, features, outputs, head) -> int``: the numbers one
@@ -58,6 +59,7 @@ class Family:
         structure: ``(arch) -> (graph, operator)`` that the family uses when it does not read the
             configured graph (``line_conv``: the line graph's delay; graph-free: ``none``).
         marker: the matplotlib marker of its points.
+        tasks: the tasks it serves (None: every task; the floors serve some).
     """
 
     name: str
@@ -71,6 +73,7 @@ class Family:
     uses_graph: bool = False
     structure: Callable[[Any], tuple[str, str]] = lambda arch: ("none", "none")
     marker: str = "d"
+    tasks: tuple[str, ...] | None = None
 
 
 @dataclass(frozen=True)
@@ -116,6 +119,8 @@ class Task:
             into the primary metric (``finish(total, count)``).
         finish: ``(total, count) -> float``, the primary metric of summed tallies.
         predict: ``outputs -> tensor`` of predictions (class indices, or the outputs themselves).
+        score_predicted: ``(predicted, targets) -> float``, the primary metric of numpy
+            predictions (what a floor fitted outside torch predicts).
         judge: ``(targets, predicted, train_targets, curve) -> dict`` of the record's further
             figures (per-class metrics or error figures, the chance level) and its ``flags`` on
             a suspect run.
@@ -130,6 +135,7 @@ class Task:
     tally: Callable[..., Any]
     finish: Callable[..., float]
     predict: Callable[..., Any]
+    score_predicted: Callable[..., float]
     judge: Callable[..., dict[str, Any]]
     metric: str
     higher_is_better: bool

@@ -2,9 +2,10 @@
 the primary metric (its name and direction) and the judgement of a run from here.
 
 - ``classification``: one class per signal; cross-entropy, accuracy.
+- ``regression``: one or more values per signal; mean squared error, RMSE.
 - ``node_regression``: a value (or several) on every node; mean squared error over the scored
   entries, RMSE. Entries that are not targets (a sensor that is not masked, an unobserved node)
-  hold NaN and are left out of the loss and of every figure.
+  hold NaN and are left out of the loss and of every figure (of ``regression``'s too).
 """
 
 from __future__ import annotations
@@ -37,9 +38,20 @@ def share(total: torch.Tensor, count: torch.Tensor) -> float:
     return float(total / count)
 
 
+def share_equal(predicted: np.ndarray, labels: np.ndarray) -> float:
+    """Accuracy of predicted classes. Shapes: ``(samples,)`` both."""
+    return float((predicted == labels).mean())
+
+
+def root_mean_squared(predicted: np.ndarray, targets: np.ndarray) -> float:
+    """RMSE over the entries where ``targets`` is not NaN. Shapes: alike, any."""
+    scored = ~np.isnan(targets)
+    return float(np.sqrt(np.mean((predicted[scored] - targets[scored]) ** 2)))
+
+
 def masked_squared_error(outputs: torch.Tensor, targets: torch.Tensor) -> torch.Tensor:
     """``mean over scored entries of (outputs - targets)^2``, the entries where ``targets`` is
-    not NaN. Shapes: ``(batch, nodes, outputs)`` both -> scalar."""
+    not NaN. Shapes: ``(batch, outputs)`` or ``(batch, nodes, outputs)``, both alike -> scalar."""
     scored = ~torch.isnan(targets)
     return ((outputs - targets)[scored] ** 2).mean()
 
@@ -47,7 +59,7 @@ def masked_squared_error(outputs: torch.Tensor, targets: torch.Tensor) -> torch.
 def tally_squared_error(outputs: torch.Tensor, targets: torch.Tensor) -> tuple[torch.Tensor, torch.Tensor]:
     """``(sum of squared errors, scored entries)`` over the entries where ``targets`` is not NaN.
 
-    Shapes: ``(batch, nodes, outputs)`` both -> two float64 scalars."""
+    Shapes: ``(batch, outputs)`` or ``(batch, nodes, outputs)``, both alike -> two float64 scalars."""
     scored = ~torch.isnan(targets)
     errors = (outputs - targets)[scored].double()
     return (errors**2).sum(), scored.sum().double()
@@ -99,16 +111,16 @@ def loss_never_fell(curve: list[dict[str, float]]) -> bool:
     return len(losses) >= 2 and min(losses[1:]) >= losses[0]
 
 
-def judge_node_regression(
+def judge_regression(
     targets: np.ndarray, predicted: np.ndarray, train_targets: np.ndarray, curve: list[dict[str, float]]
 ) -> dict[str, Any]:
-    """Error figures of the test predictions on the scored entries (scikit-learn's RMSE, MAE and
-    R^2 over all scored entries pooled), the chance level ``chance_rmse`` (the RMSE of predicting
-    each node's training mean: the mean-prediction floor) and flags: ``at_chance`` (test RMSE at
-    or above that floor) and ``loss_never_fell``.
+    """Error figures of the test predictions on the scored entries (scikit-learn's MAE and R^2
+    over all scored entries pooled), the chance level ``chance_rmse`` (the RMSE of predicting
+    each target's training mean, per node for node targets: the mean-prediction floor) and
+    flags: ``at_chance`` (test RMSE at or above that floor) and ``loss_never_fell``.
 
-    Shapes: targets and predicted ``(samples, nodes, outputs)``; train_targets
-    ``(train samples, nodes, outputs)``; NaN targets are not scored."""
+    Shapes: targets and predicted ``(samples, outputs)`` or ``(samples, nodes, outputs)``;
+    train_targets the same for the training samples; NaN targets are not scored."""
     from sklearn.metrics import mean_absolute_error, mean_squared_error, r2_score
 
     scored = ~np.isnan(targets)
@@ -136,6 +148,7 @@ CLASSIFICATION = TASKS.add(
         tally=tally_correct,
         finish=share,
         predict=predicted_classes,
+        score_predicted=share_equal,
         judge=judge_classification,
         metric="accuracy",
         higher_is_better=True,
@@ -144,6 +157,21 @@ CLASSIFICATION = TASKS.add(
     )
 )
 
+REGRESSION = TASKS.add(
+    Task(
+        name="regression",
+        loss=masked_squared_error,
+        tally=tally_squared_error,
+        finish=root_mean,
+        predict=lambda outputs: outputs,
+        score_predicted=root_mean_squared,
+        judge=judge_regression,
+        metric="rmse",
+        higher_is_better=False,
+        head="pooled",
+        split_rule="random",
+    )
+)
 NODE_REGRESSION = TASKS.add(
     Task(
         name="node_regression",
@@ -151,7 +179,8 @@ NODE_REGRESSION = TASKS.add(
         tally=tally_squared_error,
         finish=root_mean,
         predict=lambda outputs: outputs,
-        judge=judge_node_regression,
+        score_predicted=root_mean_squared,
+        judge=judge_regression,
         metric="rmse",
         higher_is_better=False,
         head="nodes",

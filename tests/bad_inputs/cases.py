@@ -77,7 +77,7 @@ CONFIG_CASES: list[tuple[list[str], str]] = [
     (["arch.foo=1"], "unknown key arch.foo (arch family graph_conv); accepted keys: family, order, channels, "
                      "nonlinearity, readout, dropout, normalization, budget, orders"),
     (["+foo=1"], "unknown key foo; accepted top-level keys: seed, split, task, results_dir, device, force, threads, data, graph, arch, train"),
-    (["arch=cnn"], "arch='cnn' is not accepted; accepted: one of fc, forest, graph_conv, lda, line_conv, logistic, nearest, qda"),
+    (["arch=cnn"], "arch='cnn' is not accepted; accepted: one of fc, forest, graph_conv, lda, line_conv, logistic, nearest, qda, ridge"),
     (["graph=ring"], "graph='ring' is not accepted; accepted: one of correlation, cycle, file, geometric, grid, knn, "
                      "line, native, path, rewired, sbm"),
     (["hydra/launcher=nope"], "hydra/launcher='nope' is not accepted; accepted: one of basic, joblib, slurm_cpu, "
@@ -131,7 +131,10 @@ CONFIG_CASES: list[tuple[list[str], str]] = [
      "arch.readout='mean' is not accepted; accepted: node for a task that predicts a value on every node"),
     (["arch.readout=node"], "arch.readout='node' is not accepted; accepted: mean, max, flatten for a task that predicts one value per signal"),
     (["task=node_regression", "data=sensor_reconstruction", "arch=nearest"],
-     "task='node_regression' is not accepted; accepted: classification for arch=nearest (a floor)"),
+     "task='node_regression' is not accepted; accepted: classification for arch=nearest"),
+    (["task=regression", "data=tser", "arch=logistic"], "task='regression' is not accepted; accepted: classification for arch=logistic"),
+    (["task=regression", "data=digits"], "task='regression' is not accepted; accepted: classification for data=digits"),
+    (["data=tser"], "task='classification' is not accepted; accepted: regression for data=tser"),
     (["arch=line_conv", "arch.boundary=reflect"], "arch.boundary='reflect' is not accepted; accepted: one of zero, circular"),
     (["data.val_fraction=0.9"], "data.test_fraction=0.2 is not accepted; accepted: a fraction below 0.1 "
                                 "(val_fraction + test_fraction < 1)"),
@@ -140,7 +143,7 @@ CONFIG_CASES: list[tuple[list[str], str]] = [
     (["graph=grid", "graph.rows=4"], "graph.rows*graph.cols=4*8=32 is not accepted; accepted: rows*cols equal to the "
                                      "data's 64 nodes"),
     (["graph=knn", "graph.neighbors=64"], "graph.neighbors=64 is not accepted; accepted: fewer than the data's 64 nodes"),
-    (["-m", "arch=fc,cnn"], "arch='cnn' is not accepted; accepted: one of fc, forest, graph_conv, lda, line_conv, logistic, nearest, qda"),
+    (["-m", "arch=fc,cnn"], "arch='cnn' is not accepted; accepted: one of fc, forest, graph_conv, lda, line_conv, logistic, nearest, qda, ridge"),
     (["-m", "arch.order=1,2,-3"], "arch.order=-3 is not accepted; accepted: an integer >= 0"),
     (["-m", "+experiment=nope"], "experiment='nope' is not accepted; accepted: one of budget, claims, families, "
                                  "graphs, node_tasks, orders, scaling"),

@@ -1,8 +1,9 @@
 """Graph-free floors from scikit-learn, each tuned on the validation split with a small grid:
-logistic regression, shrinkage LDA, regularized QDA and a random forest.
+logistic regression, shrinkage LDA, regularized QDA and a random forest for classification;
+ridge regression for whole-signal regression.
 
 A floor is fitted on the training split once per grid value; the value with the best validation
-accuracy (the first such in grid order) is kept and scored on the test split. Like the neural
+figure of the task's metric (the first such in grid order) is kept and scored on the test split. Like the neural
 families, floors never train on the validation split, so every candidate sees the same data.
 Signals are flattened to ``(samples, nodes * features)``; the linear floors standardize them.
 """
@@ -18,7 +19,7 @@ from typing import Any
 import numpy as np
 
 from shiftbench.data.dataset import Dataset
-from shiftbench.registry import FAMILIES, Family
+from shiftbench.registry import FAMILIES, Family, Task
 from shiftbench.training_result import TrainingResult
 
 # scikit-learn is imported where a floor is made: loading it costs about as much as torch, and
@@ -30,14 +31,16 @@ class Floor:
     """A scikit-learn classifier and the grid its one hyperparameter is chosen from.
 
     Attributes:
-        make: ``(value, seed) -> classifier``.
+        make: ``(value, seed) -> estimator``.
         key: the hyperparameter's name in records.
         grid: the values tried, in order.
+        tasks: the tasks it serves.
     """
 
     make: Callable[[Any, int], Any]
     key: str
     grid: tuple[Any, ...]
+    tasks: tuple[str, ...] = ("classification",)
 
 
 def logistic(c: float, seed: int) -> Any:
@@ -66,13 +69,23 @@ def forest(max_features: Any, seed: int) -> Any:
     return RandomForestClassifier(n_estimators=200, max_features=max_features, random_state=seed, n_jobs=1)
 
 
+def ridge(alpha: float, seed: int) -> Any:
+    from sklearn.linear_model import Ridge
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+
+    return make_pipeline(StandardScaler(), Ridge(alpha=alpha))
+
+
 FLOORS = {
     "logistic": Floor(logistic, "C", (0.01, 0.1, 1.0, 10.0)),
     "lda": Floor(lda, "shrinkage", ("auto", 0.1, 0.5, 0.9)),
     "qda": Floor(qda, "reg_param", (0.0, 0.1, 0.3, 0.6, 0.9)),
     "forest": Floor(forest, "max_features", ("sqrt", 0.3)),
+    "ridge": Floor(ridge, "alpha", (0.1, 1.0, 10.0, 100.0, 1000.0), ("regression",)),
 }
-DISPLAY = {"logistic": "logistic regression", "lda": "shrinkage LDA", "qda": "regularized QDA", "forest": "random forest"}
+DISPLAY = {"logistic": "logistic regression", "lda": "shrinkage LDA", "qda": "regularized QDA", "forest": "random forest",
+           "ridge": "ridge regression"}
 
 
 @dataclass
@@ -82,9 +95,15 @@ class FloorConfig:
     family: str = "logistic"
 
 
-def fit_floor(name: str, dataset: Dataset, seed: int) -> TrainingResult:
-    """Choose the floor's hyperparameter on validation accuracy, then score every split.
-    ``train_seconds`` covers the whole grid."""
+def predict(estimator: Any, flat: np.ndarray, targets: np.ndarray, rows: np.ndarray) -> np.ndarray:
+    """The estimator's predictions for ``rows``, shaped as their targets (scikit-learn returns a
+    single target's values flat)."""
+    return estimator.predict(flat[rows]).reshape(targets[rows].shape)
+
+
+def fit_floor(name: str, dataset: Dataset, seed: int, task: Task) -> TrainingResult:
+    """Choose the floor's hyperparameter on the validation figure of the task's metric, then
+    score every split. ``train_seconds`` covers the whole grid."""
     floor = FLOORS[name]
     flat = dataset.signals.reshape(dataset.samples, -1).astype(np.float64)  # (samples, nodes * features)
     labels = dataset.labels
@@ -97,23 +116,22 @@ def fit_floor(name: str, dataset: Dataset, seed: int) -> TrainingResult:
             # they come: the validation split decides.
             warnings.simplefilter("ignore")
             classifier = floor.make(value, seed).fit(flat[train], labels[train])
-            score = float(classifier.score(flat[val], labels[val]))
-        if best is None or score > best[0]:
+            score = task.score_predicted(predict(classifier, flat, labels, val), labels[val])
+        if best is None or task.better(score) > task.better(best[0]):
             best = (score, value, classifier)
     train_seconds = time.perf_counter() - started
     assert best is not None
-    val_accuracy, value, classifier = best
+    val_score, value, classifier = best
     predicting = time.perf_counter()
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        predicted = classifier.predict(flat[test])
-        train_accuracy = float(classifier.score(flat[train], labels[train]))
+        predicted = predict(classifier, flat, labels, test)
+        train_score = task.score_predicted(predict(classifier, flat, labels, train), labels[train])
     inference = (time.perf_counter() - predicting) / max(len(test) + len(train), 1)
-    test_accuracy = float((predicted == labels[test]).mean())
     return TrainingResult(
-        train_score=train_accuracy,
-        val_score=val_accuracy,
-        test_score=test_accuracy,
+        train_score=train_score,
+        val_score=val_score,
+        test_score=task.score_predicted(predicted, labels[test]),
         test_loss=None,
         best_epoch=None,
         epochs_run=None,
@@ -125,8 +143,8 @@ def fit_floor(name: str, dataset: Dataset, seed: int) -> TrainingResult:
     )
 
 
-def _fit(name: str) -> Callable[[Any, Dataset, int], TrainingResult]:
-    return lambda arch, dataset, seed: fit_floor(name, dataset, seed)
+def _fit(name: str) -> Callable[[Any, Dataset, int, Task], TrainingResult]:
+    return lambda arch, dataset, seed, task: fit_floor(name, dataset, seed, task)
 
 
 for _name in FLOORS:
@@ -138,5 +156,6 @@ for _name in FLOORS:
             planned_parameters=lambda arch, nodes, features, outputs, head: 0,
             fit=_fit(_name),
             marker="x",
+            tasks=FLOORS[_name].tasks,
         )
     )

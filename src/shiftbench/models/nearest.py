@@ -67,7 +67,8 @@ FAMILIES.add(
         schema=NearestConfig,
         display="1-NN floor",
         planned_parameters=lambda arch, nodes, features, outputs, head: 0,
-        fit=lambda arch, dataset, seed: fit_nearest(dataset),
+        fit=lambda arch, dataset, seed, task: fit_nearest(dataset),
         marker="x",
+        tasks=("classification",),
     )
 )
