@@ -3,6 +3,8 @@ the primary metric (its name and direction) and the judgement of a run from here
 
 - ``classification``: one class per signal; cross-entropy, accuracy.
 - ``regression``: one or more values per signal; mean squared error, RMSE.
+- ``source_localization``: the one node of each signal where something started (a leak);
+  every node scores itself, a softmax over the nodes, cross-entropy, accuracy.
 - ``node_regression``: a value (or several) on every node; mean squared error over the scored
   entries, RMSE. Entries that are not targets (a sensor that is not masked, an unobserved node)
   hold NaN and are left out of the loss and of every figure (of ``regression``'s too).
@@ -68,6 +70,30 @@ def tally_squared_error(outputs: torch.Tensor, targets: torch.Tensor) -> tuple[t
 def root_mean(total: torch.Tensor, count: torch.Tensor) -> float:
     """``sqrt(total / count)``: RMSE from summed squared errors."""
     return float(torch.sqrt(total / count))
+
+
+def node_scores(outputs: torch.Tensor) -> torch.Tensor:
+    """Each node's score as the logit of choosing it. Shapes: ``(batch, nodes, 1) -> (batch, nodes)``."""
+    return outputs[..., 0]
+
+
+def node_cross_entropy(outputs: torch.Tensor, sources: torch.Tensor) -> torch.Tensor:
+    """Cross-entropy of the softmax over the nodes' scores against the source node.
+
+    Shapes: outputs ``(batch, nodes, 1)``, sources ``(batch,)`` node indices -> scalar."""
+    return nn.functional.cross_entropy(node_scores(outputs), sources)
+
+
+def tally_located(outputs: torch.Tensor, sources: torch.Tensor) -> tuple[torch.Tensor, torch.Tensor]:
+    """``(correct, samples)``: how many highest-scoring nodes are the source.
+
+    Shapes: outputs ``(batch, nodes, 1)``, sources ``(batch,)`` -> two float64 scalars."""
+    return tally_correct(node_scores(outputs), sources)
+
+
+def located_nodes(outputs: torch.Tensor) -> torch.Tensor:
+    """The highest-scoring node. Shapes: ``(batch, nodes, 1) -> (batch,)``."""
+    return predicted_classes(node_scores(outputs))
 
 
 def chance_accuracy(train_labels: np.ndarray, labels: np.ndarray) -> float:
@@ -169,6 +195,33 @@ REGRESSION = TASKS.add(
         metric="rmse",
         higher_is_better=False,
         head="pooled",
+        split_rule="random",
+    )
+)
+def judge_source_localization(
+    sources: np.ndarray, predicted: np.ndarray, train_sources: np.ndarray, curve: list[dict[str, float]]
+) -> dict[str, Any]:
+    """The chance level (always naming the training split's most frequent source) and the flags
+    ``at_chance`` and ``loss_never_fell``; no confusion matrix (it would be nodes by nodes).
+
+    Shapes: sources and predicted ``(samples,)``, train_sources ``(train samples,)``."""
+    chance = chance_accuracy(train_sources, sources)
+    flags = ["at_chance"] * (share_equal(predicted, sources) <= chance) + ["loss_never_fell"] * loss_never_fell(curve)
+    return {"chance_accuracy": chance, "flags": flags}
+
+
+SOURCE_LOCALIZATION = TASKS.add(
+    Task(
+        name="source_localization",
+        loss=node_cross_entropy,
+        tally=tally_located,
+        finish=share,
+        predict=located_nodes,
+        score_predicted=share_equal,
+        judge=judge_source_localization,
+        metric="accuracy",
+        higher_is_better=True,
+        head="nodes",
         split_rule="random",
     )
 )

@@ -14,6 +14,9 @@ independent run, started from rest and run ``burn_in`` steps, so no two samples 
 - ``sensor_reconstruction``: one snapshot with a share ``masked`` of its sensors failed (their
   reading set to 0); the features are the readings and an indicator of a working sensor, the
   targets the failed sensors' true readings (the working ones are not scored).
+- ``sensor_leak``: a leak starts at one node and spreads by ``((1 - mixing) I + mixing S)`` a
+  step; the sensors see ``window`` snapshots of it, from a random ``1..delay`` steps after it
+  started, over the process's own readings as background; the target is the source node.
 
 Readings are divided by their standard deviation over all runs, so figures read in units of it.
 """
@@ -112,6 +115,37 @@ def sensor_reconstruction(
     )
 
 
+def sensor_leak(
+    nodes: int = 64, samples: int = 600, window: int = 2, delay: int = 3, amplitude: float = 10.0, decay: float = 0.98,
+    mixing: float = 0.5, hops: int = 1, noise: float = 0.3, burn_in: int = 30, neighbors: int = 6, seed: int = 0,
+    val_fraction: float = 0.2, test_fraction: float = 0.2,
+) -> Dataset:
+    """Locating a leak: signals ``(samples, nodes, window)``, the leak's spread ``amplitude *
+    D^t e_s`` (``D = (1 - mixing) I + mixing S``, ``t`` from a random start in ``1..delay``) on
+    top of the process's standardized readings; labels ``(samples,)`` the source node ``s``."""
+    rng = np.random.default_rng(seed)
+    graph = sensor_network(nodes, neighbors, rng)
+    shift = normalized_adjacency(graph)
+    background = simulate(graph, samples, window, burn_in, decay, mixing, hops, noise, rng)
+    background /= background.std()
+    sources = rng.integers(nodes, size=samples)
+    spread = np.zeros((nodes, samples))
+    spread[sources, np.arange(samples)] = amplitude
+    starts = rng.integers(1, delay + 1, size=samples)
+    snapshots = []
+    for step in range(1, delay + window):
+        spread = (1.0 - mixing) * spread + mixing * (shift @ spread)
+        snapshots.append(spread.T.copy())
+    seen = np.stack(snapshots, axis=1)  # (samples, delay + window - 1, nodes)
+    taken = seen[np.arange(samples)[:, None], starts[:, None] - 1 + np.arange(window)]  # (samples, window, nodes)
+    signals = (taken + background).transpose(0, 2, 1)  # (samples, window, nodes) -> (samples, nodes, window)
+    return Dataset(
+        signals=signals.astype(np.float32), labels=sources.astype(np.int64),
+        splits=random_splits(samples, val_fraction, test_fraction, seed), classes=1, native_graph=graph,
+        name="sensor_leak",
+    )
+
+
 @dataclass
 class SensorDynamicsConfig(RandomSplitConfig):
     """The network and the process both scenarios share (see the module's description)."""
@@ -152,6 +186,20 @@ class SensorReconstructionConfig(SensorDynamicsConfig):
     masked: float = declared(FRACTION, 0.3)
 
 
+@dataclass
+class SensorLeakConfig(SensorDynamicsConfig):
+    """Locate the node where a leak started from ``window`` snapshots of its spread."""
+
+    source: str = "sensor_leak"
+    mixing: float = declared(FRACTION, 0.5)
+    window: int = declared(at_least(1), 2)
+    delay: int = declared(at_least(1), 3)
+    amplitude: float = declared(at_least(0, "a number"), 10.0)
+
+
+DATASETS.add(DatasetSource(
+    "sensor_leak", SensorLeakConfig, keyword_loader(sensor_leak), "demo: leak source", tasks=("source_localization",),
+))
 DATASETS.add(DatasetSource(
     "sensor_forecast", SensorForecastConfig, keyword_loader(sensor_forecast), "demo: sensor forecast",
     tasks=("node_regression",),
