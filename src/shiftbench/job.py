@@ -44,8 +44,17 @@ if TYPE_CHECKING:
 
 
 def load_data(run: RunConfig) -> Dataset:
-    """The run's dataset under its split, shared by the jobs of this process."""
-    return shared(f"dataset/split{run.split}", (run.data,), lambda: load_dataset(run.data, run.split))
+    """The run's dataset under its split, shared by the jobs of this process; a one-line error
+    when its targets are not what the run's task learns (a user's file of another kind)."""
+    dataset = shared(f"dataset/split{run.split}", (run.data,), lambda: load_dataset(run.data, run.split))
+    task = TASKS[run.task]
+    if not task.fits(dataset.labels, dataset.nodes):
+        where = f"data.path={run.data.path!r}" if run.data.source == "file" else f"data={run.data.source}"
+        raise ConfigError(
+            f"task={run.task} is not accepted for {where}, whose targets have shape {dataset.labels.shape} "
+            f"({dataset.labels.dtype}); accepted: a task that learns them, or {task.targets} for task={run.task}"
+        )
+    return dataset
 
 
 def check_inputs(run: RunConfig) -> None:

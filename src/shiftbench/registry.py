@@ -128,6 +128,8 @@ class Task:
         higher_is_better: the metric's direction.
         head: ``pooled`` (one output per signal) or ``nodes`` (one per node).
         split_rule: how samples are split (``stratified`` keeps class shares, ``random``).
+        targets: what its targets are, in words (for errors): ``class labels (samples,)``.
+        fits: ``(targets, nodes) -> bool``: whether a dataset's targets are such.
     """
 
     name: str
@@ -141,6 +143,8 @@ class Task:
     higher_is_better: bool
     head: str
     split_rule: str
+    targets: str
+    fits: Callable[..., bool]
 
     def score(self, outputs: Any, targets: Any) -> float:
         """The primary metric of ``outputs`` against ``targets`` (one tally, finished)."""

@@ -72,6 +72,26 @@ def root_mean(total: torch.Tensor, count: torch.Tensor) -> float:
     return float(torch.sqrt(total / count))
 
 
+def are_classes(targets: np.ndarray, nodes: int) -> bool:
+    """Class codes: ``(samples,)`` integers."""
+    return targets.ndim == 1 and targets.dtype.kind in "iu"
+
+
+def are_nodes(targets: np.ndarray, nodes: int) -> bool:
+    """Node indices: ``(samples,)`` integers in ``0..nodes - 1``."""
+    return are_classes(targets, nodes) and (len(targets) == 0 or 0 <= targets.min() <= targets.max() < nodes)
+
+
+def are_values(targets: np.ndarray, nodes: int) -> bool:
+    """Values per signal: ``(samples, outputs)`` floats."""
+    return targets.ndim == 2 and targets.dtype.kind == "f"
+
+
+def are_node_values(targets: np.ndarray, nodes: int) -> bool:
+    """Values on every node: ``(samples, nodes, outputs)`` floats."""
+    return targets.ndim == 3 and targets.shape[1] == nodes and targets.dtype.kind == "f"
+
+
 def node_scores(outputs: torch.Tensor) -> torch.Tensor:
     """Each node's score as the logit of choosing it. Shapes: ``(batch, nodes, 1) -> (batch, nodes)``."""
     return outputs[..., 0]
@@ -180,6 +200,8 @@ CLASSIFICATION = TASKS.add(
         higher_is_better=True,
         head="pooled",
         split_rule="stratified",
+        targets="class labels (samples,)",
+        fits=are_classes,
     )
 )
 
@@ -196,6 +218,8 @@ REGRESSION = TASKS.add(
         higher_is_better=False,
         head="pooled",
         split_rule="random",
+        targets="values (samples, outputs)",
+        fits=are_values,
     )
 )
 def judge_source_localization(
@@ -223,6 +247,8 @@ SOURCE_LOCALIZATION = TASKS.add(
         higher_is_better=True,
         head="nodes",
         split_rule="random",
+        targets="source nodes (samples,)",
+        fits=are_nodes,
     )
 )
 NODE_REGRESSION = TASKS.add(
@@ -238,5 +264,7 @@ NODE_REGRESSION = TASKS.add(
         higher_is_better=False,
         head="nodes",
         split_rule="random",
+        targets="values on every node (samples, nodes, outputs)",
+        fits=are_node_values,
     )
 )

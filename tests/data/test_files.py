@@ -58,3 +58,40 @@ def test_byte_string_labels_are_read_as_text(tmp_path):
     np.savez(tmp_path / "d.npz", signals=np.zeros((30, 2)), labels=np.repeat([b"low", b"high", b"mid"], 10))
     dataset = load_signal_file(str(tmp_path / "d.npz"))
     assert dataset.classes == 3 and dataset.labels[:10].tolist() == [1] * 10  # 'high' < 'low' < 'mid'
+
+
+def test_values_per_signal_from_npz_and_csv_load_alike(tmp_path):
+    signals = np.random.default_rng(2).standard_normal((20, 3))
+    values = signals @ np.array([1.0, -2.0, 0.5])
+    np.savez(tmp_path / "v.npz", signals=signals, targets=values)
+    lines = ["n0,n1,n2,target"] + [",".join(repr(float(cell)) for cell in [*row, value]) for row, value in zip(signals, values)]
+    (tmp_path / "v.csv").write_text("\n".join(lines) + "\n")
+    from_npz, from_csv = load_signal_file(str(tmp_path / "v.npz")), load_signal_file(str(tmp_path / "v.csv"))
+    assert from_npz.labels.shape == (20, 1) and from_npz.labels.dtype == np.float32 and from_npz.classes == 1
+    np.testing.assert_array_equal(from_npz.labels, from_csv.labels)
+    np.testing.assert_array_equal(from_npz.signals, from_csv.signals)
+    assert len(from_npz.splits.test) == 4  # a plain random split: there are no classes to stratify by
+
+
+def test_values_on_nodes_are_nan_where_the_mask_says_they_are_not_targets(tmp_path):
+    rng = np.random.default_rng(3)
+    mask = rng.random((15, 4)) < 0.5
+    mask[0, 0] = True
+    node_values = np.where(mask, rng.standard_normal((15, 4)), np.nan)  # NaN only where mask is False
+    np.savez(tmp_path / "n.npz", signals=rng.standard_normal((15, 4)), node_targets=node_values, mask=mask)
+    dataset = load_signal_file(str(tmp_path / "n.npz"))
+    assert dataset.labels.shape == (15, 4, 1)
+    np.testing.assert_array_equal(~np.isnan(dataset.labels[:, :, 0]), mask)
+
+
+def test_a_task_that_does_not_learn_the_files_targets_is_refused_in_one_line(tmp_path):
+    from shiftbench.config import validate
+    from shiftbench.job import check_inputs
+    from tests.conftest import composed
+
+    np.savez(tmp_path / "v.npz", signals=np.zeros((20, 3)), targets=np.arange(20.0))
+    run = validate(composed(["data=file", f"data.path={tmp_path / 'v.npz'}", f"results_dir={tmp_path}"]))
+    with pytest.raises(ConfigError, match=r"task=classification is not accepted for data.path='.*v.npz', whose "
+                                          r"targets have shape \(20, 1\) \(float32\); accepted: a task that learns "
+                                          r"them, or class labels \(samples,\) for task=classification"):
+        check_inputs(run)

@@ -1,10 +1,15 @@
 """The user's own signals from a file, checked before anything trains.
 
 ``.npz`` (read with ``allow_pickle=False``): ``signals`` ``(samples, nodes)`` or
-``(samples, nodes, features)``, ``labels`` ``(samples,)`` of integers or strings, optional
-``split`` ``(samples,)`` with 0 train, 1 val, 2 test, optional ``positions`` ``(nodes, dims)``.
+``(samples, nodes, features)``; one kind of target: ``labels`` ``(samples,)`` of integers or
+strings (classes), ``targets`` ``(samples,)`` or ``(samples, outputs)`` of numbers (a value per
+signal), or ``node_targets`` ``(samples, nodes)`` or ``(samples, nodes, outputs)`` of numbers (a
+value on every node) with an optional boolean ``mask`` ``(samples, nodes)`` of the entries that
+are targets; optional ``split`` ``(samples,)`` with 0 train, 1 val, 2 test, optional
+``positions`` ``(nodes, dims)``.
 
-``.csv``: a header, one row a sample, a ``label`` column, every other column a node's value.
+``.csv``: a header, one row a sample, a ``label`` column (classes) or ``target`` / ``target_*``
+columns (values per signal), every other column a node's value.
 
 Every problem is a :class:`ConfigError` with one line that names it and the fix.
 """
@@ -26,7 +31,7 @@ from shiftbench.csv_input import read_user_csv
 from shiftbench.data.dataset import Dataset, Splits, keyword_loader
 from shiftbench.data.labels import encode_labels
 from shiftbench.config import Check, declared
-from shiftbench.data.splits import RandomSplitConfig, stratified_splits
+from shiftbench.data.splits import RandomSplitConfig, random_splits, stratified_splits
 from shiftbench.errors import file_error
 from shiftbench.npz_input import require_fits_in_memory
 from shiftbench.graphs.files import load_graph_file
@@ -38,6 +43,8 @@ if TYPE_CHECKING:
 
 SUFFIXES = (".npz", ".csv")
 SPLIT_NAMES = {0: "train", 1: "val", 2: "test"}
+# The arrays that can hold what is to be predicted; a file holds one of them.
+TARGET_ARRAYS = ("labels", "targets", "node_targets")
 
 
 _fail = partial(file_error, "data.path")
@@ -75,25 +82,35 @@ def read_npz(path: Path) -> dict[str, np.ndarray]:
 INTEGER_LABEL = re.compile(r"^-?(0|[1-9]\d{0,17})$")
 
 
+def target_columns(columns: list[str]) -> list[str]:
+    """The columns of a CSV that hold values to predict: ``target`` and ``target_*``."""
+    return [column for column in columns if column == "target" or column.startswith("target_")]
+
+
 def read_csv(path: Path) -> dict[str, np.ndarray]:
     import pandas as pd
 
     table = read_user_csv(
         path, _fail, "write a header row with a 'label' column and one column per node", text_columns=("label",)
     )
-    if "label" not in table.columns:
-        raise _fail(path, "has no 'label' column; write a header row with a 'label' column and one column per node")
+    targets = target_columns(list(table.columns))
+    if "label" in table.columns and targets:
+        raise _fail(path, f"has a 'label' column and {targets[0]!r}; accepted: 'label' (classes) or target columns (values), not both")
+    if "label" not in table.columns and not targets:
+        raise _fail(path, "has no 'label' column; write a header row with a 'label' column (or 'target' columns) and one column per node")
     if table.empty:
         raise _fail(path, "has a header but no rows; accepted: one sample a row")
-    nodes = table.drop(columns="label")
+    nodes = table.drop(columns=["label"] if "label" in table.columns else targets)
     text = [column for column in nodes.columns if not pd.api.types.is_numeric_dtype(nodes[column])]
     if text:
-        raise _fail(path, f"column {text[0]!r} is not numeric; every column but 'label' must hold node values")
+        raise _fail(path, f"column {text[0]!r} is not numeric; every column but 'label' (or the target columns) must hold node values")
     rows = np.arange(len(table))
     for column in nodes.columns:
         values = nodes[column].to_numpy()
         if len(values) >= 3 and (np.array_equal(values, rows) or np.array_equal(values, rows + 1)):
             raise _fail(path, f"column {column!r} holds the row numbers, not node values (a saved index?); drop it")
+    if targets:
+        return {"signals": nodes.to_numpy(dtype=np.float64), "targets": table[targets].to_numpy()}
     return {"signals": nodes.to_numpy(dtype=np.float64), "labels": _labels_from_text(path, table["label"])}
 
 
@@ -153,6 +170,47 @@ def _check_labels(path: Path, labels: np.ndarray, samples: int) -> np.ndarray:
     return codes
 
 
+def _real(path: Path, name: str, values: np.ndarray) -> np.ndarray:
+    """``values`` as float32, or a one-line refusal of text, complex or object arrays."""
+    if not np.issubdtype(values.dtype, np.number) or np.issubdtype(values.dtype, np.complexfloating):
+        raise _fail(path, f"{name} have dtype {values.dtype}; accepted: real numbers (classes go in 'labels')")
+    return values.astype(np.float32)
+
+
+def _check_targets(path: Path, targets: np.ndarray, samples: int) -> np.ndarray:
+    """A value per signal: ``(samples,)`` or ``(samples, outputs)``, finite -> ``(samples, outputs)``."""
+    if targets.ndim not in (1, 2) or len(targets) != samples or targets.size == 0:
+        raise _fail(path, f"targets have shape {targets.shape}; accepted: ({samples},) or ({samples}, outputs)")
+    targets = _real(path, "targets", targets).reshape(samples, -1)
+    if not np.isfinite(targets).all():
+        sample = int(np.argwhere(~np.isfinite(targets))[0][0])
+        raise _fail(path, f"targets hold NaN or infinite values (first at sample {sample}); remove those samples")
+    return targets
+
+
+def _check_node_targets(path: Path, targets: np.ndarray, mask: np.ndarray | None, samples: int, nodes: int) -> np.ndarray:
+    """Values on every node ``(samples, nodes[, outputs])`` -> ``(samples, nodes, outputs)`` with
+    NaN where ``mask`` ``(samples, nodes)`` says an entry is not a target; the entries that are
+    must be finite, and at least one must be."""
+    if targets.ndim not in (2, 3) or targets.shape[:2] != (samples, nodes) or targets.size == 0:
+        raise _fail(path, f"node_targets have shape {targets.shape}; accepted: ({samples}, {nodes}) or ({samples}, {nodes}, outputs)")
+    targets = _real(path, "node_targets", targets).reshape(samples, nodes, -1)
+    scored = np.ones((samples, nodes), dtype=bool)
+    if mask is not None:
+        if mask.shape != (samples, nodes) or mask.dtype != np.bool_:
+            raise _fail(path, f"mask has shape {mask.shape} and dtype {mask.dtype}; accepted: booleans ({samples}, {nodes})")
+        if not mask.any():
+            raise _fail(path, "mask hides every node; accepted: True where a node's value is a target, somewhere")
+        scored = mask
+    bad = scored[:, :, None] & ~np.isfinite(targets)
+    if bad.any():
+        sample, node, _ = np.argwhere(bad)[0]
+        where = "where mask is True " if mask is not None else ""
+        raise _fail(path, f"node_targets hold NaN or infinite values {where}(first at sample {sample}, node {node}); "
+                          "mark them False in a boolean 'mask' (samples, nodes), or fill them")
+    return np.where(scored[:, :, None], targets, np.nan).astype(np.float32)
+
+
 def _check_split(path: Path, split: np.ndarray, labels: np.ndarray) -> Splits:
     samples = len(labels)
     if split.shape != (samples,):
@@ -164,7 +222,7 @@ def _check_split(path: Path, split: np.ndarray, labels: np.ndarray) -> Splits:
     empty = [name for name, indices in parts.items() if len(indices) == 0]
     if empty:
         raise _fail(path, f"split has no {empty[0]} samples; give each of train, val and test at least one")
-    if len(np.unique(labels[parts["train"]])) < 2:
+    if labels.ndim == 1 and labels.dtype.kind in "iu" and len(np.unique(labels[parts["train"]])) < 2:
         raise _fail(path, "split's train part holds a single class; give the train samples at least 2 classes")
     return Splits(**parts)
 
@@ -207,16 +265,27 @@ def load_signal_file(
     if not file.is_file():
         raise _fail(file, "no such file; give the path of a .npz or .csv file")
     arrays = read_npz(file) if file.suffix.lower() == ".npz" else read_csv(file)
-    for key in ("signals", "labels"):
-        if key not in arrays:
-            raise _fail(file, f"has no array {key!r}; save signals (samples, nodes[, features]) and labels (samples,)")
+    if "signals" not in arrays:
+        raise _fail(file, "has no array 'signals'; save signals (samples, nodes[, features]) and labels (samples,)")
+    kinds = [key for key in TARGET_ARRAYS if key in arrays]
+    if len(kinds) != 1:
+        found = f"both {kinds[0]!r} and {kinds[1]!r}" if kinds else "no array 'labels'"
+        raise _fail(file, f"has {found}; save signals (samples, nodes[, features]) and one of labels (samples,) "
+                          "(classes), targets (values per signal) or node_targets (values on every node)")
     signals = _check_signals(file, arrays["signals"])
-    labels = _check_labels(file, arrays["labels"], len(signals))
+    samples, nodes = signals.shape[:2]
+    if kinds == ["labels"]:
+        labels = _check_labels(file, arrays["labels"], samples)
+    elif kinds == ["targets"]:
+        labels = _check_targets(file, arrays["targets"], samples)
+    else:
+        labels = _check_node_targets(file, arrays["node_targets"], arrays.get("mask"), samples, nodes)
     if "split" in arrays:
         splits = _check_split(file, arrays["split"], labels)
-    else:
+    elif kinds == ["labels"]:
         splits = _random_splits(file, labels, val_fraction, test_fraction, seed)
-    nodes = signals.shape[1]
+    else:
+        splits = random_splits(samples, val_fraction, test_fraction, seed)
     positions = _check_positions(file, arrays["positions"], nodes) if "positions" in arrays else None
     native = replace(
         load_graph_file(graph, nodes, key="data.graph") if graph else replace(line_graph(nodes), name="column_order"),
@@ -226,7 +295,7 @@ def load_signal_file(
         signals=signals,
         labels=labels,
         splits=splits,
-        classes=int(labels.max()) + 1,
+        classes=int(labels.max()) + 1 if kinds == ["labels"] else labels.shape[-1],
         native_graph=native,
         name=file.stem,
     )
@@ -244,4 +313,7 @@ class FileDataConfig(RandomSplitConfig):
     graph: str = ""
 
 
-DATASETS.add(DatasetSource("file", FileDataConfig, keyword_loader(load_signal_file), "signal file"))
+DATASETS.add(DatasetSource(
+    "file", FileDataConfig, keyword_loader(load_signal_file), "signal file",
+    tasks=("classification", "regression", "node_regression"),
+))
