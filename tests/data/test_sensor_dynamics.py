@@ -114,3 +114,30 @@ def test_locating_the_leak_through_the_graph_beats_the_loudest_sensor():
     matched = float(((seen @ templates.T).argmax(axis=1) == data.labels).mean())
     loudest = float((data.signals[:, :, -1].argmax(axis=1) == data.labels).mean())
     assert matched > loudest + 0.08 and matched > 20 / nodes
+
+
+def test_sizing_a_leak_through_the_graph_beats_sizing_it_by_the_loudest_sensor():
+    # The size read off the best-matching spread on the sensor network (the matched filter's
+    # peak, scaled by least squares on the training split) against the same scaling of the
+    # loudest reading (graph-free), and the mean size (the floor).
+    from shiftbench.data.sensor_dynamics import sensor_leak_size
+
+    data = sensor_leak_size()
+    sizes, train, test = data.labels[:, 0], data.splits.train, data.splits.test
+    assert data.labels.shape == (data.samples, 1) and 0 <= sizes.min() and sizes.max() <= 30
+    nodes, window, mixing, delay = data.nodes, data.features, 0.5, 3
+    spread = (1 - mixing) * np.eye(nodes) + mixing * normalized_adjacency(data.native_graph).toarray()
+    templates = sum(
+        np.concatenate([np.linalg.matrix_power(spread, start + step).T for step in range(window)], axis=1)
+        for start in range(1, delay + 1)
+    )
+    seen = data.signals.transpose(0, 2, 1).reshape(data.samples, -1)
+    matched = (seen @ templates.T / np.linalg.norm(templates, axis=1)).max(axis=1)
+    loudest = data.signals.max(axis=(1, 2))
+
+    def scaled_error(feature):
+        slope, intercept = np.polyfit(feature[train], sizes[train], 1)
+        return rmse(slope * feature[test] + intercept, sizes[test])
+
+    floor = rmse(sizes[train].mean(), sizes[test])
+    assert scaled_error(matched) < 0.93 * scaled_error(loudest) < 0.8 * floor

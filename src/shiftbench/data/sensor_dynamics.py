@@ -14,9 +14,10 @@ independent run, started from rest and run ``burn_in`` steps, so no two samples 
 - ``sensor_reconstruction``: one snapshot with a share ``masked`` of its sensors failed (their
   reading set to 0); the features are the readings and an indicator of a working sensor, the
   targets the failed sensors' true readings (the working ones are not scored).
-- ``sensor_leak``: a leak starts at one node and spreads by ``((1 - mixing) I + mixing S)`` a
+- ``sensor_leak``, ``sensor_leak_size``: a leak starts at one node and spreads by ``((1 - mixing) I + mixing S)`` a
   step; the sensors see ``window`` snapshots of it, from a random ``1..delay`` steps after it
-  started, over the process's own readings as background; the target is the source node.
+  started, over the process's own readings as background; the target is the source node (or,
+  with sizes drawn at random, the leak's size: the volume it lost).
 
 Readings are divided by their standard deviation over all runs, so figures read in units of it.
 """
@@ -115,34 +116,73 @@ def sensor_reconstruction(
     )
 
 
+def leak_spread(shift: sp.spmatrix, sources: np.ndarray, sizes: np.ndarray, starts: np.ndarray, window: int,
+                mixing: float) -> np.ndarray:
+    """``window`` snapshots of leaks of ``sizes`` started at ``sources``, seen from ``starts``
+    steps after they began: ``sizes * D^t e_s`` with ``D = (1 - mixing) I + mixing S``.
+
+    Shapes: sources, sizes, starts ``(samples,)`` -> ``(samples, window, nodes)``."""
+    samples = len(sources)
+    spread = np.zeros((shift.shape[0], samples))
+    spread[sources, np.arange(samples)] = sizes
+    snapshots = []
+    for _ in range(int(starts.max()) + window - 1):
+        spread = (1.0 - mixing) * spread + mixing * (shift @ spread)
+        snapshots.append(spread.T.copy())
+    seen = np.stack(snapshots, axis=1)  # (samples, steps, nodes)
+    return seen[np.arange(samples)[:, None], starts[:, None] - 1 + np.arange(window)]
+
+
+def leaks(
+    nodes: int, samples: int, window: int, delay: int, amplitude: float, decay: float, mixing: float, hops: int,
+    noise: float, burn_in: int, neighbors: int, seed: int, sized: bool,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, Graph]:
+    """Leaks over the network's own readings: ``(signals (samples, nodes, window), sources
+    (samples,), sizes (samples,), graph)``; every leak has size ``amplitude``, or with ``sized``
+    a size drawn uniformly from ``[0, amplitude]``."""
+    rng = np.random.default_rng(seed)
+    graph = sensor_network(nodes, neighbors, rng)
+    background = simulate(graph, samples, window, burn_in, decay, mixing, hops, noise, rng)
+    background /= background.std()
+    sources = rng.integers(nodes, size=samples)
+    starts = rng.integers(1, delay + 1, size=samples)
+    sizes = rng.uniform(0.0, amplitude, size=samples) if sized else np.full(samples, amplitude)
+    seen = leak_spread(normalized_adjacency(graph), sources, sizes, starts, window, mixing)
+    signals = (seen + background).transpose(0, 2, 1)  # (samples, window, nodes) -> (samples, nodes, window)
+    return signals.astype(np.float32), sources, sizes, graph
+
+
 def sensor_leak(
     nodes: int = 64, samples: int = 600, window: int = 2, delay: int = 3, amplitude: float = 10.0, decay: float = 0.98,
     mixing: float = 0.5, hops: int = 1, noise: float = 0.3, burn_in: int = 30, neighbors: int = 6, seed: int = 0,
     val_fraction: float = 0.2, test_fraction: float = 0.2,
 ) -> Dataset:
     """Locating a leak: signals ``(samples, nodes, window)``, the leak's spread ``amplitude *
-    D^t e_s`` (``D = (1 - mixing) I + mixing S``, ``t`` from a random start in ``1..delay``) on
-    top of the process's standardized readings; labels ``(samples,)`` the source node ``s``."""
-    rng = np.random.default_rng(seed)
-    graph = sensor_network(nodes, neighbors, rng)
-    shift = normalized_adjacency(graph)
-    background = simulate(graph, samples, window, burn_in, decay, mixing, hops, noise, rng)
-    background /= background.std()
-    sources = rng.integers(nodes, size=samples)
-    spread = np.zeros((nodes, samples))
-    spread[sources, np.arange(samples)] = amplitude
-    starts = rng.integers(1, delay + 1, size=samples)
-    snapshots = []
-    for step in range(1, delay + window):
-        spread = (1.0 - mixing) * spread + mixing * (shift @ spread)
-        snapshots.append(spread.T.copy())
-    seen = np.stack(snapshots, axis=1)  # (samples, delay + window - 1, nodes)
-    taken = seen[np.arange(samples)[:, None], starts[:, None] - 1 + np.arange(window)]  # (samples, window, nodes)
-    signals = (taken + background).transpose(0, 2, 1)  # (samples, window, nodes) -> (samples, nodes, window)
+    D^t e_s`` (``t`` from a random start in ``1..delay``) on top of the process's standardized
+    readings; labels ``(samples,)`` the source node ``s``."""
+    signals, sources, _, graph = leaks(
+        nodes, samples, window, delay, amplitude, decay, mixing, hops, noise, burn_in, neighbors, seed, sized=False
+    )
     return Dataset(
-        signals=signals.astype(np.float32), labels=sources.astype(np.int64),
+        signals=signals, labels=sources.astype(np.int64), splits=random_splits(samples, val_fraction, test_fraction, seed),
+        classes=1, native_graph=graph, name="sensor_leak",
+    )
+
+
+def sensor_leak_size(
+    nodes: int = 64, samples: int = 600, window: int = 2, delay: int = 3, amplitude: float = 30.0, decay: float = 0.98,
+    mixing: float = 0.5, hops: int = 1, noise: float = 0.3, burn_in: int = 30, neighbors: int = 6, seed: int = 0,
+    val_fraction: float = 0.2, test_fraction: float = 0.2,
+) -> Dataset:
+    """The volume a leak lost: as ``sensor_leak``, with each leak's size drawn from
+    ``[0, amplitude]``; targets ``(samples, 1)`` the size."""
+    signals, _, sizes, graph = leaks(
+        nodes, samples, window, delay, amplitude, decay, mixing, hops, noise, burn_in, neighbors, seed, sized=True
+    )
+    return Dataset(
+        signals=signals, labels=sizes.astype(np.float32)[:, None],
         splits=random_splits(samples, val_fraction, test_fraction, seed), classes=1, native_graph=graph,
-        name="sensor_leak",
+        name="sensor_leak_size",
     )
 
 
@@ -197,8 +237,21 @@ class SensorLeakConfig(SensorDynamicsConfig):
     amplitude: float = declared(at_least(0, "a number"), 10.0)
 
 
+@dataclass
+class SensorLeakSizeConfig(SensorLeakConfig):
+    """Estimate a leak's size (the volume it lost), drawn from ``[0, amplitude]``, from
+    ``window`` snapshots of its spread."""
+
+    source: str = "sensor_leak_size"
+    amplitude: float = declared(at_least(0, "a number"), 30.0)
+
+
 DATASETS.add(DatasetSource(
     "sensor_leak", SensorLeakConfig, keyword_loader(sensor_leak), "demo: leak source", tasks=("source_localization",),
+))
+DATASETS.add(DatasetSource(
+    "sensor_leak_size", SensorLeakSizeConfig, keyword_loader(sensor_leak_size),
+    "demo: leak size", tasks=("regression",),
 ))
 DATASETS.add(DatasetSource(
     "sensor_forecast", SensorForecastConfig, keyword_loader(sensor_forecast), "demo: sensor forecast",
