@@ -2,11 +2,14 @@
 
 1. Tuning with equal budgets: every trained candidate gets ``trials`` Optuna trials (TPE, seeded)
    over its search space, each trial a normal job on split 0, seed 0, scored by its validation
-   accuracy only. Graph-free floors choose their own setting on the same validation split.
+   figure of the task's metric only (accuracy, RMSE). Graph-free floors choose their own setting
+   on the same validation split.
 2. Repeated, paired evaluation: each candidate's chosen config is retrained on ``splits`` random
    splits x ``seeds`` seeds, the same units for every candidate.
-3. Paired statistics against the best graph-free candidate (chosen by validation accuracy), Holm's
-   correction over the comparisons made, a region of practical equivalence (``rope``).
+3. Paired statistics against the best graph-free candidate (chosen on validation), Holm's
+   correction over the comparisons made, a region of practical equivalence (``rope``, in the
+   metric's units). Differences are taken so that positive is better (for an error: the
+   reference's minus the candidate's), and said in the metric's own sign.
 4. The verdict: one sentence per candidate, with the effect, its interval, p and the cost.
 
 Every job goes through the store, so a rerun trains nothing that is done and resumes what was cut.
@@ -27,16 +30,22 @@ from omegaconf import DictConfig, OmegaConf
 
 from shiftbench.config import validate
 from shiftbench.errors import ConfigError
-from shiftbench.registry import FAMILIES
+from shiftbench.registry import FAMILIES, TASKS, Task
 from shiftbench.statistics import compare_paired, holm
+
 
 class DecisionError(RuntimeError):
     """The study cannot reach a verdict (every trial of a candidate failed, or no graph-free
     candidate completed every unit); the message says which."""
 
 
-# Record figures the verdict reads, per unit.
-UNIT_FIELDS = ("test_accuracy", "val_accuracy", "parameters", "train_seconds", "inference_seconds_per_sample")
+# Record figures the verdict reads, per unit, besides the task's metric on test and validation.
+COST_FIELDS = ("parameters", "train_seconds", "inference_seconds_per_sample")
+
+
+def unit_fields(task: Task) -> tuple[str, ...]:
+    """The record figures of a unit: ``test_<metric>``, ``val_<metric>`` and the costs."""
+    return (f"test_{task.metric}", f"val_{task.metric}", *COST_FIELDS)
 
 
 @dataclass(frozen=True)
@@ -75,6 +84,7 @@ class Settings:
     sampler_seed: int
     folder: str
     spaces: dict[str, list[Dimension]] = field(default_factory=dict)
+    task: Task = field(default_factory=lambda: TASKS["classification"])
 
 
 def override_text(value: Any) -> str:
@@ -123,14 +133,18 @@ def read_settings(settings_dir: Path, overrides: list[str], compose: Callable[[l
         if not isinstance(value, int) or isinstance(value, bool) or value < 1:
             raise ConfigError(f"decision.{key}={value!r} is not accepted; accepted: an integer >= 1")
     if not 0 <= merged.rope < 1:
-        raise ConfigError(f"decision.rope={merged.rope!r} is not accepted; accepted: a number in [0, 1)")
+        raise ConfigError(f"decision.rope={merged.rope!r} is not accepted; accepted: a number in [0, 1) (in the metric's units)")
     if not 0 < merged.alpha < 1:
         raise ConfigError(f"decision.alpha={merged.alpha!r} is not accepted; accepted: a number in (0, 1)")
-    candidates, spaces = [], {}
+    candidates, spaces, tasks = [], {}, set()
     for entry in merged.candidates:
         try:
             composed = compose(list(entry.overrides))
+            family_tasks = FAMILIES[composed.arch.family].tasks if composed.arch.family in FAMILIES else None
+            if family_tasks is not None and composed.task not in family_tasks:
+                continue  # a floor for another task (ridge in a classification study, say)
             validate(composed)
+            tasks.add(composed.task)
         except ConfigError as error:
             raise ConfigError(f"candidate {entry.name!r}: {error}") from None
         except Exception as error:  # Hydra's refusal of an override it cannot compose
@@ -149,11 +163,13 @@ def read_settings(settings_dir: Path, overrides: list[str], compose: Callable[[l
                     )
     if not candidates or not any(not c.uses_graph for c in candidates):
         raise ConfigError("decision.candidates must hold at least one graph-free candidate to compare against")
+    if len(tasks) > 1:
+        raise ConfigError(f"decision.candidates learn different tasks ({', '.join(sorted(tasks))}); accepted: one task")
     if len({c.name for c in candidates}) != len(candidates):
         raise ConfigError("decision.candidates: two candidates share a name; accepted: distinct names")
     return Settings(
         candidates, merged.trials, merged.splits, merged.seeds, float(merged.rope), float(merged.alpha),
-        int(merged.sampler_seed), str(merged.folder), spaces,
+        int(merged.sampler_seed), str(merged.folder), spaces, TASKS[tasks.pop()],
     )
 
 
@@ -197,18 +213,20 @@ def configured_values(space: list[Dimension], configured: DictConfig) -> dict[st
 def tune(
     candidate: Candidate, settings: Settings, run: RunJob, say: Callable[[str], None], configured: DictConfig | None = None
 ) -> tuple[list[str], dict]:
-    """Choose ``candidate``'s setting on validation accuracy; returns the chosen overrides and a
-    summary (trials run, failed trials, the best validation accuracy). The first trial is the
+    """Choose ``candidate``'s setting on the validation figure of the task's metric; returns the
+    chosen overrides and a summary (trials run, failed trials, ``best_val_<metric>``). The first trial is the
     configured setting where the space holds it (``configured``: the candidate's composed
     config), so tuning never ends below the default on validation. Floors are not tuned here:
     they choose on validation inside their own job."""
+    metric = settings.task.metric
     if FAMILIES[candidate.family].fit is not None:
-        return [], {"trials": 0, "failed": 0, "best_val_accuracy": None, "note": "chooses its setting on validation itself"}
+        return [], {"trials": 0, "failed": 0, f"best_val_{metric}": None, "note": "chooses its setting on validation itself"}
     import optuna
 
     optuna.logging.set_verbosity(optuna.logging.WARNING)
     sampler = optuna.samplers.TPESampler(seed=settings.sampler_seed)
-    study = optuna.create_study(direction="maximize", sampler=sampler)
+    direction = "maximize" if settings.task.higher_is_better else "minimize"
+    study = optuna.create_study(direction=direction, sampler=sampler)
     if configured is not None:
         study.enqueue_trial(configured_values(settings.spaces[candidate.family], configured))
     failed = 0
@@ -216,19 +234,19 @@ def tune(
         trial = study.ask()
         lines = suggest(trial, settings.spaces[candidate.family])
         record = run([*candidate.overrides, *lines, "split=0", "seed=0"])
-        value = record.get("val_accuracy")
+        value = record.get(f"val_{metric}")
         if record.get("status") not in ("completed", "timed_out") or value is None:
             failed += 1
             study.tell(trial, state=optuna.trial.TrialState.FAIL)
             say(f"  trial {number + 1}/{settings.trials} of {candidate.name}: failed ({record.get('error')})")
             continue
         study.tell(trial, float(value))
-        say(f"  trial {number + 1}/{settings.trials} of {candidate.name}: val accuracy {value:.3f}  {' '.join(lines)}")
+        say(f"  trial {number + 1}/{settings.trials} of {candidate.name}: val {metric} {value:.3f}  {' '.join(lines)}")
     if failed == settings.trials:
         raise DecisionError(f"every tuning trial of {candidate.name} failed; see the failed records in the store")
     best = study.best_trial
     chosen = [f"{key}={override_text(value)}" for key, value in best.params.items()]
-    return chosen, {"trials": settings.trials, "failed": failed, "best_val_accuracy": best.value}
+    return chosen, {"trials": settings.trials, "failed": failed, f"best_val_{metric}": best.value}
 
 
 def evaluate(candidate: Candidate, chosen: list[str], settings: Settings, run: RunJob) -> pd.DataFrame:
@@ -238,7 +256,7 @@ def evaluate(candidate: Candidate, chosen: list[str], settings: Settings, run: R
         for seed in range(settings.seeds):
             record = run([*candidate.overrides, *chosen, f"split={split}", f"seed={seed}"])
             row = {"candidate": candidate.name, "split": split, "seed": seed, "status": record.get("status")}
-            row.update({key: record.get(key) for key in UNIT_FIELDS})
+            row.update({key: record.get(key) for key in unit_fields(settings.task)})
             rows.append(row)
     return pd.DataFrame(rows)
 
@@ -249,14 +267,16 @@ def _ratio(value: float | None, reference: float | None) -> float | None:
     return value / reference
 
 
-def verdict(units: pd.DataFrame, candidates: list[Candidate], rope: float, alpha: float) -> dict[str, Any]:
+def verdict(
+    units: pd.DataFrame, candidates: list[Candidate], rope: float, alpha: float, task: Task | None = None
+) -> dict[str, Any]:
     """Compare every candidate with the best graph-free one, over paired units.
 
     ``units`` has one row per candidate and unit (``candidate, split, seed, status`` and
-    :data:`UNIT_FIELDS`). The reference is the graph-free candidate with the highest mean
-    validation accuracy (the test split never chooses). For each other candidate: the paired
-    comparison of test accuracy, Holm-adjusted t-test p over the comparisons made, and the
-    decision rule:
+    :func:`unit_fields`). The reference is the graph-free candidate with the best mean
+    validation figure of the task's metric (the test split never chooses). For each other
+    candidate: the paired comparison of the test figure (signed so that positive is better),
+    Holm-adjusted t-test p over the comparisons made, and the decision rule:
 
     - earns its keep: the interval lies above ``rope`` and Holm p < ``alpha``;
     - equivalent within the ROPE: the interval lies inside ``[-rope, rope]``;
@@ -265,6 +285,9 @@ def verdict(units: pd.DataFrame, candidates: list[Candidate], rope: float, alpha
 
     A candidate missing units that the others have is not compared; its entry names them.
     """
+    task = task or TASKS["classification"]
+    test, val = f"test_{task.metric}", f"val_{task.metric}"
+    sign = 1.0 if task.higher_is_better else -1.0
     completed = units[units["status"].isin(["completed", "timed_out"])]
     all_units = sorted({(int(s), int(d)) for s, d in zip(units["split"], units["seed"])})
     present = {
@@ -275,12 +298,13 @@ def verdict(units: pd.DataFrame, candidates: list[Candidate], rope: float, alpha
     floors = [c for c in candidates if not c.uses_graph and not missing[c.name]]
     if not floors:
         raise DecisionError("no graph-free candidate completed every unit; rerun the study to fill the failed ones")
-    means = completed.groupby("candidate")[list(UNIT_FIELDS)].mean(numeric_only=True)
-    reference = max(floors, key=lambda c: (means.loc[c.name, "val_accuracy"], -candidates.index(c))).name
+    means = completed.groupby("candidate")[list(unit_fields(task))].mean(numeric_only=True)
+    reference = max(floors, key=lambda c: (sign * means.loc[c.name, val], -candidates.index(c))).name
 
     def figures(name: str) -> np.ndarray:
+        """The candidate's test figures over the units, signed so that larger is better."""
         group = completed[completed["candidate"] == name].sort_values(["split", "seed"])
-        return group["test_accuracy"].to_numpy(dtype=float)
+        return sign * group[test].to_numpy(dtype=float)
 
     entries: list[dict[str, Any]] = []
     compared = [c for c in candidates if c.name != reference and not missing[c.name]]
@@ -290,7 +314,7 @@ def verdict(units: pd.DataFrame, candidates: list[Candidate], rope: float, alpha
         name = candidate.name
         entry: dict[str, Any] = {"candidate": name, "family": candidate.family, "uses_graph": candidate.uses_graph}
         if name == reference:
-            entry.update(outcome="reference", sentence=_reference_sentence(name, means))
+            entry.update(outcome="reference", sentence=_reference_sentence(name, means, task))
         elif missing[name]:
             shown = ", ".join(f"split {s} seed {d}" for s, d in missing[name])
             entry.update(outcome="missing_units", missing=[list(unit) for unit in missing[name]],
@@ -308,10 +332,11 @@ def verdict(units: pd.DataFrame, candidates: list[Candidate], rope: float, alpha
             }
             entry.update(outcome=outcome, comparison=comparison.as_dict(), holm_p=adjusted[name], cost=cost,
                          units=len(comparison.differences),
-                         sentence=sentence(name, reference, outcome, comparison, adjusted[name], cost))
+                         sentence=sentence(name, reference, outcome, comparison, adjusted[name], cost, task))
         entries.append(entry)
     return {"reference": reference, "rope": rope, "alpha": alpha, "units": len(all_units), "candidates": entries,
-            "mean_test_accuracy": {name: _value(means, name, "test_accuracy") for name in means.index}}
+            "metric": task.metric, "better": "higher" if task.higher_is_better else "lower",
+            f"mean_test_{task.metric}": {name: _value(means, name, test) for name in means.index}}
 
 
 def decide(low: float, high: float, holm_p: float, rope: float, alpha: float) -> str:
@@ -333,9 +358,10 @@ def _value(means: pd.DataFrame, name: str, column: str) -> float | None:
     return float(means.loc[name, column])
 
 
-def _reference_sentence(name: str, means: pd.DataFrame) -> str:
-    accuracy = _value(means, name, "test_accuracy")
-    return f"{name} is the strongest graph-free candidate on validation (mean test accuracy {accuracy:.3f}): the others are compared with it."
+def _reference_sentence(name: str, means: pd.DataFrame, task: Task) -> str:
+    figure = _value(means, name, f"test_{task.metric}")
+    return (f"{name} is the strongest graph-free candidate on validation (mean test {task.metric} {figure:.3f}): "
+            "the others are compared with it.")
 
 
 def _times(ratio: float) -> str:
@@ -355,16 +381,23 @@ def _cost_phrase(cost: dict[str, Any]) -> str:
     return phrase + ("" if inference is None else f" and {_times(inference)} the inference time per sample")
 
 
-def sentence(name: str, reference: str, outcome: str, comparison: Any, holm_p: float, cost: dict[str, Any]) -> str:
-    """One sentence: the outcome, the effect with its interval, units, Holm p, and the cost."""
+def sentence(
+    name: str, reference: str, outcome: str, comparison: Any, holm_p: float, cost: dict[str, Any], task: Task | None = None
+) -> str:
+    """One sentence: the outcome, the effect with its interval (the candidate's figure minus the
+    reference's, in the metric's own sign), units, Holm p, and the cost."""
+    task = task or TASKS["classification"]
     words = {
         "earns_its_keep": "earns its keep over",
         "does_not_earn_its_keep": "does not earn its keep over",
         "equivalent": "is equivalent within the ROPE to",
         "undecided": "is undecided against",
     }[outcome]
+    # The comparison is of signed figures (larger is better); an error is said as it is.
+    mean, low, high = (comparison.mean, comparison.low, comparison.high) if task.higher_is_better else (
+        -comparison.mean, -comparison.high, -comparison.low)
     evidence = (
-        f"{comparison.mean:+.3f} test accuracy (95% CI {comparison.low:.3f} to {comparison.high:.3f}, "
+        f"{mean:+.3f} test {task.metric} (95% CI {low:.3f} to {high:.3f}, "
         f"{len(comparison.differences)} paired runs, Holm p = {holm_p:.3g})"
     )
     tail = ": more runs needed (the interval crosses the ROPE)" if outcome == "undecided" else ""
@@ -378,7 +411,9 @@ def write_verdict(result: dict[str, Any], folder: Path) -> str:
     write_atomic(folder / "verdict.json", json.dumps(result, indent=2, default=float) + "\n")
     lines = ["# Verdict", ""]
     lines += [f"- {entry['sentence']}" for entry in result["candidates"]]
-    lines += ["", f"Reference: {result['reference']} (best graph-free candidate on validation). ROPE ±{result['rope']}, "
+    # Accuracy goes without saying (the verdicts of classification read as they always have).
+    metric = "" if result.get("metric", "accuracy") == "accuracy" else f" test {result['metric']}, {result['better']} is better"
+    lines += ["", f"Reference: {result['reference']} (best graph-free candidate on validation). ROPE ±{result['rope']}{metric}, "
               f"alpha {result['alpha']}, {result['units']} paired units (split x seed); p-values Holm-adjusted over "
               f"{sum('holm_p' in e for e in result['candidates'])} comparisons."]
     markdown = "\n".join(lines) + "\n"

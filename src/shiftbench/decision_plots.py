@@ -27,28 +27,33 @@ def _save(figure: plt.Figure, path: Path) -> Path:
     return write_atomic(path, buffer.getvalue())
 
 
-def pareto_front(points: pd.DataFrame) -> list[str]:
-    """Candidates no other beats on both axes (higher accuracy, lower training time)."""
+def pareto_front(points: pd.DataFrame, sign: float = 1.0) -> list[str]:
+    """Candidates no other beats on both axes (a better score, lower training time); ``sign``
+    -1 for a score where lower is better."""
     front = []
+    better = sign * points["score"]
     for name, row in points.iterrows():
-        dominated = ((points["accuracy"] >= row["accuracy"]) & (points["seconds"] <= row["seconds"])
-                     & ((points["accuracy"] > row["accuracy"]) | (points["seconds"] < row["seconds"]))).any()
+        mine = sign * row["score"]
+        dominated = ((better >= mine) & (points["seconds"] <= row["seconds"])
+                     & ((better > mine) | (points["seconds"] < row["seconds"]))).any()
         if not dominated:
             front.append(name)
     return front
 
 
-def pareto(units: pd.DataFrame, candidates: list[Any], path: Path) -> Path:
-    """Mean test accuracy (95% t interval, clipped to [0, 1]) against mean training seconds (log),
-    one marker per candidate; the Pareto front joined by a line."""
+def pareto(units: pd.DataFrame, candidates: list[Any], path: Path, metric: str = "accuracy", better: str = "higher") -> Path:
+    """Mean test figure of the metric (95% t interval, clipped to accuracy's [0, 1] or an
+    error's [0, inf)) against mean training seconds (log), one marker per candidate; the Pareto
+    front joined by a line."""
     from scipy import stats
 
     completed = units[units["status"].isin(["completed", "timed_out"])]
     grouped = completed.groupby("candidate")
+    test = f"test_{metric}"
     points = pd.DataFrame({
-        "accuracy": grouped["test_accuracy"].mean(),
+        "score": grouped[test].mean(),
         "seconds": grouped["train_seconds"].mean().clip(lower=1e-3),
-        "half": grouped["test_accuracy"].agg(
+        "half": grouped[test].agg(
             lambda x: stats.t.ppf(0.975, len(x) - 1) * x.std(ddof=1) / np.sqrt(len(x)) if len(x) > 1 else 0.0
         ).fillna(0.0),
     })
@@ -57,14 +62,15 @@ def pareto(units: pd.DataFrame, candidates: list[Any], path: Path) -> Path:
         if candidate.name not in points.index:
             continue
         row = points.loc[candidate.name]
-        low, high = max(0.0, row.accuracy - row.half), min(1.0, row.accuracy + row.half)
-        axis.errorbar(row.seconds, row.accuracy, yerr=[[row.accuracy - low], [high - row.accuracy]],
+        ceiling = 1.0 if metric == "accuracy" else np.inf
+        low, high = max(0.0, row.score - row.half), min(ceiling, row.score + row.half)
+        axis.errorbar(row.seconds, row.score, yerr=[[row.score - low], [high - row.score]],
                       marker=FAMILIES[candidate.family].marker, linestyle="none", capsize=3, label=candidate.name)
-    front = points.loc[pareto_front(points)].sort_values("seconds")
-    axis.plot(front["seconds"], front["accuracy"], color="grey", linewidth=1, zorder=0, label="Pareto front")
+    front = points.loc[pareto_front(points, 1.0 if better == "higher" else -1.0)].sort_values("seconds")
+    axis.plot(front["seconds"], front["score"], color="grey", linewidth=1, zorder=0, label="Pareto front")
     axis.set_xscale("log")
     axis.set_xlabel("training seconds per run (mean, log)")
-    axis.set_ylabel("test accuracy (mean, 95% CI)")
+    axis.set_ylabel(f"test {metric} (mean, 95% CI; {better} is better)")
     axis.legend(fontsize=7, loc="best")
     axis.grid(alpha=0.3)
     return _save(figure, path)
@@ -85,7 +91,11 @@ def paired_differences(result: dict[str, Any], path: Path) -> Path:
                       color="black", marker="|", capsize=4)
     axis.set_yticks(range(len(compared)), [entry["candidate"] for entry in compared], fontsize=8)
     axis.axvline(0, color="black", linewidth=0.5)
-    axis.set_xlabel(f"test accuracy minus {result['reference']}'s, per paired unit")
+    metric = result.get("metric", "accuracy")
+    if result.get("better", "higher") == "higher":
+        axis.set_xlabel(f"test {metric} minus {result['reference']}'s, per paired unit")
+    else:
+        axis.set_xlabel(f"{result['reference']}'s test {metric} minus the candidate's (positive: better), per paired unit")
     axis.set_ylim(-0.6, len(compared) + 0.2)
     axis.legend(fontsize=7, loc="upper left")
     return _save(figure, path)

@@ -81,7 +81,7 @@ def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, c
         say(f"evaluating {candidate.name} ({' '.join(chosen) or 'as configured'})")
         tables.append(evaluate(candidate, chosen, settings, run))
     units = pd.concat(tables, ignore_index=True)
-    result = verdict(units, settings.candidates, settings.rope, settings.alpha)
+    result = verdict(units, settings.candidates, settings.rope, settings.alpha, settings.task)
     result.update(
         data=dataset,
         protocol="tuned once on the validation split of split 0 (seed 0); evaluated on splits 0.."
@@ -94,27 +94,32 @@ def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, c
     units.to_csv(buffer, index=False)
     write_atomic(folder / "units.csv", buffer.getvalue())
     figures = [
-        decision_plots.pareto(units, settings.candidates, folder / "pareto.png"),
+        decision_plots.pareto(units, settings.candidates, folder / "pareto.png", result["metric"], result["better"]),
         decision_plots.paired_differences(result, folder / "paired_differences.png"),
     ]
     markdown = write_verdict(result, folder)
     extra = [f"![{figure.stem.replace('_', ' ')}]({figure.name})" for figure in figures]
-    write_atomic(folder / "verdict.md", markdown + "\n" + candidates_table(units) + "\n" + "\n\n".join(extra) + "\n")
+    write_atomic(folder / "verdict.md", markdown + "\n" + candidates_table(units, settings.task.metric) + "\n" + "\n\n".join(extra) + "\n")
     say(f"{counts['jobs']} jobs (done ones skipped) in {result['minutes']:.1f} min; failed trials: {result['failed_trials']}")
-    return markdown, result["mean_test_accuracy"]
+    # Scores for the rank test across datasets: larger is better.
+    sign = 1.0 if settings.task.higher_is_better else -1.0
+    return markdown, {name: sign * value for name, value in result[f"mean_test_{settings.task.metric}"].items() if value is not None}
 
 
-def candidates_table(units: pd.DataFrame) -> str:
+def candidates_table(units: pd.DataFrame, metric: str = "accuracy") -> str:
     """Mean figures per candidate over the units, as markdown."""
     completed = units[units["status"].isin(["completed", "timed_out"])]
+    test, val = f"test_{metric}", f"val_{metric}"
     table = completed.groupby("candidate", sort=False).agg(
-        test_accuracy=("test_accuracy", "mean"), std=("test_accuracy", "std"), val_accuracy=("val_accuracy", "mean"),
-        parameters=("parameters", "median"), train_seconds=("train_seconds", "mean"), units=("test_accuracy", "size"),
+        test=(test, "mean"), std=(test, "std"), val=(val, "mean"),
+        parameters=("parameters", "median"), train_seconds=("train_seconds", "mean"), units=(test, "size"),
     )
-    lines = ["| candidate | test acc | ± std | val acc | parameters | train s | units |", "| --- | ---: | ---: | ---: | ---: | ---: | ---: |"]
+    short = "acc" if metric == "accuracy" else metric
+    lines = [f"| candidate | test {short} | ± std | val {short} | parameters | train s | units |",
+             "| --- | ---: | ---: | ---: | ---: | ---: | ---: |"]
     for name, row in table.iterrows():
         lines.append(
-            f"| {name} | {row.test_accuracy:.3f} | {row['std']:.3f} | {row.val_accuracy:.3f} | {row.parameters:,.0f} | "
+            f"| {name} | {row.test:.3f} | {row['std']:.3f} | {row.val:.3f} | {row.parameters:,.0f} | "
             f"{row.train_seconds:.2f} | {int(row.units)} |"
         )
     return "\n".join(lines) + "\n"

@@ -103,3 +103,21 @@ def test_across_datasets_writes_the_rank_test_and_its_critical_difference_diagra
     markdown = across_datasets(scores, tmp_path, alpha=0.05)
     assert "Average ranks (1 is best): graph_conv 1.00" in markdown
     assert (tmp_path / "critical_difference.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_for_an_error_metric_lower_is_better_and_the_sentence_says_the_error_difference():
+    # The same rule on RMSE: the reference is the floor with the lowest validation RMSE, and a
+    # graph model whose test RMSE is clearly lower earns its keep, said as a negative difference.
+    from shiftbench.registry import TASKS
+
+    rng = np.random.default_rng(1)
+    base = 0.80 + rng.normal(0, 0.01, 10)
+    rows = units({"graph_conv": base - 0.10, "fc": base + 0.20, "ridge": base}, {"fc": 1.1, "ridge": 0.8, "graph_conv": 0.7})
+    rows = rows.rename(columns={"test_accuracy": "test_rmse", "val_accuracy": "val_rmse"})
+    ridge = Candidate("ridge", ("arch=ridge",), "ridge", False)
+    result = verdict(rows, [GNN, FC, ridge], rope=0.01, alpha=0.05, task=TASKS["regression"])
+    assert result["reference"] == "ridge" and result["metric"] == "rmse" and result["better"] == "lower"
+    assert entry(result, "graph_conv")["outcome"] == "earns_its_keep"
+    assert entry(result, "graph_conv")["sentence"].startswith("graph_conv earns its keep over ridge: -0.100 test rmse (95% CI -0.")
+    assert entry(result, "fc")["outcome"] == "does_not_earn_its_keep"
+    assert "+0.200 test rmse" in entry(result, "fc")["sentence"]
