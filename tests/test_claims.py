@@ -11,7 +11,7 @@ from shiftbench.claims_report import write_claims
 from shiftbench.data import sensor_regimes
 
 CLAIM_IDS = [
-    "line_graph_equivalence", "undirected_path_symmetry", "parameters_vs_nodes",
+    "line_graph_equivalence", "node_outputs", "undirected_path_symmetry", "parameters_vs_nodes",
     "accuracy_vs_nodes", "permutation_equivariance", "graph_matters",
 ]
 
@@ -31,6 +31,20 @@ def test_line_graph_equivalence_holds_with_the_flipped_kernel(small_demo):
 def test_a_planted_unflipped_mapping_is_caught(small_demo):
     claim = claims.line_graph_equivalence(small_demo, seeds=(0,), epochs=3, taps_from=lambda weight: weight.permute(2, 1, 0))
     assert claim.verdict == "does_not_hold"
+
+
+def test_node_outputs_hold_with_the_flipped_kernel_and_count_fc_quadratically(small_demo):
+    # Source: torch.nn.Conv1d documentation (as above); a dense map from nodes * features inputs
+    # to nodes outputs has (nodes * features + 1) * nodes parameters (common practice, no source).
+    claim = claims.node_outputs(small_demo)
+    assert claim.verdict == "holds" and claim.evidence["max_abs_output_difference"] <= 1e-5
+    assert claim.evidence["fc_parameters"] == [(nodes + 1) * nodes for nodes in (24, 48, 96)]
+    assert len(set(claim.evidence["filter_parameters"])) == 1
+
+
+def test_a_planted_unflipped_mapping_is_caught_on_node_outputs(small_demo):
+    claim = claims.node_outputs(small_demo, taps_from=lambda weight: weight.permute(2, 1, 0))
+    assert claim.verdict == "does_not_hold" and "disagree" in claim.explanation
 
 
 def test_the_layer_on_the_undirected_path_has_symmetric_impulse_responses_only():

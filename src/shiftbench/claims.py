@@ -172,6 +172,42 @@ def undirected_path_symmetry(nodes: int = 64, order: int = ORDER, draws: int = 5
     )
 
 
+def node_outputs(dataset: Dataset, seed: int = 0, taps_from: Callable = kernel_to_taps) -> Claim:
+    """For a value on every node: (a) a graph_conv stack with the per-node output map on the
+    directed line graph computes what a causal line_conv producing a sequence computes, once its
+    taps are the CNN's flipped kernels (random weights, the data's test signals); (b) a dense fc
+    map from the signal to every node's value has ``(nodes * features + 1) * nodes`` parameters,
+    growing with the nodes squared, while the filter stack's count does not depend on them
+    (counted at 1, 2 and 4 times the data's nodes)."""
+    from shiftbench.models import count_parameters
+
+    seed_everything(seed)
+    nodes, features = dataset.nodes, dataset.features
+    cnn = LineConv(nodes, features, CHANNELS, 1, ORDER, readout="node").eval()
+    gnn = line_conv_to_graph_conv(cnn, shift_operator(line_graph(nodes), "adjacency", "none"), taps_from).eval()
+    test = dataset.signals[dataset.splits.test]
+    difference = float((_logits(cnn, test) - _logits(gnn, test)).abs().max())
+    sizes = [nodes, 2 * nodes, 4 * nodes]
+    fc_counts = [count_parameters(FullyConnected(size, features, [], 1, head="nodes")) for size in sizes]
+    filter_counts = [count_parameters(LineConv(size, features, CHANNELS, 1, ORDER, readout="node")) for size in sizes]
+    growth = float(np.polyfit(np.log(sizes), np.log(fc_counts), 1)[0])  # the exponent of fc's count in nodes
+    holds = difference <= TOLERANCE and 1.9 <= growth <= 2.1 and len(set(filter_counts)) == 1
+    why = "" if holds else (
+        "the mapped networks disagree beyond float32 rounding" if difference > TOLERANCE
+        else "the parameter counts do not grow as stated"
+    )
+    return Claim(
+        id="node_outputs",
+        statement="With a value on every node, a graph_conv on the directed line graph computes what a causal "
+        "line_conv producing a sequence computes, and a dense fc map's parameter count grows with the nodes "
+        "squared while the filters' stays constant.",
+        verdict="holds" if holds else "does_not_hold",
+        evidence={"max_abs_output_difference": difference, "tolerance": TOLERANCE, "nodes": sizes,
+                  "fc_parameters": fc_counts, "fc_growth_exponent": growth, "filter_parameters": filter_counts},
+        explanation=why,
+    )
+
+
 def permutation_equivariance(dataset: Dataset, graph: Graph, seed: int = 0) -> Claim:
     """Relabel the nodes of ``graph`` and ``dataset``'s signals; compare the three families' logits."""
     seed_everything(seed)

@@ -119,6 +119,7 @@ def evaluate(records: pd.DataFrame, seeds: tuple[int, ...], subject: Subject) ->
     from ``records``."""
     return [
         claims.line_graph_equivalence(subject.dataset, seeds),
+        claims.node_outputs(subject.dataset),
         claims.undirected_path_symmetry(),
         claims.parameters_vs_nodes(records),
         claims.accuracy_vs_nodes(records),
