@@ -87,3 +87,32 @@ def test_the_claims_refuse_records_of_another_task_in_one_line(tmp_path):
     run_job(composed(overrides), None, overrides, live=False, quiet=True)
     with pytest.raises(ValueError, match="are of task node_regression; accepted: records of task classification"):
         write_claims([tmp_path / "store"], tmp_path / "claims")
+
+
+def test_the_nearest_floor_predicts_the_nearest_samples_values_filling_masked_ones_from_the_next():
+    # Reference: scikit-learn's KNeighborsRegressor(n_neighbors=1) on the flattened signals where
+    # every value is known; a value the nearest sample lacks comes from the next nearest.
+    from sklearn.neighbors import KNeighborsRegressor
+
+    from shiftbench.data.dataset import Dataset, Splits
+    from shiftbench.graphs.standard import line_graph
+    from shiftbench.models.nearest import fit_nearest
+
+    rng = np.random.default_rng(4)
+    signals = rng.normal(size=(40, 5, 1)).astype(np.float32)
+    targets = rng.normal(size=(40, 5, 1)).astype(np.float32)
+    splits = Splits(train=np.arange(30), val=np.arange(30, 30), test=np.arange(30, 40))
+    data = Dataset(signals, targets, splits, 1, line_graph(5), "planted")
+    result = fit_nearest(data, TASK)
+    flat = signals.reshape(40, -1)
+    reference = KNeighborsRegressor(n_neighbors=1).fit(flat[:30], targets[:30].reshape(30, -1)).predict(flat[30:])
+    np.testing.assert_allclose(result.test_predictions.reshape(10, -1), reference)
+    assert result.val_score is None  # no validation split
+
+    masked = targets.copy()
+    first = np.argsort(((flat[:30] - flat[30]) ** 2).sum(axis=1))  # the test sample 30's neighbours, nearest first
+    masked[first[0], 2, 0] = np.nan
+    data = Dataset(signals, masked, splits, 1, line_graph(5), "planted")
+    predicted = fit_nearest(data, TASK).test_predictions
+    assert predicted[0, 2, 0] == pytest.approx(masked[first[1], 2, 0])
+    assert predicted[0, 1, 0] == pytest.approx(masked[first[0], 1, 0])

@@ -13,6 +13,7 @@ from shiftbench.data.ucr import shipped_names, ucr
 from shiftbench.errors import ConfigError
 from shiftbench.models import build_model
 from shiftbench.models.nearest import fit_nearest
+from shiftbench.registry import TASKS
 from shiftbench.training import seed_everything, train
 from tests.conftest import composed
 
@@ -30,7 +31,7 @@ def test_the_archive_series_are_installed():
 def test_nearest_reproduces_the_archive_1nn_euclidean_error(name, published_error):
     # Source: the UCR Time Series Archive 2018, DataSummary table, column "ED (w=0)"
     # (Dau et al. 2019, "The UCR time series archive", IEEE/CAA J. Autom. Sinica 6(6)).
-    result = fit_nearest(ucr(name))
+    result = fit_nearest(ucr(name), TASKS["classification"])
     assert round(1.0 - result.test_score, 4) == published_error
 
 

@@ -2,7 +2,9 @@
 
 It has nothing to tune, so its reference set for the test split is every labelled sample
 outside it (train and validation: for the UCR archive, exactly the archive's train split). Its
-validation accuracy uses the training split alone as reference.
+validation figure uses the training split alone as reference. It predicts the nearest sample's
+target: its class (or source node), or its values; a value the nearest sample does not have (a
+node outside its mask) comes from the next nearest that has it, else from the reference's mean.
 """
 
 from __future__ import annotations
@@ -13,36 +15,50 @@ from dataclasses import dataclass
 import numpy as np
 
 from shiftbench.data.dataset import Dataset
-from shiftbench.registry import FAMILIES, Family
+from shiftbench.registry import FAMILIES, Family, Task
 from shiftbench.training_result import TrainingResult
+
+# Neighbours searched for a value the nearest sample lacks (masked node targets).
+FILL_NEIGHBOURS = 10
 
 
 def _predict(reference: np.ndarray, queries: np.ndarray, dataset: Dataset) -> np.ndarray:
-    """The 1-NN class of each of ``queries`` with ``reference`` samples (index arrays)."""
-    from sklearn.neighbors import KNeighborsClassifier
+    """The 1-NN prediction for each of ``queries`` with ``reference`` samples (index arrays):
+    shaped as the targets of ``queries``."""
+    from sklearn.neighbors import KNeighborsClassifier, NearestNeighbors
 
     flat = dataset.signals.reshape(dataset.samples, -1)  # (samples, nodes * features)
-    classifier = KNeighborsClassifier(n_neighbors=1, algorithm="brute").fit(flat[reference], dataset.labels[reference])
-    return classifier.predict(flat[queries])
+    targets = dataset.labels
+    if targets.dtype.kind in "iu":  # classes or source nodes
+        classifier = KNeighborsClassifier(n_neighbors=1, algorithm="brute").fit(flat[reference], targets[reference])
+        return classifier.predict(flat[queries])
+    searched = NearestNeighbors(n_neighbors=min(FILL_NEIGHBOURS, len(reference)), algorithm="brute").fit(flat[reference])
+    order = searched.kneighbors(flat[queries], return_distance=False)  # (queries, neighbours), nearest first
+    known = targets[reference]
+    predicted = np.full((len(queries), *targets.shape[1:]), np.nan, dtype=np.float64)
+    for rank in range(order.shape[1]):  # nearest first: fill what is still missing
+        missing = np.isnan(predicted)
+        predicted[missing] = known[order[:, rank]][missing]
+    mean = np.broadcast_to(np.nanmean(known, axis=0), predicted.shape)
+    return np.where(np.isnan(predicted), np.nan_to_num(mean), predicted)
 
 
-def _accuracy(reference: np.ndarray, queries: np.ndarray, dataset: Dataset) -> float:
-    """Accuracy on ``queries`` of 1-NN with ``reference`` samples (index arrays)."""
-    return float((_predict(reference, queries, dataset) == dataset.labels[queries]).mean())
-
-
-def fit_nearest(dataset: Dataset) -> TrainingResult:
-    """Fit and score the 1-NN floor; ``train_seconds`` is the time to fit and predict the test split."""
+def fit_nearest(dataset: Dataset, task: Task) -> TrainingResult:
+    """Fit and score the 1-NN floor with the task's metric; ``train_seconds`` is the time to fit
+    and predict the test split."""
     splits = dataset.splits
     labelled = np.concatenate([splits.train, splits.val])
     started = time.perf_counter()
     predicted = _predict(labelled, splits.test, dataset)
     seconds = time.perf_counter() - started
-    test_accuracy = float((predicted == dataset.labels[splits.test]).mean())
+
+    def score(reference: np.ndarray, queries: np.ndarray) -> float:
+        return task.score_predicted(_predict(reference, queries, dataset), dataset.labels[queries])
+
     return TrainingResult(
-        train_score=_accuracy(splits.train, splits.train, dataset),
-        val_score=_accuracy(splits.train, splits.val, dataset),
-        test_score=test_accuracy,
+        train_score=score(splits.train, splits.train),
+        val_score=score(splits.train, splits.val) if len(splits.val) else None,
+        test_score=task.score_predicted(predicted, dataset.labels[splits.test]),
         test_loss=None,
         best_epoch=None,
         epochs_run=None,
@@ -67,8 +83,7 @@ FAMILIES.add(
         schema=NearestConfig,
         display="1-NN floor",
         planned_parameters=lambda arch, nodes, features, outputs, head: 0,
-        fit=lambda arch, dataset, seed, task: fit_nearest(dataset),
+        fit=lambda arch, dataset, seed, task: fit_nearest(dataset, task),
         marker="x",
-        tasks=("classification",),
     )
 )
