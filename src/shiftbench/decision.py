@@ -139,10 +139,14 @@ def read_settings(settings_dir: Path, overrides: list[str], compose: Callable[[l
     candidates, spaces, tasks = [], {}, set()
     for entry in merged.candidates:
         try:
-            composed = compose(list(entry.overrides))
+            overrides = list(entry.overrides)
+            composed = compose(overrides)
             family_tasks = FAMILIES[composed.arch.family].tasks if composed.arch.family in FAMILIES else None
             if family_tasks is not None and composed.task not in family_tasks:
                 continue  # a floor for another task (ridge in a classification study, say)
+            if node_task(composed) and "readout" in composed.arch:
+                overrides.append("arch.readout=node")  # a value on every node: the per-node output map
+                composed = compose(overrides)
             validate(composed)
             tasks.add(composed.task)
         except ConfigError as error:
@@ -150,12 +154,14 @@ def read_settings(settings_dir: Path, overrides: list[str], compose: Callable[[l
         except Exception as error:  # Hydra's refusal of an override it cannot compose
             raise ConfigError(f"candidate {entry.name!r}: {_first_line(error)}") from None
         family = composed.arch.family
-        candidates.append(Candidate(str(entry.name), tuple(entry.overrides), family, FAMILIES[family].uses_graph))
+        candidates.append(Candidate(str(entry.name), tuple(overrides), family, FAMILIES[family].uses_graph))
         if FAMILIES[family].fit is None and family not in spaces:
             path = settings_dir / "search" / f"{family}.yaml"
             if not path.is_file():
                 raise ConfigError(f"candidate {entry.name!r}: no search space {path}; accepted: a search/<family>.yaml file")
-            spaces[family] = read_space(path)
+            # A node task keeps the per-node output map: the pooling readouts are not searched.
+            spaces[family] = [dimension for dimension in read_space(path)
+                              if not (node_task(composed) and dimension.key == "arch.readout")]
             for dimension in spaces[family]:
                 if OmegaConf.select(composed, dimension.key, default="<absent>") == "<absent>":
                     raise ConfigError(
@@ -171,6 +177,11 @@ def read_settings(settings_dir: Path, overrides: list[str], compose: Callable[[l
         candidates, merged.trials, merged.splits, merged.seeds, float(merged.rope), float(merged.alpha),
         int(merged.sampler_seed), str(merged.folder), spaces, TASKS[tasks.pop()],
     )
+
+
+def node_task(composed: DictConfig) -> bool:
+    """Whether the composed job config's task predicts a value on every node."""
+    return TASKS[composed.task].head == "nodes" if composed.task in TASKS else False
 
 
 def _first_line(error: Exception) -> str:

@@ -18,6 +18,7 @@ from shiftbench.decision import Settings, evaluate, read_settings, tune, verdict
 from shiftbench.job import run_job
 from shiftbench.preflight import preflight
 from shiftbench.records import write_atomic
+from shiftbench.registry import TASKS
 from shiftbench.statistics import rank_test
 
 
@@ -35,9 +36,11 @@ def run_study(arguments: list[str], config_dir: Path, say=print) -> str:
     """Run the decision study for ``arguments`` and return the verdicts as markdown."""
     own, datasets, common = split_arguments(arguments)
     register_defaults()
+    task = next((a.split("=", 1)[1] for a in reversed(common) if a.startswith("task=")), "classification")
+    per_node = ["arch.readout=node"] if task in TASKS and TASKS[task].head == "nodes" else []
     for dataset in datasets:  # every dataset with the default candidates' families, before any job
-        for family in ("fc", "graph_conv"):
-            preflight([f"data={dataset}", *common, f"arch={family}"], config_dir)
+        preflight([f"data={dataset}", *common, "arch=fc"], config_dir)
+        preflight([f"data={dataset}", *common, "arch=graph_conv", *per_node], config_dir)
     with initialize_config_dir(str(config_dir.resolve()), version_base="1.3", job_name="shiftbench"):
         def composed(overrides: list[str]) -> DictConfig:
             config = compose("config", overrides=overrides)

@@ -89,3 +89,25 @@ def test_a_graph_that_carries_no_information_is_not_said_to_earn_its_keep(tmp_pa
     (graph,) = [entry for entry in result["candidates"] if entry["candidate"] == "random graph"]
     assert graph["outcome"] != "earns_its_keep"
     assert result["reference"] in ("logistic", "qda")
+
+
+def test_a_node_task_gives_every_convolution_the_per_node_map_and_never_searches_pooling(tmp_path):
+    from hydra import compose, initialize_config_dir
+    from omegaconf import OmegaConf
+
+    from shiftbench.config_store import register_defaults
+    from shiftbench.decision import read_settings
+
+    register_defaults()
+    with initialize_config_dir(str(CONFIG_DIR.resolve()), version_base="1.3", job_name="shiftbench"):
+        def composed(lines):
+            config = compose("config", overrides=["task=node_regression", "data=sensor_forecast", *lines])
+            OmegaConf.set_struct(config, False)
+            return config
+
+        settings = read_settings(CONFIG_DIR.parent / "decision", [], composed)
+    names = {candidate.name: candidate for candidate in settings.candidates}
+    assert set(names) == {"fc", "line_conv", "graph_conv on native graph", "nearest"}  # the classifiers and ridge left out
+    assert "arch.readout=node" in names["line_conv"].overrides and "arch.readout=node" not in names["fc"].overrides
+    assert all(dimension.key != "arch.readout" for dimension in settings.spaces["graph_conv"])
+    assert settings.task.name == "node_regression"
