@@ -173,7 +173,8 @@ class JobOutputs:
 
 def judge(run: RunConfig, dataset: Dataset, record: Record, result: TrainingResult) -> pd.DataFrame:
     """Fill ``record`` with the task's further figures and flags; return the test predictions
-    as a table (``sample`` indexes the dataset): ``sample, label, predicted`` for classification,
+    as a table (``sample`` indexes the dataset): ``sample, label, predicted`` for a class per
+    signal, ``sample, node, label, predicted`` for each scored node of a class per node, and
     ``sample, [node,] output, target, predicted`` for each scored entry of a regression task."""
     import pandas as pd
 
@@ -184,6 +185,10 @@ def judge(run: RunConfig, dataset: Dataset, record: Record, result: TrainingResu
     if dataset.labels.ndim == 1:
         return pd.DataFrame({"sample": test, "label": dataset.labels[test], "predicted": result.test_predictions})
     targets = dataset.labels[test]
+    if targets.dtype.kind in "iu":  # classes on every node, -1 where not a target
+        sample, node = np.nonzero(targets >= 0)
+        return pd.DataFrame({"sample": test[sample], "node": node, "label": targets[sample, node],
+                             "predicted": result.test_predictions[sample, node]})
     scored = np.nonzero(~np.isnan(targets))  # (sample, output) or (sample, node, output) indices
     columns = {"sample": test[scored[0]], "node": scored[1] if targets.ndim == 3 else None, "output": scored[-1],
                "target": targets[scored], "predicted": result.test_predictions[scored]}

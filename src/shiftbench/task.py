@@ -5,6 +5,8 @@ the primary metric (its name and direction) and the judgement of a run from here
 - ``regression``: one or more values per signal; mean squared error, RMSE.
 - ``source_localization``: the one node of each signal where something started (a leak);
   every node scores itself, a softmax over the nodes, cross-entropy, accuracy.
+- ``node_classification``: a class on every node (-1 where a node is not a target);
+  cross-entropy over the scored nodes, accuracy over them.
 - ``node_regression``: a value (or several) on every node; mean squared error over the scored
   entries, RMSE. Entries that are not targets (a sensor that is not masked, an unobserved node)
   hold NaN and are left out of the loss and of every figure (of ``regression``'s too).
@@ -80,6 +82,11 @@ def are_classes(targets: np.ndarray, nodes: int) -> bool:
 def are_nodes(targets: np.ndarray, nodes: int) -> bool:
     """Node indices: ``(samples,)`` integers in ``0..nodes - 1``."""
     return are_classes(targets, nodes) and (len(targets) == 0 or 0 <= targets.min() <= targets.max() < nodes)
+
+
+def are_node_classes(targets: np.ndarray, nodes: int) -> bool:
+    """Classes on every node: ``(samples, nodes)`` integers, -1 where not a target."""
+    return targets.ndim == 2 and targets.shape[1] == nodes and targets.dtype.kind in "iu"
 
 
 def are_values(targets: np.ndarray, nodes: int) -> bool:
@@ -222,6 +229,68 @@ REGRESSION = TASKS.add(
         fits=are_values,
     )
 )
+def node_class_cross_entropy(outputs: torch.Tensor, labels: torch.Tensor) -> torch.Tensor:
+    """Cross-entropy over the scored nodes (labels -1 are not targets).
+
+    Shapes: outputs ``(batch, nodes, classes)``, labels ``(batch, nodes)`` -> scalar."""
+    return nn.functional.cross_entropy(outputs.flatten(0, 1), labels.flatten(), ignore_index=-1)
+
+
+def tally_node_classes(outputs: torch.Tensor, labels: torch.Tensor) -> tuple[torch.Tensor, torch.Tensor]:
+    """``(correct, scored nodes)`` over the nodes whose label is not -1.
+
+    Shapes: outputs ``(batch, nodes, classes)``, labels ``(batch, nodes)`` -> two float64 scalars."""
+    scored = labels >= 0
+    correct = ((outputs.argmax(dim=2) == labels) & scored).sum().double()
+    return correct, scored.sum().double()
+
+
+def share_equal_scored(predicted: np.ndarray, labels: np.ndarray) -> float:
+    """Accuracy over the entries whose label is not -1. Shapes: alike, any."""
+    scored = labels >= 0
+    return float((predicted[scored] == labels[scored]).mean())
+
+
+def judge_node_classification(
+    labels: np.ndarray, predicted: np.ndarray, train_labels: np.ndarray, curve: list[dict[str, float]]
+) -> dict[str, Any]:
+    """Over the scored nodes: scikit-learn's balanced accuracy and macro F1, the chance level
+    (always the most frequent class of the training split's scored nodes) and the flags
+    ``at_chance`` and ``loss_never_fell``.
+
+    Shapes: labels and predicted ``(samples, nodes)``, train_labels ``(train samples, nodes)``."""
+    from sklearn.metrics import balanced_accuracy_score, f1_score
+
+    scored = labels >= 0
+    truth, guess = labels[scored], predicted[scored]
+    chance = chance_accuracy(train_labels[train_labels >= 0], truth)
+    flags = ["at_chance"] * (float((truth == guess).mean()) <= chance) + ["loss_never_fell"] * loss_never_fell(curve)
+    with warnings.catch_warnings():  # a class never predicted is scored as it comes
+        warnings.simplefilter("ignore")
+        balanced = float(balanced_accuracy_score(truth, guess))
+    return {"chance_accuracy": chance, "balanced_accuracy": balanced,
+            "macro_f1": float(f1_score(truth, guess, average="macro", zero_division=0)), "flags": flags}
+
+
+NODE_CLASSIFICATION = TASKS.add(
+    Task(
+        name="node_classification",
+        loss=node_class_cross_entropy,
+        tally=tally_node_classes,
+        finish=share,
+        predict=lambda outputs: outputs.argmax(dim=2),
+        score_predicted=share_equal_scored,
+        judge=judge_node_classification,
+        metric="accuracy",
+        higher_is_better=True,
+        head="nodes",
+        split_rule="random",
+        targets="classes on every node (samples, nodes), -1 where not a target",
+        fits=are_node_classes,
+    )
+)
+
+
 def judge_source_localization(
     sources: np.ndarray, predicted: np.ndarray, train_sources: np.ndarray, curve: list[dict[str, float]]
 ) -> dict[str, Any]:

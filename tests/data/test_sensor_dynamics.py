@@ -141,3 +141,35 @@ def test_sizing_a_leak_through_the_graph_beats_sizing_it_by_the_loudest_sensor()
 
     floor = rmse(sizes[train].mean(), sizes[test])
     assert scaled_error(matched) < 0.93 * scaled_error(loudest) < 0.8 * floor
+
+
+def test_zones_give_every_sensor_its_zones_regime():
+    from shiftbench.data.sensor_regimes import sensor_zones, zone_of_each_node
+
+    data = sensor_zones(nodes=30, zones=3, classes=3, samples=50, snapshots=2)
+    assert data.signals.shape == (50, 30, 2) and data.labels.shape == (50, 30) and data.labels.dtype == np.int64
+    zone = zone_of_each_node(data.native_graph.positions.numpy().astype(np.float64), 3, 0)
+    for sample in data.labels:  # one regime a zone
+        assert all(len(set(sample[zone == z])) == 1 for z in range(3))
+
+
+def test_a_sensors_regime_shows_in_how_it_varies_with_its_neighbours_not_in_its_own_readings():
+    # Scikit-learn's LDA on each sensor's own features: with the graph, its mean product with
+    # its neighbours' weighted readings (x * Sx, over the snapshots) beside its energy; without
+    # it, its energy and mean absolute reading (the readings are standardized per recording).
+    from sklearn.discriminant_analysis import LinearDiscriminantAnalysis
+
+    from shiftbench.data.sensor_regimes import sensor_zones
+
+    data = sensor_zones()
+    x = data.signals.astype(np.float64)
+    neighbours = np.einsum("ij,sjk->sik", normalized_adjacency(data.native_graph).toarray(), x)
+    with_graph = np.stack([(x * neighbours).mean(axis=2), (x**2).mean(axis=2)], axis=2)
+    without = np.stack([(x**2).mean(axis=2), np.abs(x).mean(axis=2)], axis=2)
+    train, test = data.splits.train, data.splits.test
+
+    def accuracy(features):
+        model = LinearDiscriminantAnalysis().fit(features[train].reshape(-1, 2), data.labels[train].ravel())
+        return float((model.predict(features[test].reshape(-1, 2)) == data.labels[test].ravel()).mean())
+
+    assert accuracy(with_graph) > accuracy(without) + 0.15

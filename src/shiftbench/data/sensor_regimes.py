@@ -25,7 +25,7 @@ from numpy.polynomial import chebyshev
 
 from shiftbench.config import at_least, declared, require
 from shiftbench.data.dataset import Dataset, keyword_loader
-from shiftbench.data.splits import RandomSplitConfig, stratified_splits
+from shiftbench.data.splits import RandomSplitConfig, random_splits, stratified_splits
 from shiftbench.graphs.operators import normalized_adjacency
 from shiftbench.graphs.standard import knn_graph
 from shiftbench.registry import DATASETS, DatasetSource
@@ -144,3 +144,84 @@ class SensorRegimesConfig(RandomSplitConfig):
 
 
 DATASETS.add(DatasetSource("sensor_regimes", SensorRegimesConfig, keyword_loader(sensor_regimes), "demo: sensor regimes"))
+
+
+def zone_of_each_node(positions: np.ndarray, zones: int, seed: int) -> np.ndarray:
+    """Zones of the network: scikit-learn's k-means of the sensor positions, ``(nodes,)`` in
+    ``0..zones-1``."""
+    from sklearn.cluster import KMeans
+
+    return KMeans(n_clusters=zones, n_init=10, random_state=seed).fit_predict(positions).astype(np.int64)
+
+
+def sensor_zones(
+    nodes: int = 64,
+    zones: int = 4,
+    classes: int = 3,
+    samples: int = 400,
+    snapshots: int = 4,
+    noise: float = 0.3,
+    process_order: int = 6,
+    neighbors: int = 6,
+    seed: int = 0,
+    val_fraction: float = 0.2,
+    test_fraction: float = 0.2,
+) -> Dataset:
+    """A regime in every zone: the network is split into ``zones`` zones (k-means of the
+    positions); in each recording every zone runs its own regime (one of ``classes``, as in the
+    whole-network scenario), so a sensor's reading is ``standardize(H_c(S) w)`` at that sensor,
+    ``c`` its zone's regime. ``snapshots`` independent snapshots a recording are the features.
+
+    Returns:
+        A dataset with signals ``(samples, nodes, snapshots)`` and labels ``(samples, nodes)``:
+        each sensor's regime.
+    """
+    rng = np.random.default_rng(seed)
+    positions = rng.random((nodes, 2))
+    graph = replace(knn_graph(positions, neighbors), name="sensor_network")
+    shift = normalized_adjacency(graph)
+    zone = zone_of_each_node(positions, zones, seed)
+    regimes = rng.integers(classes, size=(samples, zones))
+    labels = regimes[:, zone]  # (samples, nodes)
+    white = rng.standard_normal((nodes, samples * snapshots))
+    filtered = np.stack([apply_polynomial(shift, response, white) for response in regime_responses(classes, process_order)])
+    filtered = filtered.reshape(classes, nodes, samples, snapshots).transpose(2, 1, 3, 0)  # (samples, nodes, snapshots, classes)
+    readings = np.take_along_axis(filtered, labels[:, :, None, None], axis=3)[..., 0]  # (samples, nodes, snapshots)
+    readings -= readings.mean(axis=1, keepdims=True)
+    readings /= readings.std(axis=1, keepdims=True) + 1e-12
+    signals = readings + noise * rng.standard_normal(readings.shape)
+    return Dataset(
+        signals=signals.astype(np.float32), labels=labels, splits=random_splits(samples, val_fraction, test_fraction, seed),
+        classes=classes, native_graph=graph, name="sensor_zones",
+    )
+
+
+@dataclass
+class SensorZonesConfig(RandomSplitConfig):
+    """A regime in every zone of the network (see :func:`sensor_zones`)."""
+
+    source: str = "sensor_zones"
+    nodes: int = declared(at_least(2), 64)
+    zones: int = declared(at_least(1), 4)
+    classes: int = declared(at_least(2), 3)
+    samples: int = declared(at_least(10), 400)
+    snapshots: int = declared(at_least(1), 4)
+    noise: float = declared(at_least(0, "a number"), 0.3)
+    process_order: int = declared(at_least(0), 6)
+    neighbors: int = 6
+
+    def check(self) -> None:
+        super().check()
+        require("neighbors", self.neighbors, 1 <= self.neighbors < self.nodes, f"an integer in 1..{self.nodes - 1}")
+        require("zones", self.zones, self.zones <= self.nodes, f"an integer in 1..{self.nodes} (at most one a node)")
+
+    def known_nodes(self) -> int | None:
+        return self.nodes
+
+    def known_samples(self) -> int | None:
+        return self.samples
+
+
+DATASETS.add(DatasetSource(
+    "sensor_zones", SensorZonesConfig, keyword_loader(sensor_zones), "demo: regimes by zone", tasks=("node_classification",),
+))

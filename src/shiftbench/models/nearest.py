@@ -3,8 +3,9 @@
 It has nothing to tune, so its reference set for the test split is every labelled sample
 outside it (train and validation: for the UCR archive, exactly the archive's train split). Its
 validation figure uses the training split alone as reference. It predicts the nearest sample's
-target: its class (or source node), or its values; a value the nearest sample does not have (a
-node outside its mask) comes from the next nearest that has it, else from the reference's mean.
+target: its class (or source node), or its values or classes on every node; an entry the nearest
+sample does not have (a node that is not one of its targets) comes from the next nearest that
+has it, else from the reference (its mean value, or its most frequent class).
 """
 
 from __future__ import annotations
@@ -29,16 +30,20 @@ def _predict(reference: np.ndarray, queries: np.ndarray, dataset: Dataset) -> np
 
     flat = dataset.signals.reshape(dataset.samples, -1)  # (samples, nodes * features)
     targets = dataset.labels
-    if targets.dtype.kind in "iu":  # classes or source nodes
+    if targets.ndim == 1:  # classes or source nodes
         classifier = KNeighborsClassifier(n_neighbors=1, algorithm="brute").fit(flat[reference], targets[reference])
         return classifier.predict(flat[queries])
+    classes = targets.dtype.kind in "iu"  # classes on every node, -1 where not a target; else values, NaN
+    lacking = (lambda entries: entries < 0) if classes else np.isnan
     searched = NearestNeighbors(n_neighbors=min(FILL_NEIGHBOURS, len(reference)), algorithm="brute").fit(flat[reference])
     order = searched.kneighbors(flat[queries], return_distance=False)  # (queries, neighbours), nearest first
     known = targets[reference]
-    predicted = np.full((len(queries), *targets.shape[1:]), np.nan, dtype=np.float64)
+    predicted = np.full((len(queries), *targets.shape[1:]), -1 if classes else np.nan, dtype=targets.dtype if classes else np.float64)
     for rank in range(order.shape[1]):  # nearest first: fill what is still missing
-        missing = np.isnan(predicted)
+        missing = lacking(predicted)
         predicted[missing] = known[order[:, rank]][missing]
+    if classes:
+        return np.where(predicted < 0, np.bincount(known[known >= 0]).argmax(), predicted)
     mean = np.broadcast_to(np.nanmean(known, axis=0), predicted.shape)
     return np.where(np.isnan(predicted), np.nan_to_num(mean), predicted)
 
