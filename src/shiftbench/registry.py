@@ -25,6 +25,7 @@ COMPONENT_MODULES = [
     "shiftbench.data.digits",
     "shiftbench.data.ucr",
     "shiftbench.data.tser",
+    "shiftbench.data.series_gaps",
     "shiftbench.data.files",
     "shiftbench.graphs.sources",
     "shiftbench.graphs.from_signals",

@@ -138,6 +138,7 @@ CONFIG_CASES: list[tuple[list[str], str]] = [
     (["data=sensor_leak"], "task='classification' is not accepted; accepted: source_localization for data=sensor_leak"),
     (["data=sensor_leak_size"], "task='classification' is not accepted; accepted: regression for data=sensor_leak_size"),
     (["data=sensor_zones"], "task='classification' is not accepted; accepted: node_classification for data=sensor_zones"),
+    (["data=series_gaps"], "task='classification' is not accepted; accepted: node_regression for data=series_gaps"),
     (["arch=line_conv", "arch.boundary=reflect"], "arch.boundary='reflect' is not accepted; accepted: one of zero, circular"),
     (["data.val_fraction=0.9"], "data.test_fraction=0.2 is not accepted; accepted: a fraction below 0.1 "
                                 "(val_fraction + test_fraction < 1)"),

@@ -52,3 +52,35 @@ def test_whole_signal_regression_runs_every_family_and_the_ridge_floor(tmp_path)
     assert list(predictions.columns) == ["sample", "output", "target", "predicted"] and len(predictions) == 61
     rmse = math.sqrt(np.mean((predictions["predicted"] - predictions["target"]) ** 2))
     assert rmse == pytest.approx(records["graph_conv"]["test_rmse"], rel=1e-4)
+
+
+def test_gaps_in_real_series_are_filled_from_their_time_neighbours():
+    # Linear interpolation between the nearest observed steps (numpy.interp) against the mean of
+    # each step over the training series (the floor), and against interpolating in a shuffled
+    # step order (the same readings without their time structure).
+    from shiftbench.data.series_gaps import series_gaps
+
+    data = series_gaps("GunPoint", masked=0.3)
+    assert data.signals.shape == (200, 150, 2) and data.labels.shape == (200, 150, 1)
+    observed = data.signals[:, :, 1] == 1
+    assert np.array_equal(np.isnan(data.labels[:, :, 0]), observed) and (data.signals[:, :, 0][~observed] == 0).all()
+    test = data.splits.test
+    truth, readings = data.labels[test, :, 0], data.signals[test, :, 0]
+
+    def interpolated(order):
+        filled = []
+        for row, seen in zip(readings[:, order], observed[test][:, order]):
+            steps = np.arange(len(row))
+            filled.append(np.interp(steps, steps[seen], row[seen]))
+        return np.array(filled)[:, np.argsort(order)]
+
+    hidden = ~observed[test]
+    steps = data.labels.shape[1]
+    along_time = rmse(interpolated(np.arange(steps))[hidden], truth[hidden])
+    shuffled = rmse(interpolated(np.random.default_rng(0).permutation(steps))[hidden], truth[hidden])
+    floor = rmse(np.broadcast_to(np.nanmean(data.labels[data.splits.train, :, 0], axis=0), truth.shape)[hidden], truth[hidden])
+    assert along_time < 0.2 * floor and along_time < 0.2 * shuffled
+
+
+def rmse(predicted, truth):
+    return float(np.sqrt(np.mean((predicted - truth) ** 2)))
