@@ -84,7 +84,8 @@ class LineConv(FilterStack):
     ``(K_l + 1) * in * out + out``, independent of ``nodes``.
 
     Shapes:
-        input ``(batch, nodes, features)`` -> logits ``(batch, classes)``.
+        input ``(batch, nodes, features)`` -> logits ``(batch, classes)``, or with the ``node``
+        readout ``(batch, nodes, classes)``.
     """
 
     def __init__(

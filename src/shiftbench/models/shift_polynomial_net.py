@@ -26,7 +26,8 @@ class ShiftPolynomialNet(FilterStack):
             :class:`ShiftPolynomialLayer`).
 
     Shapes:
-        input ``(batch, nodes, features)`` -> logits ``(batch, classes)``.
+        input ``(batch, nodes, features)`` -> logits ``(batch, classes)``, or with the ``node``
+        readout ``(batch, nodes, classes)``.
     """
 
     def __init__(

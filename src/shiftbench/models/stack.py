@@ -37,14 +37,15 @@ class FilterStack(nn.Module):
 
     Args:
         layers: modules mapping ``(batch, nodes, c_l)`` to ``(batch, nodes, c_{l+1})``.
-        readout: maps ``(batch, nodes, c_L)`` to ``(batch, classes)``.
+        readout: maps ``(batch, nodes, c_L)`` to ``(batch, classes)`` (``node``: ``(batch, nodes, classes)``).
         nonlinearity: name of ``sigma`` (``relu``, ``tanh``, ``leaky_relu``).
         dropout: probability of zeroing an activation during training.
         normalization: ``none`` or ``batch``.
         channels: the output width of each layer.
 
     Shapes:
-        input ``(batch, nodes, features)`` -> logits ``(batch, classes)``.
+        input ``(batch, nodes, features)`` -> logits ``(batch, classes)``, or with the ``node``
+        readout ``(batch, nodes, classes)``.
     """
 
     def __init__(
