@@ -78,15 +78,22 @@ def test_every_family_runs_the_task_and_the_table_speaks_rmse(tmp_path, data):
     assert {"test_rmse_mean", "test_rmse_ci95"} <= set(table.columns) and len(table) == 3
 
 
-def test_the_claims_refuse_records_of_another_task_in_one_line(tmp_path):
+def test_the_claims_run_on_records_of_a_node_task_and_speak_its_metric(tmp_path):
+    import json
+
     from shiftbench.claims_report import write_claims
     from shiftbench.job import run_job
 
-    overrides = ["task=node_regression", "data=sensor_forecast", "data.samples=60", "data.nodes=12", "train.epochs=2",
-                 f"results_dir={tmp_path}", "arch=fc"]
-    run_job(composed(overrides), None, overrides, live=False, quiet=True)
-    with pytest.raises(ValueError, match="are of task node_regression; accepted: records of task classification"):
-        write_claims([tmp_path / "store"], tmp_path / "claims")
+    for family in (["arch=fc"], ["arch=graph_conv", "arch.readout=node"]):
+        overrides = ["task=node_regression", "data=sensor_forecast", "data.samples=60", "data.nodes=12",
+                     "train.epochs=2", f"results_dir={tmp_path}", *family]
+        run_job(composed(overrides), None, overrides, live=False, quiet=True)
+    text = write_claims([tmp_path / "store"], tmp_path / "claims", seeds=(0,), epochs=2)
+    written = json.loads((tmp_path / "claims" / "claims.json").read_text())
+    verdicts = {claim["id"]: claim["verdict"] for claim in written["claims"]}
+    assert verdicts["line_graph_equivalence"] == verdicts["node_outputs"] == verdicts["permutation_equivariance"] == "holds"
+    assert written["analyses"]["subject"]["task"] == "node_regression"
+    assert "test_rmse" in written["analyses"]["graph_conv"] and "test rmse (mean)" in text
 
 
 def test_the_nearest_floor_predicts_the_nearest_samples_values_filling_masked_ones_from_the_next():

@@ -8,7 +8,7 @@ from shiftbench.config import TrainConfig
 from shiftbench.data import sensor_regimes
 from shiftbench.graphs.operators import shift_operator
 from shiftbench.models import ShiftPolynomialNet
-from shiftbench.robustness import accuracy_on_test, on_shift, perturbation_table, perturbed_graph, transfer_table
+from shiftbench.robustness import score_on_test, on_shift, perturbation_table, perturbed_graph, transfer_table
 from shiftbench.training import seed_everything, train
 
 
@@ -28,7 +28,7 @@ def degrees(graph):
 def test_no_perturbation_reproduces_the_unperturbed_accuracy_exactly(trained):
     demo, model = trained
     table = perturbation_table(model, demo, demo.native_graph, "adjacency", "spectral", fractions=(0.0,), draws=3)
-    assert set(table["test_accuracy"]) == {accuracy_on_test(model, demo)}
+    assert set(table["test_accuracy"]) == {score_on_test(model, demo)}
 
 
 def test_rewiring_keeps_every_degree_and_dropping_removes_the_fraction(trained):
@@ -43,11 +43,11 @@ def test_rewiring_keeps_every_degree_and_dropping_removes_the_fraction(trained):
 
 def test_a_copy_on_another_graph_leaves_the_original_untouched(trained):
     demo, model = trained
-    before = accuracy_on_test(model, demo)
+    before = score_on_test(model, demo)
     bigger = sensor_regimes(nodes=80, samples_per_class=40)
     moved = on_shift(model, shift_operator(bigger.native_graph))
     assert moved.layers[0].shift.shape == (80, 80) and model.layers[0].shift.shape == (40, 40)
-    assert accuracy_on_test(model, demo) == before
+    assert score_on_test(model, demo) == before
 
 
 def test_transfer_evaluates_the_same_weights_at_every_size(trained):
@@ -55,5 +55,5 @@ def test_transfer_evaluates_the_same_weights_at_every_size(trained):
     larger = sensor_regimes(nodes=80, samples_per_class=40)
     table = transfer_table(model, [(demo, demo.native_graph), (larger, larger.native_graph)], "adjacency", "spectral")
     assert table["nodes"].tolist() == [40, 80]
-    assert table["test_accuracy"].iloc[0] == accuracy_on_test(model, demo)
+    assert table["test_accuracy"].iloc[0] == score_on_test(model, demo)
     assert np.isfinite(table["test_accuracy"]).all()

@@ -7,6 +7,7 @@ how figures grow with size read the records of a study (the ``claims`` study wri
 from __future__ import annotations
 
 import json
+import math
 from dataclasses import asdict, dataclass, field, replace
 from typing import Any, Callable
 
@@ -23,7 +24,8 @@ from shiftbench.models import FullyConnected, ShiftPolynomialNet, LineConv
 from shiftbench.models.mapping import line_conv_to_graph_conv
 from shiftbench.models.shift_polynomial import ShiftPolynomialLayer
 from shiftbench.models.shift_polynomial import kernel_to_taps
-from shiftbench.records import computed_content
+from shiftbench.records import computed_content, with_scores
+from shiftbench.registry import TASKS, Task
 from shiftbench.report import t_interval
 from shiftbench.training import seed_everything, train
 
@@ -54,63 +56,77 @@ def _logits(model: torch.nn.Module, signals: np.ndarray) -> torch.Tensor:
         return model(torch.from_numpy(signals))
 
 
-def _transfer(dataset: Dataset, seed: int, boundary: str, config: TrainConfig, taps_from: Callable) -> dict[str, float]:
+def readout_for(task: Task) -> str:
+    """The readout a claim's networks use for ``task``: the per-node map for a node task."""
+    return "node" if task.head == "nodes" else "mean"
+
+
+def _transfer(
+    dataset: Dataset, seed: int, boundary: str, config: TrainConfig, taps_from: Callable, task: Task
+) -> dict[str, float]:
     """Train a line_conv, map its weights into a graph_conv on the line graph (or cycle), and
-    compare the two on the test split."""
+    compare the two on the test split (their outputs, and the task's test figure)."""
     seed_everything(seed)
-    cnn = LineConv(dataset.nodes, dataset.features, CHANNELS, dataset.classes, ORDER, boundary=boundary)
-    result = train(cnn, dataset, config, seed)
+    cnn = LineConv(dataset.nodes, dataset.features, CHANNELS, dataset.classes, ORDER, boundary=boundary,
+                   readout=readout_for(task))
+    result = train(cnn, dataset, config, seed, task=task)
     graph = cycle_graph(dataset.nodes) if boundary == "circular" else line_graph(dataset.nodes)
     gnn = line_conv_to_graph_conv(cnn, shift_operator(graph, "adjacency", "none"), taps_from)
     test = dataset.signals[dataset.splits.test]
     cnn_logits, gnn_logits = _logits(cnn, test), _logits(gnn, test)
-    labels = torch.from_numpy(dataset.labels[dataset.splits.test])
+    targets = torch.from_numpy(dataset.labels[dataset.splits.test])
     return {
         "max_abs_logit_difference": float((cnn_logits - gnn_logits).abs().max()),
-        "cnn_test_accuracy": result.test_score,
-        "gnn_test_accuracy": int((gnn_logits.argmax(1) == labels).sum()) / len(labels),
+        f"cnn_test_{task.metric}": result.test_score,
+        f"gnn_test_{task.metric}": task.score(gnn_logits, targets),
     }
 
 
-def _parity(dataset: Dataset, seed: int, config: TrainConfig, taps_from: Callable) -> dict[str, float]:
+def _parity(dataset: Dataset, seed: int, config: TrainConfig, taps_from: Callable, task: Task) -> dict[str, float]:
     """Train a line_conv and a graph_conv from mapped initial weights on the same batches and
     compare their learning curves epoch by epoch, in float64: the two compute the same function
     by different routes, and float32 rounding would make their paths drift apart."""
     seed_everything(seed)
     dataset = replace(dataset, signals=dataset.signals.astype(np.float64))
-    cnn = LineConv(dataset.nodes, dataset.features, CHANNELS, dataset.classes, ORDER).double()
+    cnn = LineConv(dataset.nodes, dataset.features, CHANNELS, dataset.classes, ORDER, readout=readout_for(task)).double()
     shift = shift_operator(line_graph(dataset.nodes), "adjacency", "none").double()
     gnn = line_conv_to_graph_conv(cnn, shift, taps_from).double()
-    cnn_curve = pd.DataFrame(train(cnn, dataset, config, seed).curve)
-    gnn_curve = pd.DataFrame(train(gnn, dataset, config, seed).curve)
+    cnn_curve = pd.DataFrame(train(cnn, dataset, config, seed, task=task).curve)
+    gnn_curve = pd.DataFrame(train(gnn, dataset, config, seed, task=task).curve)
     epochs = min(len(cnn_curve), len(gnn_curve))
     difference = (cnn_curve.iloc[:epochs] - gnn_curve.iloc[:epochs]).abs()
     return {
         "epochs_compared": epochs,
         "max_train_loss_difference": float(difference["train_loss"].max()),
-        "max_val_accuracy_difference": float(difference["val_accuracy"].max()),
+        f"max_val_{task.metric}_difference": float(difference[f"val_{task.metric}"].max()),
     }
 
 
 def line_graph_equivalence(
-    dataset: Dataset, seeds: tuple[int, ...] = (0, 1, 2), epochs: int = 20, taps_from: Callable = kernel_to_taps
+    dataset: Dataset, seeds: tuple[int, ...] = (0, 1, 2), epochs: int = 20, taps_from: Callable = kernel_to_taps,
+    task: Task | None = None,
 ) -> Claim:
-    """(a) weight transfer on the line graph, (b) training parity, (c) transfer on the cycle."""
+    """(a) weight transfer on the line graph, (b) training parity, (c) transfer on the cycle,
+    each on the data's own task (classification by default)."""
+    task = task or TASKS["classification"]
     config = TrainConfig(epochs=epochs, patience=epochs)
-    transfer = [_transfer(dataset, seed, "zero", config, taps_from) for seed in seeds]
-    cycle = [_transfer(dataset, seed, "circular", config, taps_from) for seed in seeds]
-    parity = [_parity(dataset, seed, config, taps_from) for seed in seeds]
+    transfer = [_transfer(dataset, seed, "zero", config, taps_from, task) for seed in seeds]
+    cycle = [_transfer(dataset, seed, "circular", config, taps_from, task) for seed in seeds]
+    parity = [_parity(dataset, seed, config, taps_from, task) for seed in seeds]
 
     def agrees(runs: list[dict[str, float]]) -> bool:
+        # An accuracy agrees only exactly (one flipped sample moves it by 1/n); an error to
+        # float32 rounding.
         return all(
-            run["max_abs_logit_difference"] <= TOLERANCE and run["cnn_test_accuracy"] == run["gnn_test_accuracy"]
+            run["max_abs_logit_difference"] <= TOLERANCE
+            and math.isclose(run[f"cnn_test_{task.metric}"], run[f"gnn_test_{task.metric}"], rel_tol=TOLERANCE, abs_tol=0)
             for run in runs
         )
 
     # Parity is trained in float64, where the two routes agree to rounding (1e-9 on the loss
-    # curve) and no validation sample may flip.
+    # curve and on the validation figure: no validation sample may flip).
     transfer_holds = agrees(transfer) and agrees(cycle)
-    parity_holds = all(run["max_train_loss_difference"] <= 1e-9 and run["max_val_accuracy_difference"] == 0
+    parity_holds = all(run["max_train_loss_difference"] <= 1e-9 and run[f"max_val_{task.metric}_difference"] <= 1e-9
                        for run in parity)
     if not transfer_holds:
         verdict, why = "does_not_hold", "the mapped networks disagree beyond float32 rounding"
@@ -208,28 +224,35 @@ def node_outputs(dataset: Dataset, seed: int = 0, taps_from: Callable = kernel_t
     )
 
 
-def permutation_equivariance(dataset: Dataset, graph: Graph, seed: int = 0) -> Claim:
-    """Relabel the nodes of ``graph`` and ``dataset``'s signals; compare the three families' logits."""
+def permutation_equivariance(dataset: Dataset, graph: Graph, seed: int = 0, task: Task | None = None) -> Claim:
+    """Relabel the nodes of ``graph`` and ``dataset``'s signals; compare the three families'
+    outputs (for a task on every node, the relabelled outputs with the original ones relabelled)."""
+    task = task or TASKS["classification"]
     seed_everything(seed)
     permutation = torch.randperm(dataset.nodes)
     relabelled = graph.permuted(permutation)
     x = torch.from_numpy(dataset.signals[dataset.splits.test])
-    gnn = ShiftPolynomialNet(shift_operator(graph), dataset.features, CHANNELS, dataset.classes, ORDER)
-    moved = ShiftPolynomialNet(shift_operator(relabelled), dataset.features, CHANNELS, dataset.classes, ORDER)
+    readout = readout_for(task)
+    gnn = ShiftPolynomialNet(shift_operator(graph), dataset.features, CHANNELS, dataset.classes, ORDER, readout=readout)
+    moved = ShiftPolynomialNet(shift_operator(relabelled), dataset.features, CHANNELS, dataset.classes, ORDER, readout=readout)
     moved.load_state_dict(gnn.state_dict())
-    fc = FullyConnected(dataset.nodes, dataset.features, [64], dataset.classes)
-    cnn = LineConv(dataset.nodes, dataset.features, CHANNELS, dataset.classes, ORDER)
+    fc = FullyConnected(dataset.nodes, dataset.features, [64], dataset.classes, head=task.head)
+    cnn = LineConv(dataset.nodes, dataset.features, CHANNELS, dataset.classes, ORDER, readout=readout)
+
+    def relabel(outputs: torch.Tensor) -> torch.Tensor:
+        return outputs[:, permutation] if task.head == "nodes" else outputs
+
     with torch.no_grad():
         differences = {
-            "graph_conv": float((moved(x[:, permutation]) - gnn(x)).abs().max()),
-            "fc": float((fc(x[:, permutation]) - fc(x)).abs().max()),
-            "line_conv": float((cnn(x[:, permutation]) - cnn(x)).abs().max()),
+            "graph_conv": float((moved(x[:, permutation]) - relabel(gnn(x))).abs().max()),
+            "fc": float((fc(x[:, permutation]) - relabel(fc(x))).abs().max()),
+            "line_conv": float((cnn(x[:, permutation]) - relabel(cnn(x))).abs().max()),
         }
     holds = differences["graph_conv"] <= TOLERANCE and min(differences["fc"], differences["line_conv"]) > 1e-3
     return Claim(
         id="permutation_equivariance",
-        statement="Relabelling the nodes (of graph and signals alike) leaves graph_conv's logits unchanged and "
-        "changes fc's and line_conv's.",
+        statement="Relabelling the nodes (of graph and signals alike) leaves graph_conv's outputs unchanged (or, "
+        "for outputs on every node, relabels them alike) and changes fc's and line_conv's.",
         verdict="holds" if holds else "does_not_hold",
         evidence={"graph": graph.name, "max_abs_logit_difference": differences},
     )
@@ -269,16 +292,33 @@ def parameters_vs_nodes(records: pd.DataFrame) -> Claim:
                  records=sorted(frame["path"].dropna().tolist()))
 
 
+def signed_scores(frame: pd.DataFrame) -> pd.Series:
+    """The records' test figures signed so that larger is better (an error negated); records
+    given without ``load_records``' score columns get them here."""
+    if frame.empty:
+        return pd.Series(dtype=float)
+    if "test_score" not in frame:
+        frame = with_scores(frame.copy())
+    return frame["test_score"].astype(float) * frame["better"].map({"higher": 1.0, "lower": -1.0})
+
+
+def _metric(frame: pd.DataFrame) -> str:
+    return str(frame["metric"].iloc[0]) if not frame.empty and "metric" in frame else "accuracy"
+
+
 def accuracy_vs_nodes(records: pd.DataFrame) -> Claim:
-    """The slope of test accuracy against log2(nodes), per seed, then its interval over seeds."""
+    """The slope of the test figure (signed: larger is better) against log2(nodes), per seed,
+    then its interval over seeds."""
     frame = _completed(records)
     if not frame.empty:  # graph_conv on the graph the data carries, not on the control graphs
         frame = frame[(frame["family"] != "graph_conv") | (frame["graph"] == "native")]
-    statement = "At a fixed training size, fc's test accuracy degrades faster with the number of nodes than graph_conv's."
+        frame = frame.assign(signed=signed_scores(frame))
+    statement = (f"At a fixed training size, fc's test {_metric(frame)} degrades faster with the number of nodes "
+                 "than graph_conv's.")
     slopes: dict[str, dict[str, float]] = {}
     for family, group in (frame.groupby("family") if not frame.empty else []):
         per_seed = [
-            np.polyfit(np.log2(runs["nodes"].astype(float)), runs["test_accuracy"].astype(float), 1)[0]
+            np.polyfit(np.log2(runs["nodes"].astype(float)), runs["signed"].astype(float), 1)[0]
             for _, runs in group.groupby("seed") if runs["nodes"].nunique() >= 3
         ]
         if len(per_seed) >= 2:
@@ -310,11 +350,13 @@ def graph_matters(records: pd.DataFrame) -> Claim:
     """graph_conv on the native graph against a degree-preserving rewiring of it (and the line
     graph), paired by seed among runs whose configs are identical apart from graph and seed.
 
-    Holds when the native-minus-rewired interval lies above 0, and does not hold otherwise (the
-    explanation says whether the interval merely reaches 0); the line graph is evidence beside
-    it, not a way to hold."""
+    Holds when the native-minus-rewired interval (of test figures signed so that larger is
+    better) lies above 0, and does not hold otherwise (the explanation says whether the interval
+    merely reaches 0); the line graph is evidence beside it, not a way to hold."""
     frame = _completed(records)
     statement = "graph_conv is more accurate on the native graph than on a degree-preserving rewiring of it or on the line graph."
+    if not frame.empty:
+        frame = frame.assign(signed=signed_scores(frame))
     gnn = frame[frame["family"] == "graph_conv"] if not frame.empty else frame
     if not gnn.empty and "config" in gnn:
         gnn = gnn[gnn["config"].map(lambda config: isinstance(config, dict))]
@@ -324,7 +366,7 @@ def graph_matters(records: pd.DataFrame) -> Claim:
     for other in ("rewired", "line"):
         pairs = []
         for _, runs in (gnn.groupby(gnn["config"].map(_like_for_like)) if not gnn.empty else []):
-            by_seed = runs.pivot_table(index="seed", columns="graph", values="test_accuracy", aggfunc="mean")
+            by_seed = runs.pivot_table(index="seed", columns="graph", values="signed", aggfunc="mean")
             if "native" not in by_seed or other not in by_seed:
                 continue
             both = by_seed[["native", other]].dropna()

@@ -12,7 +12,7 @@ from __future__ import annotations
 import json
 from collections import Counter
 from collections.abc import Iterable
-from dataclasses import asdict, dataclass, replace
+from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
@@ -28,7 +28,8 @@ from shiftbench.graphs import Graph, build_graph
 from shiftbench.graphs.operators import shift_operator
 from shiftbench.models import ShiftPolynomialNet
 from shiftbench.records import load_records, write_atomic
-from shiftbench.robustness import accuracy_on_test, perturbation_table, transfer_table
+from shiftbench.registry import TASKS, Task
+from shiftbench.robustness import perturbation_table, score_on_test, transfer_table
 from shiftbench.spectral import frequencies, layer_responses, summarize
 from shiftbench.training import seed_everything, train
 
@@ -47,6 +48,7 @@ class Subject:
         origin: where they come from, said in every output (the folder's records, or the demo
             and why).
         overrides: the command-line overrides that select this data (for suggested commands).
+        task: the task the records learn (classification for the demo).
     """
 
     dataset: Dataset
@@ -55,9 +57,10 @@ class Subject:
     graph: Graph
     origin: str
     overrides: list[str]
+    task: Task = field(default_factory=lambda: TASKS["classification"])
 
     def describe(self) -> dict[str, Any]:
-        return {"data": self.dataset.name, "data_source": self.data.source, "nodes": self.dataset.nodes,
+        return {"data": self.dataset.name, "data_source": self.data.source, "nodes": self.dataset.nodes, "task": self.task.name,
                 "graph": self.graph.name, "graph_source": self.graph_config.source,
                 "operator": self.graph_config.operator, "scale": self.graph_config.scale, "from": self.origin}
 
@@ -110,20 +113,21 @@ def subject_of(records: pd.DataFrame, where: str, demo: Dataset) -> Subject:
     except ConfigError as error:
         return demo_subject(demo, f"the data of the records under {where} cannot be loaded here: {error}")
     lines = [line for overrides in mine.get("overrides", []) if isinstance(overrides, list) for line in overrides]
-    selecting = list(dict.fromkeys(line for line in lines if line.lstrip("+").startswith("data")))
-    return Subject(dataset, data, graph_config, graph, f"the records under {where}", selecting)
+    selecting = list(dict.fromkeys(line for line in lines if line.lstrip("+").startswith(("data", "task"))))
+    task = TASKS[Counter(mine["task"]).most_common(1)[0][0]] if "task" in mine else TASKS["classification"]
+    return Subject(dataset, data, graph_config, graph, f"the records under {where}", selecting, task)
 
 
 def evaluate(records: pd.DataFrame, seeds: tuple[int, ...], subject: Subject) -> list[claims.Claim]:
     """The claims in a stable order: computed ones on ``subject``'s data and graph, the rest
     from ``records``."""
     return [
-        claims.line_graph_equivalence(subject.dataset, seeds),
+        claims.line_graph_equivalence(subject.dataset, seeds, task=subject.task),
         claims.node_outputs(subject.dataset),
         claims.undirected_path_symmetry(),
         claims.parameters_vs_nodes(records),
         claims.accuracy_vs_nodes(records),
-        claims.permutation_equivariance(subject.dataset, subject.graph),
+        claims.permutation_equivariance(subject.dataset, subject.graph, task=subject.task),
         claims.graph_matters(records),
     ]
 
@@ -160,7 +164,8 @@ def _transfer(model: ShiftPolynomialNet, subject: Subject) -> list[dict] | str:
         return f"not run: data {subject.dataset.name!r} comes at one node count"
     larger = [load_dataset(replace(subject.data, nodes=subject.dataset.nodes * factor)) for factor in SIZE_FACTORS]
     graph = subject.graph_config
-    table = transfer_table(model, [(data, build_graph(graph, data)) for data in larger], graph.operator, graph.scale)
+    table = transfer_table(model, [(data, build_graph(graph, data)) for data in larger], graph.operator, graph.scale,
+                           subject.task)
     return table.to_dict(orient="records")
 
 
@@ -168,11 +173,11 @@ def learned_filters(out: Path, subject: Subject, epochs: int = 60, seed: int = 0
     """Train a graph_conv on the subject's data and graph, plot its frequency responses (beside
     the demo's true ones when the data is the demo), and test it on perturbed graphs and, where
     the data comes at other sizes, on larger networks."""
-    dataset, graph, config = subject.dataset, subject.graph, subject.graph_config
+    dataset, graph, config, task = subject.dataset, subject.graph, subject.graph_config, subject.task
     shift = shift_operator(graph, config.operator, config.scale)
     seed_everything(seed)
-    model = ShiftPolynomialNet(shift, dataset.features, [16, 16], dataset.classes, order=3)
-    train(model, dataset, TrainConfig(epochs=epochs), seed)
+    model = ShiftPolynomialNet(shift, dataset.features, [16, 16], dataset.classes, order=3, readout=claims.readout_for(task))
+    train(model, dataset, TrainConfig(epochs=epochs), seed, task=task)
     plotted = ["perturbation.png"]
     try:
         eigenvalues = frequencies(shift)
@@ -182,13 +187,14 @@ def learned_filters(out: Path, subject: Subject, epochs: int = 60, seed: int = 0
         summaries = [summarize(responses) for responses in layer_responses(model, eigenvalues)]
         plots.frequency_responses(eigenvalues, summaries, out / "frequency_responses.png", _true_responses(subject, eigenvalues))
         responses, plotted = "frequency_responses.png", ["frequency_responses.png", *plotted]
-    perturbation = perturbation_table(model, dataset, graph, config.operator, config.scale)
+    perturbation = perturbation_table(model, dataset, graph, config.operator, config.scale, task=task)
     plots.perturbation(perturbation, out / "perturbation.png")
-    summary = perturbation.groupby(["mode", "fraction"])["test_accuracy"].agg(["mean", "min", "max"]).reset_index()
+    test = f"test_{task.metric}"
+    summary = perturbation.groupby(["mode", "fraction"])[test].agg(["mean", "min", "max"]).reset_index()
     return {
         "subject": subject.describe(),
         "graph_conv": {"operator": config.operator, "scale": config.scale, "seed": seed,
-                       "test_accuracy": accuracy_on_test(model, dataset)},
+                       test: score_on_test(model, dataset, task)},
         "frequency_responses": responses,
         "perturbation": summary.to_dict(orient="records"),
         "transfer": _transfer(model, subject),
@@ -206,11 +212,14 @@ def format_subject(subject: dict[str, Any]) -> str:
 
 def format_analyses(analyses: dict) -> str:
     trained = analyses["graph_conv"]
+    test = next(key for key in trained if key.startswith("test_"))
+    metric = test[5:]
+    short = "acc" if metric == "accuracy" else metric
     lines = [
         "## What the graph filters learned",
         "",
-        f"A graph_conv trained on {format_subject(analyses['subject'])}: seed {trained['seed']}, test accuracy "
-        f"{trained['test_accuracy']:.3f}.",
+        f"A graph_conv trained on {format_subject(analyses['subject'])}: seed {trained['seed']}, test {metric} "
+        f"{trained[test]:.3f}.",
         "",
     ]
     if analyses["frequency_responses"].endswith(".png"):
@@ -221,7 +230,7 @@ def format_analyses(analyses: dict) -> str:
     lines += [
         "### Stability under graph perturbation",
         "",
-        "| mode | edges perturbed | test acc (mean) | min | max |",
+        f"| mode | edges perturbed | test {short} (mean) | min | max |",
         "| --- | ---: | ---: | ---: | ---: |",
     ]
     lines += [
@@ -232,8 +241,8 @@ def format_analyses(analyses: dict) -> str:
     if isinstance(analyses["transfer"], str):
         lines += [f"Transfer {analyses['transfer']}."]
     else:
-        lines += ["| nodes | test acc |", "| ---: | ---: |"]
-        lines += [f"| {row['nodes']} | {row['test_accuracy']:.3f} |" for row in analyses["transfer"]]
+        lines += [f"| nodes | test {short} |", "| ---: | ---: |"]
+        lines += [f"| {row['nodes']} | {row[test]:.3f} |" for row in analyses["transfer"]]
     lines += ["", analyses["transfer_fc"] + ".", ""]
     return "\n".join(lines)
 
@@ -271,12 +280,9 @@ def write_claims(
     paths = list(paths)
     records = load_records(paths)
     where = ", ".join(map(str, paths))
-    other = sorted(set(records.get("task", [])) - {"classification"})
-    if other:
-        raise ValueError(
-            f"the records under {where} are of task {', '.join(other)}; accepted: records of task classification "
-            "(the claims are checked on classification so far)"
-        )
+    tasks = sorted(set(records.get("task", [])))
+    if len(tasks) > 1:
+        raise ValueError(f"the records under {where} learn different tasks ({', '.join(tasks)}); accepted: records of one task")
     subject = subject_of(records, where, demo if demo is not None else sensor_regimes())
     checked = evaluate(records, seeds, subject)
     suggest_runs(checked, subject, paths[0])

@@ -214,8 +214,10 @@ def frequency_responses(
 
 
 def perturbation(table: pd.DataFrame, path: Path) -> tuple[Path, pd.DataFrame]:
-    """Mean test accuracy (and the range over draws) against the fraction of edges perturbed."""
-    points = table.groupby(["mode", "fraction"], as_index=False)["test_accuracy"].agg(["mean", "min", "max"])
+    """The mean test figure (its ``test_<metric>`` column; and the range over draws) against the
+    fraction of edges perturbed."""
+    column = next(name for name in table.columns if name.startswith("test_"))
+    points = table.groupby(["mode", "fraction"], as_index=False)[column].agg(["mean", "min", "max"])
     figure, axis = plt.subplots(figsize=(6, 4))
     for mode, group in points.groupby("mode", sort=True):
         axis.errorbar(
@@ -225,7 +227,7 @@ def perturbation(table: pd.DataFrame, path: Path) -> tuple[Path, pd.DataFrame]:
             marker="o", capsize=3, label=mode,
         )
     axis.set_xlabel("edges perturbed (%)")
-    axis.set_ylabel("test accuracy (mean, range over draws)")
+    axis.set_ylabel(f"test {column[5:]} (mean, range over draws)")
     axis.legend()
     axis.grid(alpha=0.3)
     return _save(figure, path), points

@@ -19,6 +19,7 @@ from shiftbench.graphs.operators import shift_operator
 from shiftbench.graphs.sources import from_simple, rewired_graph, simple_graph
 from shiftbench.models.shift_polynomial_net import ShiftPolynomialNet
 from shiftbench.models.shift_products import plan
+from shiftbench.registry import TASKS, Task
 
 FRACTIONS = (0.0, 0.01, 0.05, 0.10, 0.20)
 MODES = ("drop", "rewire")
@@ -49,43 +50,49 @@ def on_shift(model: ShiftPolynomialNet, shift: torch.Tensor) -> ShiftPolynomialN
     return copy.deepcopy(model, memo=memo)
 
 
-def accuracy_on_test(model: torch.nn.Module, dataset: Dataset) -> float:
+def score_on_test(model: torch.nn.Module, dataset: Dataset, task: Task | None = None) -> float:
+    """The task's primary metric (classification's accuracy by default) of ``model`` on the
+    test split."""
+    task = task or TASKS["classification"]
     model.eval()
     test = dataset.splits.test
     with torch.no_grad():
-        predicted = model(torch.from_numpy(dataset.signals[test])).argmax(dim=1).numpy()
-    return float((predicted == dataset.labels[test]).mean())
+        outputs = model(torch.from_numpy(dataset.signals[test]))
+    return task.score(outputs, torch.from_numpy(dataset.labels[test]))
 
 
 def perturbation_table(
     model: ShiftPolynomialNet, dataset: Dataset, graph: Graph, operator: str, scale: str,
-    fractions: tuple[float, ...] = FRACTIONS, draws: int = 5,
+    fractions: tuple[float, ...] = FRACTIONS, draws: int = 5, task: Task | None = None,
 ) -> pd.DataFrame:
-    """Test accuracy with each fraction of edges dropped or rewired, ``draws`` random draws each.
+    """The task's test figure with each fraction of edges dropped or rewired, ``draws`` random
+    draws each.
 
     Returns:
-        Rows ``mode, fraction, draw, test_accuracy``.
+        Rows ``mode, fraction, draw, test_<metric>`` (``test_accuracy`` for classification).
     """
+    task = task or TASKS["classification"]
     rows = []
     for mode in MODES:
         for fraction in fractions:
             for draw in range(draws if fraction else 1):
                 changed = perturbed_graph(graph, fraction, mode, seed=draw)
-                accuracy = accuracy_on_test(on_shift(model, shift_operator(changed, operator, scale)), dataset)
-                rows.append({"mode": mode, "fraction": fraction, "draw": draw, "test_accuracy": accuracy})
+                figure = score_on_test(on_shift(model, shift_operator(changed, operator, scale)), dataset, task)
+                rows.append({"mode": mode, "fraction": fraction, "draw": draw, f"test_{task.metric}": figure})
     return pd.DataFrame(rows)
 
 
 def transfer_table(
-    model: ShiftPolynomialNet, datasets: list[tuple[Dataset, Graph]], operator: str, scale: str
+    model: ShiftPolynomialNet, datasets: list[tuple[Dataset, Graph]], operator: str, scale: str, task: Task | None = None
 ) -> pd.DataFrame:
-    """Test accuracy of the unchanged ``model`` on each dataset with its graph.
+    """The task's test figure of the unchanged ``model`` on each dataset with its graph.
 
     Returns:
-        Rows ``nodes, test_accuracy``.
+        Rows ``nodes, test_<metric>``.
     """
+    task = task or TASKS["classification"]
     rows = []
     for dataset, graph in datasets:
         shift = shift_operator(graph, operator, scale)
-        rows.append({"nodes": dataset.nodes, "test_accuracy": accuracy_on_test(on_shift(model, shift), dataset)})
+        rows.append({"nodes": dataset.nodes, f"test_{task.metric}": score_on_test(on_shift(model, shift), dataset, task)})
     return pd.DataFrame(rows)
