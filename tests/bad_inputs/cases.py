@@ -178,10 +178,16 @@ DATA_CASES: list[tuple[str, Writer, str]] = [
      "has an array header beyond numpy's safety limit; save plain numeric arrays"),
     ("nolabels.npz", npz(signals=GOOD_SIGNALS),
      "has no array 'labels'; save signals (samples, nodes[, features]) and one of labels (samples,) (classes), "
-     "targets (values per signal) or node_targets (values on every node)"),
+     "targets (values per signal), node_targets (values on every node), node_labels (classes on every node) or "
+     "sources (the node each signal started at)"),
     ("labels_and_targets.npz", npz(signals=GOOD_SIGNALS, labels=GOOD_LABELS, targets=np.zeros(30)),
      "has both 'labels' and 'targets'; save signals (samples, nodes[, features]) and one of labels (samples,) "
-     "(classes), targets (values per signal) or node_targets (values on every node)"),
+     "(classes), targets (values per signal), node_targets (values on every node), node_labels (classes on every "
+     "node) or sources (the node each signal started at)"),
+    ("sources_out_of_range.npz", npz(signals=GOOD_SIGNALS, sources=np.arange(30) % 6),
+     "sources hold node 5; accepted: node indices 0..4"),
+    ("node_labels_below.npz", npz(signals=GOOD_SIGNALS, node_labels=np.full((30, 5), -2)),
+     "node_labels hold values below -1 or no class at all; accepted: classes 0, 1, ... and -1 where a node is not a target"),
     ("text_targets.npz", npz(signals=GOOD_SIGNALS, targets=np.array(["high"] * 30)),
      "targets have dtype <U4; accepted: real numbers (classes go in 'labels')"),
     ("nan_targets.npz", npz(signals=GOOD_SIGNALS, targets=np.where(np.arange(30) == 4, np.nan, 1.0)),

@@ -95,3 +95,18 @@ def test_a_task_that_does_not_learn_the_files_targets_is_refused_in_one_line(tmp
                                           r"targets have shape \(20, 1\) \(float32\); accepted: a task that learns "
                                           r"them, or class labels \(samples,\) for task=classification"):
         check_inputs(run)
+
+
+def test_classes_on_nodes_and_source_nodes_load_for_their_tasks(tmp_path):
+    from shiftbench.registry import TASKS
+
+    rng = np.random.default_rng(5)
+    node_labels = rng.integers(-1, 3, size=(20, 4))
+    node_labels[0, 0] = 1
+    np.savez(tmp_path / "c.npz", signals=rng.standard_normal((20, 4)), node_labels=node_labels)
+    np.savez(tmp_path / "s.npz", signals=rng.standard_normal((20, 4)), sources=np.arange(20) % 4)
+    on_nodes, sources = load_signal_file(str(tmp_path / "c.npz")), load_signal_file(str(tmp_path / "s.npz"))
+    assert np.array_equal(on_nodes.labels, node_labels) and on_nodes.classes == 3
+    assert TASKS["node_classification"].fits(on_nodes.labels, 4) and not TASKS["classification"].fits(on_nodes.labels, 4)
+    assert sources.labels.tolist() == [n % 4 for n in range(20)]  # node indices as given, not re-coded
+    assert TASKS["source_localization"].fits(sources.labels, 4)

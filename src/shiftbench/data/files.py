@@ -5,7 +5,9 @@
 strings (classes), ``targets`` ``(samples,)`` or ``(samples, outputs)`` of numbers (a value per
 signal), or ``node_targets`` ``(samples, nodes)`` or ``(samples, nodes, outputs)`` of numbers (a
 value on every node) with an optional boolean ``mask`` ``(samples, nodes)`` of the entries that
-are targets; optional ``split`` ``(samples,)`` with 0 train, 1 val, 2 test, optional
+are targets, ``node_labels`` ``(samples, nodes)`` of integer classes with -1 where a node is not a
+target (a class on every node), or ``sources`` ``(samples,)`` of node indices (the node where
+each signal started); optional ``split`` ``(samples,)`` with 0 train, 1 val, 2 test, optional
 ``positions`` ``(nodes, dims)``.
 
 ``.csv``: a header, one row a sample, a ``label`` column (classes) or ``target`` / ``target_*``
@@ -44,7 +46,7 @@ if TYPE_CHECKING:
 SUFFIXES = (".npz", ".csv")
 SPLIT_NAMES = {0: "train", 1: "val", 2: "test"}
 # The arrays that can hold what is to be predicted; a file holds one of them.
-TARGET_ARRAYS = ("labels", "targets", "node_targets")
+TARGET_ARRAYS = ("labels", "targets", "node_targets", "node_labels", "sources")
 
 
 _fail = partial(file_error, "data.path")
@@ -211,6 +213,38 @@ def _check_node_targets(path: Path, targets: np.ndarray, mask: np.ndarray | None
     return np.where(scored[:, :, None], targets, np.nan).astype(np.float32)
 
 
+def _integers(path: Path, name: str, values: np.ndarray) -> np.ndarray:
+    """``values`` as int64, or a one-line refusal of anything but integers (floats that are)."""
+    if values.dtype.kind == "f" and np.isfinite(values).all() and (values == np.round(values)).all():
+        values = values.astype(np.int64)
+    if values.dtype.kind not in "iu":
+        raise _fail(path, f"{name} have dtype {values.dtype}; accepted: integers")
+    return values.astype(np.int64)
+
+
+def _check_node_labels(path: Path, labels: np.ndarray, samples: int, nodes: int) -> np.ndarray:
+    """Classes on every node ``(samples, nodes)``: integers >= 0, -1 where not a target, and
+    at least one target."""
+    if labels.shape != (samples, nodes):
+        raise _fail(path, f"node_labels have shape {labels.shape}; accepted: ({samples}, {nodes})")
+    labels = _integers(path, "node_labels", labels)
+    if labels.min() < -1 or labels.max() < 0:
+        raise _fail(path, "node_labels hold values below -1 or no class at all; accepted: classes 0, 1, ... and -1 "
+                          "where a node is not a target")
+    return labels
+
+
+def _check_sources(path: Path, sources: np.ndarray, samples: int, nodes: int) -> np.ndarray:
+    """The node each signal started at: ``(samples,)`` integers in ``0..nodes - 1``."""
+    if sources.shape != (samples,):
+        raise _fail(path, f"sources have shape {sources.shape}; accepted: ({samples},)")
+    sources = _integers(path, "sources", sources)
+    if sources.min() < 0 or sources.max() >= nodes:
+        raise _fail(path, f"sources hold node {int(sources.min() if sources.min() < 0 else sources.max())}; "
+                          f"accepted: node indices 0..{nodes - 1}")
+    return sources
+
+
 def _check_split(path: Path, split: np.ndarray, labels: np.ndarray) -> Splits:
     samples = len(labels)
     if split.shape != (samples,):
@@ -248,6 +282,14 @@ def _random_splits(path: Path, labels: np.ndarray, val_fraction: float, test_fra
         raise _fail(path, f"cannot split it stratified ({error}); raise data.val_fraction and data.test_fraction") from None
 
 
+def outputs_of(kind: str, labels: np.ndarray) -> int:
+    """What a model outputs for each signal or node: the classes of ``labels`` or
+    ``node_labels``, one score a node for ``sources``, the outputs of value targets."""
+    if kind in ("labels", "node_labels"):
+        return int(labels.max()) + 1
+    return 1 if kind == "sources" else labels.shape[-1]
+
+
 def load_signal_file(
     path: str, seed: int = 0, val_fraction: float = 0.2, test_fraction: float = 0.2, graph: str = ""
 ) -> Dataset:
@@ -271,13 +313,18 @@ def load_signal_file(
     if len(kinds) != 1:
         found = f"both {kinds[0]!r} and {kinds[1]!r}" if kinds else "no array 'labels'"
         raise _fail(file, f"has {found}; save signals (samples, nodes[, features]) and one of labels (samples,) "
-                          "(classes), targets (values per signal) or node_targets (values on every node)")
+                          "(classes), targets (values per signal), node_targets (values on every node), node_labels "
+                          "(classes on every node) or sources (the node each signal started at)")
     signals = _check_signals(file, arrays["signals"])
     samples, nodes = signals.shape[:2]
     if kinds == ["labels"]:
         labels = _check_labels(file, arrays["labels"], samples)
     elif kinds == ["targets"]:
         labels = _check_targets(file, arrays["targets"], samples)
+    elif kinds == ["node_labels"]:
+        labels = _check_node_labels(file, arrays["node_labels"], samples, nodes)
+    elif kinds == ["sources"]:
+        labels = _check_sources(file, arrays["sources"], samples, nodes)
     else:
         labels = _check_node_targets(file, arrays["node_targets"], arrays.get("mask"), samples, nodes)
     if "split" in arrays:
@@ -295,7 +342,7 @@ def load_signal_file(
         signals=signals,
         labels=labels,
         splits=splits,
-        classes=int(labels.max()) + 1 if kinds == ["labels"] else labels.shape[-1],
+        classes=outputs_of(kinds[0], labels),
         native_graph=native,
         name=file.stem,
     )
@@ -315,5 +362,5 @@ class FileDataConfig(RandomSplitConfig):
 
 DATASETS.add(DatasetSource(
     "file", FileDataConfig, keyword_loader(load_signal_file), "signal file",
-    tasks=("classification", "regression", "node_regression"),
+    tasks=("classification", "regression", "node_regression", "node_classification", "source_localization"),
 ))
