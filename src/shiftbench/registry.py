@@ -128,7 +128,6 @@ class Task:
         metric: the primary metric's name in records and tables (``accuracy``, ``rmse``).
         higher_is_better: the metric's direction.
         head: ``pooled`` (one output per signal) or ``nodes`` (one per node).
-        split_rule: how samples are split (``stratified`` keeps class shares, ``random``).
         targets: what its targets are, in words (for errors): ``class labels (samples,)``.
         fits: ``(targets, nodes) -> bool``: whether a dataset's targets are such.
     """
@@ -143,7 +142,6 @@ class Task:
     metric: str
     higher_is_better: bool
     head: str
-    split_rule: str
     targets: str
     fits: Callable[..., bool]
 

@@ -206,7 +206,6 @@ CLASSIFICATION = TASKS.add(
         metric="accuracy",
         higher_is_better=True,
         head="pooled",
-        split_rule="stratified",
         targets="class labels (samples,)",
         fits=are_classes,
     )
@@ -224,7 +223,6 @@ REGRESSION = TASKS.add(
         metric="rmse",
         higher_is_better=False,
         head="pooled",
-        split_rule="random",
         targets="values (samples, outputs)",
         fits=are_values,
     )
@@ -284,7 +282,6 @@ NODE_CLASSIFICATION = TASKS.add(
         metric="accuracy",
         higher_is_better=True,
         head="nodes",
-        split_rule="random",
         targets="classes on every node (samples, nodes), -1 where not a target",
         fits=are_node_classes,
     )
@@ -315,7 +312,6 @@ SOURCE_LOCALIZATION = TASKS.add(
         metric="accuracy",
         higher_is_better=True,
         head="nodes",
-        split_rule="random",
         targets="source nodes (samples,)",
         fits=are_nodes,
     )
@@ -332,7 +328,6 @@ NODE_REGRESSION = TASKS.add(
         metric="rmse",
         higher_is_better=False,
         head="nodes",
-        split_rule="random",
         targets="values on every node (samples, nodes, outputs)",
         fits=are_node_values,
     )
