@@ -15,6 +15,7 @@ the primary metric (its name and direction) and the judgement of a run from here
 from __future__ import annotations
 
 import warnings
+from collections.abc import Callable
 from typing import Any
 
 import numpy as np
@@ -43,8 +44,10 @@ def share(total: torch.Tensor, count: torch.Tensor) -> float:
 
 
 def share_equal(predicted: np.ndarray, labels: np.ndarray) -> float:
-    """Accuracy of predicted classes. Shapes: ``(samples,)`` both."""
-    return float((predicted == labels).mean())
+    """Accuracy of predicted classes over the entries whose label is not -1 (every entry of
+    class labels per signal). Shapes: alike, ``(samples,)`` or ``(samples, nodes)``."""
+    scored = labels >= 0
+    return float((predicted[scored] == labels[scored]).mean())
 
 
 def root_mean_squared(predicted: np.ndarray, targets: np.ndarray) -> float:
@@ -211,22 +214,21 @@ CLASSIFICATION = TASKS.add(
     )
 )
 
-REGRESSION = TASKS.add(
-    Task(
-        name="regression",
-        loss=masked_squared_error,
-        tally=tally_squared_error,
-        finish=root_mean,
-        predict=lambda outputs: outputs,
-        score_predicted=root_mean_squared,
-        judge=judge_regression,
-        metric="rmse",
-        higher_is_better=False,
-        head="pooled",
-        targets="values (samples, outputs)",
-        fits=are_values,
+
+
+def regression_task(name: str, head: str, targets: str, fits: Callable[..., bool]) -> Task:
+    """A task of values to predict: masked mean squared error, RMSE, the outputs themselves as
+    predictions; ``head`` says whether per signal or on every node."""
+    return Task(
+        name=name, loss=masked_squared_error, tally=tally_squared_error, finish=root_mean,
+        predict=lambda outputs: outputs, score_predicted=root_mean_squared, judge=judge_regression,
+        metric="rmse", higher_is_better=False, head=head, targets=targets, fits=fits,
     )
-)
+
+
+REGRESSION = TASKS.add(regression_task("regression", "pooled", "values (samples, outputs)", are_values))
+
+
 def node_class_cross_entropy(outputs: torch.Tensor, labels: torch.Tensor) -> torch.Tensor:
     """Cross-entropy over the scored nodes (labels -1 are not targets).
 
@@ -243,12 +245,6 @@ def tally_node_classes(outputs: torch.Tensor, labels: torch.Tensor) -> tuple[tor
     return correct, scored.sum().double()
 
 
-def share_equal_scored(predicted: np.ndarray, labels: np.ndarray) -> float:
-    """Accuracy over the entries whose label is not -1. Shapes: alike, any."""
-    scored = labels >= 0
-    return float((predicted[scored] == labels[scored]).mean())
-
-
 def judge_node_classification(
     labels: np.ndarray, predicted: np.ndarray, train_labels: np.ndarray, curve: list[dict[str, float]]
 ) -> dict[str, Any]:
@@ -262,7 +258,7 @@ def judge_node_classification(
     scored = labels >= 0
     truth, guess = labels[scored], predicted[scored]
     chance = chance_accuracy(train_labels[train_labels >= 0], truth)
-    flags = ["at_chance"] * (float((truth == guess).mean()) <= chance) + ["loss_never_fell"] * loss_never_fell(curve)
+    flags = ["at_chance"] * (share_equal(guess, truth) <= chance) + ["loss_never_fell"] * loss_never_fell(curve)
     with warnings.catch_warnings():  # a class never predicted is scored as it comes
         warnings.simplefilter("ignore")
         balanced = float(balanced_accuracy_score(truth, guess))
@@ -277,7 +273,7 @@ NODE_CLASSIFICATION = TASKS.add(
         tally=tally_node_classes,
         finish=share,
         predict=lambda outputs: outputs.argmax(dim=2),
-        score_predicted=share_equal_scored,
+        score_predicted=share_equal,
         judge=judge_node_classification,
         metric="accuracy",
         higher_is_better=True,
@@ -316,19 +312,8 @@ SOURCE_LOCALIZATION = TASKS.add(
         fits=are_nodes,
     )
 )
+
+
 NODE_REGRESSION = TASKS.add(
-    Task(
-        name="node_regression",
-        loss=masked_squared_error,
-        tally=tally_squared_error,
-        finish=root_mean,
-        predict=lambda outputs: outputs,
-        score_predicted=root_mean_squared,
-        judge=judge_regression,
-        metric="rmse",
-        higher_is_better=False,
-        head="nodes",
-        targets="values on every node (samples, nodes, outputs)",
-        fits=are_node_values,
-    )
+    regression_task("node_regression", "nodes", "values on every node (samples, nodes, outputs)", are_node_values)
 )

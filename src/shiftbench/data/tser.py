@@ -17,6 +17,7 @@ import numpy as np
 from shiftbench.config import declared, one_of
 from shiftbench.data.dataset import DataConfig, Dataset, Splits, keyword_loader
 from shiftbench.data.ucr import aeon_data_folder
+from shiftbench.data.ucr import shipped_names as shipped_problems
 from shiftbench.errors import ConfigError
 from shiftbench.graphs.standard import line_graph
 from shiftbench.registry import DATASETS, DatasetSource
@@ -26,11 +27,8 @@ SHIPPED = ("Covid3Month", "CardanoSentiment")
 
 
 def shipped_names() -> tuple[str, ...]:
-    """The shipped problems present in the installed aeon (empty when aeon is not installed)."""
-    folder = aeon_data_folder()
-    if folder is None:
-        return ()
-    return tuple(name for name in SHIPPED if (folder / name / f"{name}_TRAIN.ts").is_file())
+    """The shipped regression problems present in the installed aeon."""
+    return shipped_problems(SHIPPED)
 
 
 def _load_split(name: str, split: str) -> tuple[np.ndarray, np.ndarray]:

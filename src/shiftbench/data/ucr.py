@@ -43,12 +43,13 @@ def aeon_data_folder() -> Path | None:
     return Path(spec.origin).parent / "datasets" / "data"
 
 
-def shipped_names() -> tuple[str, ...]:
-    """The shipped problems present in the installed aeon (empty when aeon is not installed)."""
+def shipped_names(candidates: tuple[str, ...] = SHIPPED) -> tuple[str, ...]:
+    """The ``candidates`` (default: the classification problems) present in the installed aeon
+    (empty when aeon is not installed)."""
     folder = aeon_data_folder()
     if folder is None:
         return ()
-    return tuple(name for name in SHIPPED if (folder / name / f"{name}_TRAIN.ts").is_file())
+    return tuple(name for name in candidates if (folder / name / f"{name}_TRAIN.ts").is_file())
 
 
 def _load_split(name: str, split: str, folder: Path) -> tuple[np.ndarray, np.ndarray]:
