@@ -30,6 +30,7 @@ from omegaconf import DictConfig, OmegaConf
 
 from shiftbench.config import validate
 from shiftbench.errors import ConfigError
+from shiftbench.records import FINAL_STATUSES
 from shiftbench.registry import FAMILIES, TASKS, Task
 from shiftbench.statistics import compare_paired, holm
 
@@ -246,7 +247,7 @@ def tune(
         lines = suggest(trial, settings.spaces[candidate.family])
         record = run([*candidate.overrides, *lines, "split=0", "seed=0"])
         value = record.get(f"val_{metric}")
-        if record.get("status") not in ("completed", "timed_out") or value is None:
+        if record.get("status") not in FINAL_STATUSES or not isinstance(value, (int, float)) or not math.isfinite(value):
             failed += 1
             study.tell(trial, state=optuna.trial.TrialState.FAIL)
             say(f"  trial {number + 1}/{settings.trials} of {candidate.name}: failed ({record.get('error')})")
@@ -266,10 +267,29 @@ def evaluate(candidate: Candidate, chosen: list[str], settings: Settings, run: R
     for split in range(settings.splits):
         for seed in range(settings.seeds):
             record = run([*candidate.overrides, *chosen, f"split={split}", f"seed={seed}"])
-            row = {"candidate": candidate.name, "split": split, "seed": seed, "status": record.get("status")}
+            row = {"candidate": candidate.name, "split": split, "seed": seed, "status": record.get("status"),
+                   "error": record.get("error")}
             row.update({key: record.get(key) for key in unit_fields(settings.task)})
             rows.append(row)
     return pd.DataFrame(rows)
+
+
+def usable_units(units: pd.DataFrame, task: Task) -> pd.DataFrame:
+    """The units a verdict may use: a final status and finite test and validation figures. The
+    figures are made numeric first (a failed run's ``None`` would otherwise make its column an
+    object column, which pandas' numeric means drop for every candidate)."""
+    frame = units.copy()
+    for column in unit_fields(task):
+        frame[column] = pd.to_numeric(frame[column], errors="coerce") if column in frame else np.nan
+    finite = np.isfinite(frame[f"test_{task.metric}"]) & np.isfinite(frame[f"val_{task.metric}"])
+    return frame[frame["status"].isin(FINAL_STATUSES) & finite]
+
+
+def _failure_reason(units: pd.DataFrame, name: str) -> str:
+    """`` (first error: ...)`` from the candidate's failed units, or nothing when none says why."""
+    errors = [str(error) for error in units.loc[units["candidate"] == name, "error"] if isinstance(error, str) and error] \
+        if "error" in units else []
+    return f" (first error: {errors[0].strip().splitlines()[0][:200]})" if errors else ""
 
 
 def _ratio(value: float | None, reference: float | None) -> float | None:
@@ -299,7 +319,7 @@ def verdict(
     task = task or TASKS["classification"]
     test, val = f"test_{task.metric}", f"val_{task.metric}"
     sign = 1.0 if task.higher_is_better else -1.0
-    completed = units[units["status"].isin(["completed", "timed_out"])]
+    completed = usable_units(units, task)
     all_units = sorted({(int(s), int(d)) for s, d in zip(units["split"], units["seed"])})
     present = {
         name: {(int(s), int(d)) for s, d in zip(group["split"], group["seed"])}
@@ -328,8 +348,10 @@ def verdict(
             entry.update(outcome="reference", sentence=_reference_sentence(name, means, task))
         elif missing[name]:
             shown = ", ".join(f"split {s} seed {d}" for s, d in missing[name])
+            reason = _failure_reason(units, name)
             entry.update(outcome="missing_units", missing=[list(unit) for unit in missing[name]],
-                         sentence=f"{name} cannot be compared: it has no completed run for {shown}; rerun the study to fill them.")
+                         sentence=f"{name} cannot be compared: it has no completed run for {shown}{reason}; "
+                                  "it is left out of the comparisons.")
         else:
             comparison = comparisons[name]
             outcome = decide(comparison.low, comparison.high, adjusted[name], rope, alpha)

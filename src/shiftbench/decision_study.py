@@ -14,11 +14,11 @@ from omegaconf import DictConfig, OmegaConf
 
 from shiftbench import decision_plots
 from shiftbench.config_store import register_defaults
-from shiftbench.decision import Settings, evaluate, read_settings, tune, verdict, write_verdict
+from shiftbench.decision import Settings, evaluate, read_settings, tune, usable_units, verdict, write_verdict
 from shiftbench.job import run_job
 from shiftbench.preflight import preflight
 from shiftbench.records import write_atomic
-from shiftbench.registry import TASKS
+from shiftbench.registry import TASKS, Task
 from shiftbench.statistics import rank_test
 
 
@@ -102,16 +102,17 @@ def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, c
     ]
     markdown = write_verdict(result, folder)
     extra = [f"![{figure.stem.replace('_', ' ')}]({figure.name})" for figure in figures]
-    write_atomic(folder / "verdict.md", markdown + "\n" + candidates_table(units, settings.task.metric) + "\n" + "\n\n".join(extra) + "\n")
+    write_atomic(folder / "verdict.md", markdown + "\n" + candidates_table(units, settings.task) + "\n" + "\n\n".join(extra) + "\n")
     say(f"{counts['jobs']} jobs (done ones skipped) in {result['minutes']:.1f} min; failed trials: {result['failed_trials']}")
     # Scores for the rank test across datasets: larger is better.
     sign = 1.0 if settings.task.higher_is_better else -1.0
     return markdown, {name: sign * value for name, value in result[f"mean_test_{settings.task.metric}"].items() if value is not None}
 
 
-def candidates_table(units: pd.DataFrame, metric: str = "accuracy") -> str:
-    """Mean figures per candidate over the units, as markdown."""
-    completed = units[units["status"].isin(["completed", "timed_out"])]
+def candidates_table(units: pd.DataFrame, task: Task) -> str:
+    """Mean figures per candidate over its usable units, as markdown."""
+    completed = usable_units(units, task)
+    metric = task.metric
     test, val = f"test_{metric}", f"val_{metric}"
     table = completed.groupby("candidate", sort=False).agg(
         test=(test, "mean"), std=(test, "std"), val=(val, "mean"),

@@ -111,3 +111,17 @@ def test_a_node_task_gives_every_convolution_the_per_node_map_and_never_searches
     assert "arch.readout=node" in names["line_conv"].overrides and "arch.readout=node" not in names["fc"].overrides
     assert all(dimension.key != "arch.readout" for dimension in settings.spaces["graph_conv"])
     assert settings.task.name == "node_regression"
+
+
+def test_a_floor_that_fails_every_unit_is_named_and_left_out_not_a_traceback(tmp_path):
+    # More nodes (32 features) than samples per class in a training part (24): QDA's covariance
+    # is singular on every unit (scikit-learn refuses it). The verdict must still be reached.
+    arguments = [f"results_dir={tmp_path}", "data.nodes=32", "data.samples_per_class=40", "train.epochs=4",
+                 "decision.trials=2", "decision.splits=2", "decision.seeds=1",
+                 "decision.candidates=[{name: fc, overrides: [arch=fc]}, {name: nearest, overrides: [arch=nearest]}, "
+                 "{name: qda, overrides: [arch=qda]}]"]
+    run_study(arguments, CONFIG_DIR, say=lambda line: None)
+    result = json.loads((tmp_path / "decision" / "verdict.json").read_text())
+    (qda,) = [entry for entry in result["candidates"] if entry["candidate"] == "qda"]
+    assert qda["outcome"] == "missing_units" and "left out" in qda["sentence"] and "not full rank" in qda["sentence"]
+    assert result["reference"] == "nearest"
