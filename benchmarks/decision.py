@@ -21,7 +21,7 @@ from pathlib import Path
 from shiftbench.records import write_atomic
 
 TOOL = Path(sys.executable).with_name("shiftbench-decide")
-KEPT = ("verdict.md", "verdict.json", "units.csv", "pareto.png", "paired_differences.png")
+KEPT = ("verdict.md", "verdict.json", "units.csv", "pareto.png", "paired_differences.png", "tuning_curves.png")
 
 
 def main(argv: list[str] | None = None) -> None:
@@ -41,7 +41,8 @@ def main(argv: list[str] | None = None) -> None:
         folder = Path(work) / "decision"
         arguments.example.mkdir(parents=True, exist_ok=True)
         for name in KEPT:
-            shutil.copyfile(folder / name, arguments.example / name)
+            if (folder / name).exists():
+                shutil.copyfile(folder / name, arguments.example / name)
         verdict = json.loads((folder / "verdict.json").read_text())
     figures = {
         "date": datetime.now(timezone.utc).strftime("%Y-%m-%d"),
@@ -58,8 +59,8 @@ def main(argv: list[str] | None = None) -> None:
         "",
         f"Measured {figures['date']} on {facts['cpu']}, {facts['cores']} cores, torch {facts['torch']} by "
         "`python -m benchmarks.decision`: `shiftbench-decide` from an empty results folder, demo scenario, "
-        f"default budgets ({figures['candidates']} candidates, {max(figures['trials'].values())} trials each "
-        f"for the trained ones, {figures['units']} paired units): {wall / 60:.1f} minutes (goal: under 15).",
+        f"default budgets ({figures['candidates']} candidates, controls included, {max(figures['trials'].values())} "
+        f"trials a tuning, {figures['units']} paired units; {verdict['protocol']}): {wall / 60:.1f} minutes.",
         "",
     ]))
     print(done.stdout)

@@ -3,7 +3,11 @@ sample, a ``label`` column) and ``roads.csv`` (an edge list). Not the demo: a ra
 graph whose node numbers are shuffled, so the column order carries no structure, and three
 classes of signals filtered on it.
 
-Usage: python examples/own_files.py FOLDER
+Usage: python examples/own_files.py FOLDER [--rewired]
+
+``--rewired`` writes, as ``roads.csv``, a degree-preserving rewiring of the graph the signals were
+filtered on: a graph with the right degrees on which the signals do not live (the study must say
+that this graph adds nothing).
 """
 
 from __future__ import annotations
@@ -16,12 +20,13 @@ import numpy as np
 import pandas as pd
 
 
-def write_own_files(folder: Path, nodes: int = 40, per_class: int = 60) -> None:
+def write_own_files(folder: Path, nodes: int = 40, per_class: int = 60, rewired: bool = False) -> None:
     """Write ``signals.csv`` and ``roads.csv`` into ``folder``: a random geometric graph on
     ``nodes`` nodes, numbered at random, and ``per_class`` signals of each of three classes,
     ``low`` ``(I + S)^3 w``, ``high`` ``(I - S)^3 w`` and ``white`` ``w`` (``w`` white noise, ``S``
     the graph's normalized adjacency ``D^-1/2 A D^-1/2``), each scaled to norm ``sqrt(nodes)``:
-    how a signal varies across *linked* nodes tells its class."""
+    how a signal varies across *linked* nodes tells its class. ``rewired``: the edge list written
+    is the graph after degree-preserving swaps (networkx's ``double_edge_swap``, 5 per edge)."""
     rng = np.random.default_rng(0)
     graph = nx.random_geometric_graph(nodes, 0.3, seed=1)
     graph = nx.relabel_nodes(graph, dict(zip(range(nodes), rng.permutation(nodes).tolist())))
@@ -33,12 +38,16 @@ def write_own_files(folder: Path, nodes: int = 40, per_class: int = 60) -> None:
     table = pd.DataFrame([x / np.linalg.norm(x) * np.sqrt(nodes) for x in signals], columns=[f"n{i}" for i in range(nodes)])
     table["label"] = np.repeat(["low", "high", "white"], per_class)
     table.to_csv(folder / "signals.csv", index=False)
+    if rewired:
+        graph = graph.copy()
+        nx.double_edge_swap(graph, nswap=5 * graph.number_of_edges(), max_tries=500 * graph.number_of_edges(), seed=2)
     edges = [*graph.edges, *((v, u) for u, v in graph.edges)]
     pd.DataFrame(edges, columns=["source", "target"]).to_csv(folder / "roads.csv", index=False)
 
 
 if __name__ == "__main__":
-    folder = Path(sys.argv[1] if len(sys.argv) > 1 else ".")
+    arguments = [argument for argument in sys.argv[1:] if argument != "--rewired"]
+    folder = Path(arguments[0] if arguments else ".")
     folder.mkdir(parents=True, exist_ok=True)
-    write_own_files(folder)
+    write_own_files(folder, rewired="--rewired" in sys.argv[1:])
     print(f"wrote {folder / 'signals.csv'} and {folder / 'roads.csv'}")

@@ -73,7 +73,7 @@ def test_a_graph_that_does_not_fit_the_loaded_data_is_a_config_error(small_confi
     # Datasets whose size is known only once loaded are checked after loading, before training.
     from shiftbench.data import sensor_regimes
 
-    monkeypatch.setattr(shiftbench.job, "load_dataset", lambda config, split: sensor_regimes(nodes=30, samples_per_class=20))
+    monkeypatch.setattr(shiftbench.job, "load_dataset", lambda config, split, folds: sensor_regimes(nodes=30, samples_per_class=20))
     with pytest.raises(ConfigError, match="equal to the data's 30 nodes"):
         run_job(small_config("graph=grid", "graph.rows=4", "graph.cols=6"), None, [], live=False)
     assert not (tmp_path / "job").exists() and not any((tmp_path / "store").rglob("record.json"))
@@ -185,9 +185,9 @@ def test_jobs_in_one_process_build_a_shared_dataset_and_graph_once(small_config,
     calls = {"data": 0, "graph": 0}
     real_load, real_build = shiftbench.job.load_dataset, shiftbench.job.build_graph
 
-    def counting_load(config, split):
+    def counting_load(config, split, folds):
         calls["data"] += 1
-        return real_load(config, split)
+        return real_load(config, split, folds)
 
     def counting_build(config, dataset):
         calls["graph"] += 1

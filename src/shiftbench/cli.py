@@ -173,15 +173,21 @@ def decide_main(arguments: list[str] | None = None) -> None:
         print(run_study(arguments, CONFIG_DIR))
     except (ConfigError, DecisionError) as error:
         fail(str(error))
+    except KeyboardInterrupt:
+        print("shiftbench-decide: interrupted; run the same command again to go on: finished jobs are kept and "
+              "skipped, an interrupted one resumes from its last checkpoint", file=sys.stderr, flush=True)
+        raise SystemExit(130) from None
 
 
 DECIDE_HELP = """usage: shiftbench-decide [KEY=VALUE ...]
 
-Tune every candidate on equal budgets, retrain it on random splits x seeds, compare each with the
-best graph-free candidate in pairs, and say in one sentence per candidate whether it earns its keep.
+Tune every candidate on equal budgets inside every outer fold, retrain it with several seeds per
+fold, and answer two questions in pairs over the same folds: does a graph model beat the best
+graph-free candidate, and does it beat itself on a degree-preserving rewiring of its graph?
 
-  decision.KEY=VALUE   the study's settings (decision/settings.yaml): trials, splits, seeds, rope,
-                       alpha, sampler_seed, folder, candidates
+  decision.KEY=VALUE   the study's settings (decision/settings.yaml): protocol (nested, tune_once),
+                       trials, splits (outer folds), repetitions, seeds, tune_controls,
+                       tuning_seeds, rope, alpha, sampler_seed, folder, candidates
   data=A[,B...]        the dataset(s); several give a rank test across datasets
   KEY=VALUE            any job override, given to every job (train.epochs=50, graph.neighbors=8)
 

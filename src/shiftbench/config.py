@@ -157,10 +157,12 @@ class TrainConfig(Schema):
 @dataclass
 class RunConfig:
     """One job's whole config, validated. ``split`` numbers the random train/validation/test
-    split (0: the dataset's own); ``seed`` drives everything else random in training."""
+    split (0: the dataset's own), or with ``folds`` K >= 2 the outer fold ``split`` = repetition x K +
+    fold; ``seed`` drives everything else random in training."""
 
     seed: int
     split: int
+    folds: int
     task: str
     results_dir: str
     device: str
@@ -172,7 +174,7 @@ class RunConfig:
     train: TrainConfig
 
 
-ROOT_KEYS = ("seed", "split", "task", "results_dir", "device", "force", "threads", "data", "graph", "arch", "train")
+ROOT_KEYS = ("seed", "split", "folds", "task", "results_dir", "device", "force", "threads", "data", "graph", "arch", "train")
 GROUPS: dict[str, tuple[str, Registry | None]] = {
     "data": ("source", DATASETS),
     "graph": ("source", GRAPH_SOURCES),
@@ -198,6 +200,9 @@ def validate(config: DictConfig) -> RunConfig:
     device, results_dir = config.device, config.results_dir
     _natural("seed", config.seed)
     _natural("split", config.split)
+    folds = config.folds
+    require("folds", folds, isinstance(folds, int) and not isinstance(folds, bool) and (folds == 0 or folds >= 2),
+            "0 (no outer folds) or an integer >= 2")
     require_choice("task", config.task, TASKS.names())
     require_choice("device", device, DEVICES)
     require("device", device, device != "cuda" or torch.cuda.is_available(), "cpu (no CUDA device is available here)")
@@ -208,7 +213,7 @@ def validate(config: DictConfig) -> RunConfig:
     require("threads", threads, isinstance(threads, int) and not isinstance(threads, bool) and threads >= 1, "an integer >= 1")
     groups = {group: validate_group(group, config[group]) for group in GROUPS}
     run = RunConfig(
-        seed=config.seed, split=config.split, task=config.task, results_dir=results_dir, device=device,
+        seed=config.seed, split=config.split, folds=config.folds, task=config.task, results_dir=results_dir, device=device,
         force=config.force, threads=threads, **groups,
     )
     nodes = run.data.known_nodes()

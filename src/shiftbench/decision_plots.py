@@ -77,9 +77,12 @@ def pareto(units: pd.DataFrame, candidates: list[Any], path: Path, metric: str =
 
 
 def paired_differences(result: dict[str, Any], path: Path) -> Path:
-    """Each compared candidate's per-unit differences from the reference, the mean with its
-    interval, and the ROPE as a band."""
+    """Each comparison's per-fold differences (a candidate against the reference; a graph
+    candidate against its rewired control), the mean with its corrected interval, and the ROPE
+    as a band."""
     compared = [entry for entry in result["candidates"] if "comparison" in entry]
+    compared += [{"candidate": f"{entry['candidate']} vs rewired", "comparison": entry["graph"]["comparison"]}
+                 for entry in result["candidates"] if "comparison" in entry.get("graph", {})]
     figure, axis = plt.subplots(figsize=(7, 0.5 + 0.45 * max(len(compared), 1)))
     rope = result["rope"]
     axis.axvspan(-rope, rope, color="grey", alpha=0.2, label=f"ROPE ±{rope}")
@@ -87,17 +90,34 @@ def paired_differences(result: dict[str, Any], path: Path) -> Path:
         comparison = entry["comparison"]
         differences = np.asarray(comparison["differences"])
         axis.scatter(differences, np.full(len(differences), row) + np.linspace(-0.15, 0.15, len(differences)), s=10, alpha=0.6)
-        axis.errorbar(comparison["mean"], row, xerr=[[comparison["mean"] - comparison["low"]], [comparison["high"] - comparison["mean"]]],
-                      color="black", marker="|", capsize=4)
+        if not comparison.get("degenerate"):
+            axis.errorbar(comparison["mean"], row, xerr=[[comparison["mean"] - comparison["low"]], [comparison["high"] - comparison["mean"]]],
+                          color="black", marker="|", capsize=4)
     axis.set_yticks(range(len(compared)), [entry["candidate"] for entry in compared], fontsize=8)
     axis.axvline(0, color="black", linewidth=0.5)
     metric = result.get("metric", "accuracy")
     if result.get("better", "higher") == "higher":
-        axis.set_xlabel(f"test {metric} minus {result['reference']}'s, per paired unit")
+        axis.set_xlabel(f"test {metric} minus {result['reference']}'s (or the control's), per fold")
     else:
-        axis.set_xlabel(f"{result['reference']}'s test {metric} minus the candidate's (positive: better), per paired unit")
+        axis.set_xlabel(f"{result['reference']}'s (or the control's) test {metric} minus the candidate's (positive: better), per fold")
     axis.set_ylim(-0.6, len(compared) + 0.2)
     axis.legend(fontsize=7, loc="upper left")
+    return _save(figure, path)
+
+
+def tuning_curves(curves: dict[str, np.ndarray], path: Path, metric: str = "accuracy", better: str = "higher") -> Path:
+    """Each tuned candidate's expected best validation figure against the number of trials
+    (Dodge et al. 2019), with the quarter and half of the budget marked."""
+    figure, axis = plt.subplots(figsize=(7, 4))
+    trials = max(len(curve) for curve in curves.values())
+    for name, curve in curves.items():
+        axis.plot(np.arange(1, len(curve) + 1), curve, marker="o", markersize=3, label=name)
+    for count in sorted({max(1, trials // 4), max(1, trials // 2)}):
+        axis.axvline(count, color="grey", linewidth=0.6, linestyle=":")
+    axis.set_xlabel("tuning trials")
+    axis.set_ylabel(f"expected best val {metric} ({better} is better)")
+    axis.legend(fontsize=7, loc="best")
+    axis.grid(alpha=0.3)
     return _save(figure, path)
 
 

@@ -8,18 +8,22 @@ import time
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 import pandas as pd
 from hydra import compose, initialize_config_dir
 from omegaconf import DictConfig, OmegaConf
 
 from shiftbench import decision_plots
 from shiftbench.config_store import register_defaults
-from shiftbench.decision import Settings, evaluate, read_settings, tune, usable_units, verdict, write_verdict
+from shiftbench.decision import Candidate, Settings, read_settings
+from shiftbench.decision_protocol import Tuning, expected_best, run_protocol
+from shiftbench.errors import ConfigError
 from shiftbench.job import run_job
 from shiftbench.preflight import preflight
 from shiftbench.records import write_atomic
 from shiftbench.registry import TASKS, Task
 from shiftbench.statistics import rank_test
+from shiftbench.verdict import usable_units, verdict, write_verdict
 
 
 def split_arguments(arguments: list[str]) -> tuple[list[str], list[str], list[str]]:
@@ -50,21 +54,56 @@ def run_study(arguments: list[str], config_dir: Path, say=print) -> str:
         # The study's settings and search spaces sit beside the Hydra tree, not in it: they are
         # not job configs, and Hydra would offer them as config groups.
         settings = read_settings(config_dir.parent / "decision", own, lambda lines: composed([f"data={datasets[0]}", *common, *lines]))
+        for dataset in datasets:
+            check_folds(composed([f"data={dataset}", *common]), settings)
         results_dir = Path(composed([f"data={datasets[0]}", *common]).results_dir)
         outputs, scores = [], {}
         for dataset in datasets:
-            folder = results_dir / settings.folder / dataset if len(datasets) > 1 else results_dir / settings.folder
+            folder = results_dir / settings.study.folder / dataset if len(datasets) > 1 else results_dir / settings.study.folder
             markdown, means = run_one(dataset, common, settings, folder, composed, say)
             outputs.append(markdown)
             scores[dataset] = means
     if len(datasets) > 1:
-        outputs.append(across_datasets(pd.DataFrame(scores).T, results_dir / settings.folder, settings.alpha))
+        outputs.append(across_datasets(pd.DataFrame(scores).T, results_dir / settings.study.folder, settings.study.alpha))
     return "\n".join(outputs)
+
+
+def check_folds(config: DictConfig, settings: Settings) -> None:
+    """Refuse, before any job, outer folds the data cannot give (more folds than the smallest
+    class has samples, or than there are samples)."""
+    from shiftbench.config import validate
+    from shiftbench.data import load_dataset
+    from shiftbench.data.splits import smallest_class
+
+    run = validate(config)
+    dataset = load_dataset(run.data)
+    folds = settings.study.splits
+    smallest = smallest_class(dataset.labels)
+    if (smallest if smallest is not None else dataset.samples) < folds:
+        what = f"the smallest class has {smallest} samples" if smallest is not None else f"there are {dataset.samples} samples"
+        raise ConfigError(f"decision.splits={folds} is not accepted: {what}; accepted: an integer from 2 to "
+                          f"{smallest if smallest is not None else dataset.samples} (outer folds, each testing part of every class)")
+
+
+def protocol_text(settings: Settings) -> str:
+    """The protocol in one paragraph, for the verdict and ``verdict.json``."""
+    study = settings.study
+    folds = (f"{study.splits} outer folds (stratified where there are classes) x {study.repetitions} repetition(s), "
+             f"their test parts disjoint within a repetition; {study.seeds} seeds per fold, averaged into one unit")
+    if study.protocol == "nested":
+        tuning = (f"nested: every trained candidate tuned inside every fold ({study.trials} TPE trials, sampler seed "
+                  f"{study.sampler_seed}) on a validation part carved from that fold's training part, so no test part chose anything")
+    else:
+        tuning = (f"tune_once: every trained candidate tuned in fold 0 only ({study.trials} TPE trials, sampler seed "
+                  f"{study.sampler_seed}) and that setting evaluated on every fold: the other folds' test parts hold samples that chose it")
+    controls = ("controls tuned on their own equal budget" if study.tune_controls
+                else "each control evaluated with its candidate's setting of that fold")
+    return f"{tuning}; {folds}; {controls}; the folds are drawn over all samples (a dataset's own split, if it has one, is not kept)."
 
 
 def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, composed, say) -> tuple[str, dict]:
     """Tune, evaluate and judge every candidate on one dataset; write the study's files into
-    ``folder``. Returns the verdict markdown and the mean test accuracy per candidate."""
+    ``folder``. Returns the verdict markdown and the mean test figure per candidate."""
     started = time.perf_counter()
     counts = {"jobs": 0}
 
@@ -73,24 +112,25 @@ def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, c
         counts["jobs"] += 1
         return run_job(composed(overrides), folder, overrides, live=False, quiet=True)
 
-    say(f"decision study on {dataset}: {len(settings.candidates)} candidates, {settings.trials} trials each, "
-        f"{settings.splits} splits x {settings.seeds} seeds")
-    tables, tuning = [], {}
-    for candidate in settings.candidates:
-        say(f"tuning {candidate.name}")
-        configured = composed([f"data={dataset}", *common, *candidate.overrides])
-        chosen, summary = tune(candidate, settings, run, say, configured)
-        tuning[candidate.name] = {**summary, "chosen": chosen}
-        say(f"evaluating {candidate.name} ({' '.join(chosen) or 'as configured'})")
-        tables.append(evaluate(candidate, chosen, settings, run))
-    units = pd.concat(tables, ignore_index=True)
-    result = verdict(units, settings.candidates, settings.rope, settings.alpha, settings.task)
+    def configured(candidate: Candidate) -> DictConfig:
+        return composed([f"data={dataset}", *common, *candidate.overrides])
+
+    study = settings.study
+    say(f"decision study on {dataset}: {len(settings.candidates)} candidates (controls included), {study.protocol} protocol, "
+        f"{study.trials} trials a tuning, {study.splits} folds x {study.repetitions} repetitions x {study.seeds} seeds")
+    units, tunings = run_protocol(settings, study.sampler_seed, run, say, configured)
+    result = verdict(units, settings.candidates, study, settings.task, settings.uncontrolled)
+    curves = tuning_curves(tunings, settings)
+    notes = [budget_note(curves, settings)] if len(curves) > 1 else []
+    if study.tuning_seeds > 1:
+        notes += stability_notes(result, settings, run, say, configured)
+    metric = settings.task.metric
     result.update(
         data=dataset,
-        protocol="tuned once on the validation split of split 0 (seed 0); evaluated on splits 0.."
-                 f"{settings.splits - 1} x seeds 0..{settings.seeds - 1}; test figures never chose anything",
-        tuning=tuning,
-        failed_trials=sum(t["failed"] for t in tuning.values()),
+        protocol=protocol_text(settings),
+        tuning={name: tuning_summary(per_unit, settings.task) for name, per_unit in tunings.items()},
+        failed_trials=sum(tuning.failed for per_unit in tunings.values() for tuning in per_unit.values()),
+        tuning_notes=notes,
         minutes=(time.perf_counter() - started) / 60,
     )
     buffer = io.StringIO()
@@ -100,13 +140,91 @@ def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, c
         decision_plots.pareto(units, settings.candidates, folder / "pareto.png", result["metric"], result["better"]),
         decision_plots.paired_differences(result, folder / "paired_differences.png"),
     ]
+    if curves:
+        figures.append(decision_plots.tuning_curves(curves, folder / "tuning_curves.png", metric, result["better"]))
     markdown = write_verdict(result, folder)
     extra = [f"![{figure.stem.replace('_', ' ')}]({figure.name})" for figure in figures]
     write_atomic(folder / "verdict.md", markdown + "\n" + candidates_table(units, settings.task) + "\n" + "\n\n".join(extra) + "\n")
     say(f"{counts['jobs']} jobs (done ones skipped) in {result['minutes']:.1f} min; failed trials: {result['failed_trials']}")
     # Scores for the rank test across datasets: larger is better.
     sign = 1.0 if settings.task.higher_is_better else -1.0
-    return markdown, {name: sign * value for name, value in result[f"mean_test_{settings.task.metric}"].items() if value is not None}
+    return markdown, {name: sign * value for name, value in result[f"mean_test_{metric}"].items() if value is not None}
+
+
+def tuning_summary(per_unit: dict[int, Tuning], task: Task) -> dict[str, Any]:
+    """What ``verdict.json`` keeps of a candidate's tunings: fold 0's choice and best validation
+    figure first (the only ones under ``tune_once``), then every fold's choice and trial figures."""
+    first = per_unit[min(per_unit)]
+    finite = [value for value in first.values if value is not None]
+    best = (max if task.higher_is_better else min)(finite) if finite else None
+    return {"chosen": first.chosen, "trials": len(first.values), "failed": sum(t.failed for t in per_unit.values()),
+            f"best_val_{task.metric}": best,
+            "folds": {str(unit): {"chosen": tuning.chosen, "values": tuning.values} for unit, tuning in per_unit.items()}}
+
+
+def tuning_curves(tunings: dict[str, dict[int, Tuning]], settings: Settings) -> dict[str, np.ndarray]:
+    """Each tuned candidate's expected best validation figure against the number of trials
+    (Dodge et al. 2019), averaged over the folds it was tuned in. Controls that share their
+    candidate's tuning are left out."""
+    curves = {}
+    for candidate in settings.candidates:
+        per_unit = tunings[candidate.name]
+        if (candidate.control_of and not settings.study.tune_controls) or not any(t.values for t in per_unit.values()):
+            continue
+        curves[candidate.name] = np.nanmean(
+            [expected_best(tuning.values, settings.task.higher_is_better) for tuning in per_unit.values()], axis=0)
+    return curves
+
+
+def budget_note(curves: dict[str, np.ndarray], settings: Settings) -> str:
+    """Whether the ranking of the tuned candidates by expected best validation figure at the
+    full budget already holds at a quarter and at half of it."""
+    sign = 1.0 if settings.task.higher_is_better else -1.0
+    trials = settings.study.trials
+
+    def ranking(count: int) -> list[str]:
+        return sorted(curves, key=lambda name: -sign * curves[name][count - 1])
+
+    full = ranking(trials)
+    parts = []
+    for share, count in (("a quarter", max(1, trials // 4)), ("half", max(1, trials // 2))):
+        held = ranking(count) == full
+        parts.append(f"{'holds' if held else 'does not hold'} at {share} of it ({count} trials"
+                     f"{'' if held else ': ' + ', '.join(ranking(count))})")
+    return (f"The ranking of the tuned candidates by expected best validation {settings.task.metric} at the full budget "
+            f"of {trials} trials ({', '.join(full)}; Dodge et al. 2019's estimator from the trials run) "
+            f"{parts[0]} and {parts[1]}.")
+
+
+def stability_notes(result: dict[str, Any], settings: Settings, run, say, configured) -> list[str]:
+    """With ``tuning_seeds`` > 1: the whole protocol again under each further sampler seed, and
+    how often each candidate's outcomes (against the reference, and its graph against its
+    control) are the same as under the first."""
+    study = settings.study
+    outcomes = [outcomes_of(result)]
+    for extra in range(1, study.tuning_seeds):
+        say(f"tuning seed {extra + 1}/{study.tuning_seeds}")
+        units, _ = run_protocol(settings, study.sampler_seed + extra, run, say, configured)
+        outcomes.append(outcomes_of(verdict(units, settings.candidates, study, settings.task, settings.uncontrolled)))
+    notes = []
+    for key, first in outcomes[0].items():
+        same = sum(other.get(key) == first for other in outcomes)
+        name, question = key
+        said = first.replace("_", " ")
+        what = f"its graph against the rewired control: {said}" if question == "graph" else f"{said}"
+        notes.append(f"{name}: {what} with {same} of {study.tuning_seeds} tuning seeds.")
+    return notes
+
+
+def outcomes_of(result: dict[str, Any]) -> dict[tuple[str, str], str]:
+    """Every decided question of a verdict: ``(candidate, "reference" | "graph") -> outcome``."""
+    found = {}
+    for entry in result["candidates"]:
+        if "comparison" in entry:
+            found[(entry["candidate"], "reference")] = entry["outcome"]
+        if "comparison" in entry.get("graph", {}):
+            found[(entry["candidate"], "graph")] = entry["graph"]["outcome"]
+    return found
 
 
 def candidates_table(units: pd.DataFrame, task: Task) -> str:

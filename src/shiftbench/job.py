@@ -46,7 +46,7 @@ if TYPE_CHECKING:
 def load_data(run: RunConfig) -> Dataset:
     """The run's dataset under its split, shared by the jobs of this process; a one-line error
     when its targets are not what the run's task learns (a user's file of another kind)."""
-    dataset = shared(f"dataset/split{run.split}", (run.data,), lambda: load_dataset(run.data, run.split))
+    dataset = shared(f"dataset/{run.folds}folds/split{run.split}", (run.data,), lambda: load_dataset(run.data, run.split, run.folds))
     task = TASKS[run.task]
     if not task.fits(dataset.labels, dataset.nodes):
         where = f"data.path={run.data.path!r}" if run.data.source == "file" else f"data={run.data.source}"
@@ -108,12 +108,12 @@ def fit_family(
     shift = None
     if family.uses_graph:
         key = (run.data, run.graph)
-        graph = shared(f"graph/split{run.split}", key, lambda: build_graph(run.graph, dataset))
+        graph = shared(f"graph/{run.folds}folds/split{run.split}", key, lambda: build_graph(run.graph, dataset))
         record.graph_name = graph.name
         record.graph_notes = graph_notes(graph)
         for note in record.graph_notes:
             print(f"note: graph {record.graph}: {note}", flush=True)
-        shift = shared(f"shift/split{run.split}", key, lambda: shift_operator(graph, run.graph.operator, run.graph.scale))
+        shift = shared(f"shift/{run.folds}folds/split{run.split}", key, lambda: shift_operator(graph, run.graph.operator, run.graph.scale))
     arch, head = run.arch, TASKS[run.task].head
     if getattr(arch, "budget", None) is not None:
         record.budget = arch.budget
@@ -156,6 +156,7 @@ def new_record(run: RunConfig, plain: dict[str, Any], digest: str, overrides: li
         order=getattr(run.arch, "order", None),
         seed=run.seed,
         split=run.split,
+        folds=run.folds or None,
         task=run.task,
         started=datetime.now(timezone.utc).isoformat(timespec="seconds"),
     )

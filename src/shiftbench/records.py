@@ -39,6 +39,7 @@ WEIGHTS_FILE = "weights.npz"
 MANIFEST_FILE = "jobs.jsonl"
 # Record fields that only some jobs have; the rest are in every record of this version.
 OPTIONAL_FIELDS = (
+    "folds",
     "graph_name", "graph_notes", "budget", "sized_widths", "chosen", "chance_accuracy", "balanced_accuracy", "macro_f1",
     "confusion_matrix", "train_rmse", "val_rmse", "test_rmse", "test_mae", "test_r2", "chance_rmse", "flags",
     "resumed_from_epoch", "failed_epoch", "traceback",
@@ -50,6 +51,9 @@ SCORED = ("train", "val", "test", "chance")
 # it (the record keeps the count), or how often to save progress, not what is computed.
 OUTPUT_KEYS = ("results_dir", "force", "threads")
 TRAIN_RUN_KEYS = ("checkpoint_every",)
+# Root keys added after records were first written, with the value that computes what records
+# without them computed: left out of the hash at that value, so earlier homes are still found.
+LATER_KEYS = {"folds": 0}
 # A job in one of these states is done: a rerun skips it.
 FINAL_STATUSES = ("completed", "timed_out")
 
@@ -105,6 +109,7 @@ class Record:
     split: int
     task: str
     started: str
+    folds: int | None = None
     schema_version: int = SCHEMA_VERSION
     status: str = "failed"
     error: str | None = None
@@ -179,6 +184,9 @@ def write_weights(folder: Path, weights: dict[str, np.ndarray]) -> Path:
 def computed_content(config: dict[str, Any]) -> dict[str, Any]:
     """What a job computes: its resolved config minus output locations and run settings."""
     content = {key: value for key, value in config.items() if key not in OUTPUT_KEYS}
+    for key, neutral in LATER_KEYS.items():
+        if content.get(key) == neutral:
+            del content[key]
     if isinstance(content.get("train"), dict):
         content["train"] = {key: value for key, value in content["train"].items() if key not in TRAIN_RUN_KEYS}
     return content

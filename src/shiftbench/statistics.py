@@ -16,60 +16,134 @@ from statsmodels.stats.multitest import multipletests
 CONFIDENCE = 0.95
 
 
+# Fewer paired units than this, or differences with no spread, decide nothing.
+FEWEST_UNITS = 3
+
+
+@dataclass(frozen=True)
+class CorrectedT:
+    """The corrected resampled t-test of a mean difference (Nadeau & Bengio 2003, "Inference for
+    the generalization error"; for repeated K-fold cross-validation Bouckaert & Frank 2004):
+
+    ``t = mean / sqrt((1/J + n_test/n_train) s^2)`` with ``J - 1`` degrees of freedom, where
+    ``J`` is the number of units and ``s`` their standard deviation. Resampled units share
+    training samples, so their spread underestimates the variance; the ``n_test/n_train`` term
+    restores it (the plain paired t-test has only ``1/J``)."""
+
+    mean: float
+    low: float
+    high: float
+    p: float
+    degrees_of_freedom: int
+    scale: float
+
+
+def corrected_t(differences: np.ndarray, test_ratio: float, confidence: float = CONFIDENCE) -> CorrectedT:
+    """:class:`CorrectedT` of ``(units,)`` differences; ``test_ratio`` is ``n_test / n_train``
+    (``1 / (K - 1)`` for K-fold). Needs two units and some spread (else NaN figures)."""
+    differences = np.asarray(differences, dtype=float)
+    count = len(differences)
+    mean = float(differences.mean())
+    spread = float(differences.std(ddof=1)) if count > 1 else 0.0
+    if count < 2 or spread < 1e-12:
+        return CorrectedT(mean, float("nan"), float("nan"), float("nan"), max(count - 1, 0), float("nan"))
+    scale = spread * float(np.sqrt(1 / count + test_ratio))
+    low, high = (float(x) for x in stats.t.interval(confidence, count - 1, loc=mean, scale=scale))
+    p = float(2 * stats.t.sf(abs(mean) / scale, count - 1))
+    return CorrectedT(mean, low, high, p, count - 1, scale)
+
+
 @dataclass(frozen=True)
 class PairedComparison:
-    """A candidate against a reference over paired units (same split and seed).
+    """A candidate against a reference over paired units (the same outer folds).
 
     Attributes:
-        differences: candidate minus reference, one per unit.
-        mean, low, high: the mean difference and its Student t interval (``CONFIDENCE``).
-        t_p, wilcoxon_p: two-sided p-values of the paired t-test and the signed-rank test.
-        below, inside, above: shares of units whose difference is below ``-rope``, within
-            ``[-rope, rope]``, above ``rope``.
+        differences: candidate minus reference, one per unit (larger is better).
+        mean, low, high, p: the mean difference, its corrected interval (``CONFIDENCE``) and
+            the corrected t-test's two-sided p (:func:`corrected_t`).
+        degrees_of_freedom: units minus one.
+        test_ratio: ``n_test / n_train`` of the correction (``1 / (folds - 1)``).
+        plain_low, plain_high, t_p: the plain paired t interval and p (secondary: too narrow
+            on resampled units), wilcoxon_p: the signed-rank test's p (secondary).
+        p_better, p_equivalent, p_worse: the Bayesian correlated t-test's posterior
+            probabilities (Corani & Benavoli 2015; Benavoli et al. 2017, from ``baycomp``) that
+            the difference is above ``rope``, within ``[-rope, rope]``, below ``-rope``.
+        below, inside, above: shares of units whose difference is below, within, above the ROPE.
+        degenerate: why nothing can be decided (too few units, or identical differences), or None.
     """
 
     differences: tuple[float, ...]
     mean: float
     low: float
     high: float
+    p: float
+    degrees_of_freedom: int
+    test_ratio: float
+    plain_low: float
+    plain_high: float
     t_p: float
     wilcoxon_p: float
+    p_better: float
+    p_equivalent: float
+    p_worse: float
     below: float
     inside: float
     above: float
+    degenerate: str | None = None
 
     def as_dict(self) -> dict:
         return asdict(self)
 
 
-def compare_paired(candidate: np.ndarray, reference: np.ndarray, rope: float) -> PairedComparison:
-    """Compare two ``(units,)`` arrays of paired figures.
-
-    ``mean +- t_{0.975, n-1} s / sqrt(n)`` for the interval; when every difference is equal the
-    interval is that value and both p-values are 1 if it is 0, else 0 for the t-test (no spread)
-    and the signed-rank test's own value."""
-    differences = np.asarray(candidate, dtype=float) - np.asarray(reference, dtype=float)
+def compare_paired(candidate: np.ndarray, reference: np.ndarray, rope: float, folds: int, repetitions: int = 1) -> PairedComparison:
+    """Compare two ``(units,)`` arrays of paired figures (larger is better) from ``repetitions``
+    of ``folds``-fold cross-validation: the corrected t (ratio ``1 / (folds - 1)``), baycomp's
+    correlated t-test with ``runs=repetitions`` (the same variance and degrees of freedom), and
+    the plain paired t and signed-rank tests beside them. With fewer than
+    :data:`FEWEST_UNITS` units or no spread every figure but the mean is NaN and
+    ``degenerate`` says why."""
+    candidate, reference = np.asarray(candidate, dtype=float), np.asarray(reference, dtype=float)
+    differences = candidate - reference
     count = len(differences)
-    mean = float(differences.mean())
-    spread = float(differences.std(ddof=1)) if count > 1 else float("nan")
-    if count < 2:
-        low = high = t_p = wilcoxon_p = float("nan")
-    elif spread < 1e-12:  # equal differences (up to rounding): no spread to test against
-        low = high = mean
-        t_p = 1.0 if mean == 0 else 0.0
-        wilcoxon_p = 1.0 if mean == 0 else float(stats.wilcoxon(differences).pvalue)
-    else:
-        low, high = (float(x) for x in stats.t.interval(CONFIDENCE, count - 1, loc=mean, scale=spread / np.sqrt(count)))
-        t_p = float(stats.ttest_rel(candidate, reference).pvalue)
-        nonzero = differences[differences != 0]
-        wilcoxon_p = float(stats.wilcoxon(differences).pvalue) if len(nonzero) else 1.0
+    ratio = 1.0 / (folds - 1)
+    shares = dict(below=float((differences < -rope).mean()), inside=float((np.abs(differences) <= rope).mean()),
+                  above=float((differences > rope).mean()))
+    spread = float(differences.std(ddof=1)) if count > 1 else 0.0
+    nan = float("nan")
+    if count < FEWEST_UNITS or spread < 1e-12:
+        reason = f"{count} units" if count < FEWEST_UNITS else "identical differences on every unit"
+        return PairedComparison(tuple(map(float, differences)), float(differences.mean()), nan, nan, nan, max(count - 1, 0),
+                                ratio, nan, nan, nan, nan, nan, nan, nan, **shares, degenerate=reason)
+    import baycomp
+
+    corrected = corrected_t(differences, ratio)
+    plain_low, plain_high = (float(x) for x in stats.t.interval(
+        CONFIDENCE, count - 1, loc=corrected.mean, scale=spread / np.sqrt(count)))
+    better, equivalent, worse = (float(x) for x in baycomp.two_on_single(candidate, reference, rope=rope, runs=repetitions))
+    nonzero = differences[differences != 0]
     return PairedComparison(
-        differences=tuple(float(x) for x in differences),
-        mean=mean, low=low, high=high, t_p=t_p, wilcoxon_p=wilcoxon_p,
-        below=float((differences < -rope).mean()),
-        inside=float((np.abs(differences) <= rope).mean()),
-        above=float((differences > rope).mean()),
+        differences=tuple(float(x) for x in differences), mean=corrected.mean, low=corrected.low, high=corrected.high,
+        p=corrected.p, degrees_of_freedom=corrected.degrees_of_freedom, test_ratio=ratio,
+        plain_low=plain_low, plain_high=plain_high, t_p=float(stats.ttest_rel(candidate, reference).pvalue),
+        wilcoxon_p=float(stats.wilcoxon(differences).pvalue) if len(nonzero) else 1.0,
+        p_better=better, p_equivalent=equivalent, p_worse=worse, **shares,
     )
+
+
+def units_to_decide(differences: np.ndarray, rope: float, folds: int, repetitions: int, most: int = 100) -> int | None:
+    """How many units (``folds`` x repetitions, up to ``most`` repetitions) would decide a
+    comparison at the observed mean and spread of ``differences``: the fewest whose corrected
+    interval clears the ROPE's edge (``rope``) on the side of the mean. None when no number of
+    repetitions would: the correction keeps ``n_test / n_train`` of the variance however many
+    repetitions there are, so only more data or more folds can narrow it below that floor."""
+    differences = np.asarray(differences, dtype=float)
+    mean, spread = float(differences.mean()), float(differences.std(ddof=1))
+    distance = abs(mean - rope)
+    for count in range(folds * repetitions, folds * most + 1, folds):
+        half = float(stats.t.ppf(0.5 + CONFIDENCE / 2, count - 1)) * spread * float(np.sqrt(1 / count + 1 / (folds - 1)))
+        if half < distance:
+            return count
+    return None
 
 
 def holm(p_values: list[float]) -> list[float]:

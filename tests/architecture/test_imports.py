@@ -47,6 +47,8 @@ STAGES = {
     "shiftbench.statistics": 1,
     "shiftbench.decision_plots": 9,
     "shiftbench.decision": 10,
+    "shiftbench.decision_protocol": 10,
+    "shiftbench.verdict": 10,
     "shiftbench.decision_study": 10,
     "shiftbench.cli": 11,
 }

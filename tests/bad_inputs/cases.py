@@ -76,7 +76,7 @@ CONFIG_CASES: list[tuple[list[str], str]] = [
     (["train.batch_size=1.5"], "train.batch_size=1.5 has the wrong type; accepted: an integer"),
     (["arch.foo=1"], "unknown key arch.foo (arch family graph_conv); accepted keys: family, order, channels, "
                      "nonlinearity, readout, dropout, normalization, budget, orders"),
-    (["+foo=1"], "unknown key foo; accepted top-level keys: seed, split, task, results_dir, device, force, threads, data, graph, arch, train"),
+    (["+foo=1"], "unknown key foo; accepted top-level keys: seed, split, folds, task, results_dir, device, force, threads, data, graph, arch, train"),
     (["arch=cnn"], "arch='cnn' is not accepted; accepted: one of fc, forest, graph_conv, lda, line_conv, logistic, nearest, qda, ridge"),
     (["graph=ring"], "graph='ring' is not accepted; accepted: one of correlation, cycle, file, geometric, grid, knn, "
                      "line, native, path, rewired, sbm"),

@@ -17,9 +17,16 @@ FC_VS_QDA = "decision.candidates=[{name: fc, overrides: [arch=fc]}, {name: qda, 
 
 @pytest.mark.parametrize(("setting", "message"), [
     ("decision.trials=0", "decision.trials=0 is not accepted; accepted: an integer >= 1"),
-    ("decision.splits=-1", "decision.splits=-1 is not accepted; accepted: an integer >= 1"),
+    ("decision.splits=-1", "decision.splits=-1 is not accepted; accepted: an integer >= 2"),
+    ("decision.splits=201", "decision.splits=201 is not accepted: the smallest class has 200 samples; accepted: an integer from 2 to 200"),
+    ("decision.protocol=twice", "decision.protocol='twice' is not accepted; accepted: one of nested, tune_once"),
+    ("decision.tuning_seeds=0", "decision.tuning_seeds=0 is not accepted; accepted: an integer >= 1"),
+    ("decision.rope=nan", "decision.rope=nan is not accepted"),
+    ("decision.alpha=high", "decision.alpha"),
+    ("decision.sampler_seed=-1", "decision.sampler_seed=-1 is not accepted; accepted: an integer >= 0"),
+    ("decision.folder=../elsewhere", "decision.folder='../elsewhere' is not accepted"),
     ("decision.budget=3", "accepted keys: decision.candidates"),
-    ("decision.rope=2", "decision.rope=2 is not accepted"),
+    ("decision.rope=2", "decision.rope=2.0 is not accepted; accepted: a number in [0, 1"),
     ("decision.candidates=[{name: g, overrides: [arch=graph_conv]}]", "at least one graph-free candidate"),
     ("decision.candidates=[{name: q, overrides: [arch=qda]}, {name: g, overrides: [arch=gnn]}]", "candidate 'g': "),
     ("decision.candidates=[{name: q, overrides: [arch=qda]}, {name: g, overrides: [arch.order=-2]}]",
@@ -31,37 +38,39 @@ def test_bad_settings_are_refused_in_one_line_before_any_job(tmp_path, setting, 
     assert not (tmp_path / "store").exists()
 
 
-def planted_file(path: Path, poison_test: bool) -> Path:
-    """Signals whose class shifts the mean of the first nodes; a fixed split. With
-    ``poison_test`` the test labels are shuffled: the study must tune exactly as before."""
+def planted_file(path: Path, poisoned: np.ndarray | None = None) -> Path:
+    """Signals whose class shifts the mean of the first nodes. ``poisoned``: samples whose
+    signals are replaced by large noise (the classes' counts, and so the folds, stay the same)."""
     rng = np.random.default_rng(0)
     labels = np.repeat([0, 1, 2], 40)
     signals = rng.standard_normal((120, 12)) + labels[:, None] * (np.arange(12) < 4)
-    split = np.tile([0, 0, 0, 1, 2], 24)
-    if poison_test:
-        test = split == 2
-        labels = labels.copy()
-        labels[test] = rng.permutation(labels[test])
-    np.savez(path, signals=signals.astype(np.float32), labels=labels, split=split)
+    if poisoned is not None:
+        signals[poisoned] = rng.standard_normal((len(poisoned), 12)) * 50
+    np.savez(path, signals=signals.astype(np.float32), labels=labels)
     return path
 
 
-def test_tuning_never_reads_the_test_split(tmp_path):
-    chosen = []
-    for poison in (False, True):
-        data = planted_file(tmp_path / f"data_{poison}.npz", poison)
-        folder = tmp_path / f"run_{poison}"
-        run_study([f"results_dir={folder}", "data=file", f"data.path={data}", *SMALL, "decision.splits=1", FC_VS_QDA],
+def test_tuning_never_reads_the_test_part_of_its_fold(tmp_path):
+    # Poison the signals of fold 0's test part: fold 0's tuning must see exactly the same figures.
+    from shiftbench.data.files import load_signal_file
+    from shiftbench.data.splits import fold_split
+
+    clean = planted_file(tmp_path / "clean.npz")
+    test_part = fold_split(load_signal_file(clean), 2, 0).splits.test
+    tunings = []
+    for name, data in (("clean", clean), ("poisoned", planted_file(tmp_path / "poisoned.npz", test_part))):
+        folder = tmp_path / f"run_{name}"
+        run_study([f"results_dir={folder}", "data=file", f"data.path={data}", *SMALL, "decision.protocol=tune_once", FC_VS_QDA],
                   CONFIG_DIR, say=lambda line: None)
-        result = json.loads((folder / "decision" / "verdict.json").read_text())
-        chosen.append((result["tuning"]["fc"]["chosen"], result["tuning"]["fc"]["best_val_accuracy"]))
-    assert chosen[0] == chosen[1]
+        tuning = json.loads((folder / "decision" / "verdict.json").read_text())["tuning"]["fc"]
+        tunings.append((tuning["chosen"], tuning["folds"]["0"]["values"]))
+    assert tunings[0] == tunings[1]
 
 
 def test_a_badly_configured_family_is_judged_by_its_tuned_figure(tmp_path):
     # fc's configured learning rate is far off (10); the tuner searches train.lr, and the verdict
     # reads the evaluation of the tuned setting, not the default's.
-    data = planted_file(tmp_path / "data.npz", poison_test=False)
+    data = planted_file(tmp_path / "data.npz")
     arguments = [f"results_dir={tmp_path}", "data=file", f"data.path={data}", "train.lr=10", *SMALL, FC_VS_QDA]
     run_study(arguments, CONFIG_DIR, say=lambda line: None)
     result = json.loads((tmp_path / "decision" / "verdict.json").read_text())
@@ -80,7 +89,7 @@ def test_a_graph_that_carries_no_information_is_not_said_to_earn_its_keep(tmp_pa
     # The classes shift the mean of a few nodes, independently of any graph; graph_conv runs on a
     # random SBM graph. The best graph-free model (logistic regression is the right model here)
     # must not be beaten.
-    data = planted_file(tmp_path / "data.npz", poison_test=False)
+    data = planted_file(tmp_path / "data.npz")
     candidates = ("decision.candidates=[{name: random graph, overrides: [arch=graph_conv, graph=sbm, graph.blocks=2]}, "
                   "{name: logistic, overrides: [arch=logistic]}, {name: qda, overrides: [arch=qda]}]")
     run_study([f"results_dir={tmp_path}", "data=file", f"data.path={data}", *SMALL, "decision.splits=3", candidates],
@@ -107,8 +116,10 @@ def test_a_node_task_gives_every_convolution_the_per_node_map_and_never_searches
 
         settings = read_settings(CONFIG_DIR.parent / "decision", [], composed)
     names = {candidate.name: candidate for candidate in settings.candidates}
-    assert set(names) == {"fc", "line_conv", "graph_conv on native graph", "nearest"}  # the classifiers and ridge left out
+    # The classifiers and ridge left out; the graph candidate keeps its rewired control.
+    assert set(names) == {"fc", "line_conv", "graph_conv on native graph", "graph_conv on native graph, rewired", "nearest"}
     assert "arch.readout=node" in names["line_conv"].overrides and "arch.readout=node" not in names["fc"].overrides
+    assert "arch.readout=node" in names["graph_conv on native graph, rewired"].overrides
     assert all(dimension.key != "arch.readout" for dimension in settings.spaces["graph_conv"])
     assert settings.task.name == "node_regression"
 

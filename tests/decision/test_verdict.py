@@ -1,25 +1,36 @@
-"""The verdict's rules on planted paired results, and the study's refusals of bad settings."""
+"""The verdict's rules on planted paired results over outer folds, and the study's refusals of
+bad search spaces."""
+
+from dataclasses import replace
 
 import numpy as np
 import pandas as pd
 import pytest
 
-from shiftbench.decision import Candidate, decide, read_space, verdict
+from shiftbench.decision import Candidate, StudyConfig, read_space
+from shiftbench.registry import TASKS
 from shiftbench.errors import ConfigError
+from shiftbench.statistics import compare_paired
+from shiftbench.verdict import decide, verdict
 
 GNN = Candidate("graph_conv", ("arch=graph_conv",), "graph_conv", True)
+CONTROL = Candidate("graph_conv, rewired", ("arch=graph_conv", "graph=rewired"), "graph_conv", True, control_of="graph_conv")
 FC = Candidate("fc", ("arch=fc",), "fc", False)
 QDA = Candidate("qda", ("arch=qda",), "qda", False)
+TEN_FOLDS = StudyConfig(splits=10, seeds=1)
+CLASSIFICATION = TASKS["classification"]
 
 
-def units(accuracy: dict[str, list[float]], val: dict[str, float] | None = None) -> pd.DataFrame:
-    """Planted records: one row per candidate and (split, seed) unit."""
+def units(accuracy: dict[str, list[float]], val: dict[str, float] | None = None, seeds: int = 1) -> pd.DataFrame:
+    """Planted records: one row per candidate, fold and seed (every seed of a fold the same figure)."""
     rows = []
     for name, figures in accuracy.items():
-        for unit, figure in enumerate(figures):
-            rows.append({"candidate": name, "split": unit // 2, "seed": unit % 2, "status": "completed",
-                         "test_accuracy": figure, "val_accuracy": (val or {}).get(name, figure),
-                         "parameters": 1000 if name != "qda" else 0, "train_seconds": 2.0, "inference_seconds_per_sample": 1e-5})
+        for fold, figure in enumerate(figures):
+            for seed in range(seeds):
+                rows.append({"candidate": name, "split": fold, "seed": seed, "status": "completed", "error": None,
+                             "test_accuracy": figure, "val_accuracy": (val or {}).get(name, figure),
+                             "parameters": 1000 if name != "qda" else 0, "train_seconds": 2.0,
+                             "inference_seconds_per_sample": 1e-5})
     return pd.DataFrame(rows)
 
 
@@ -27,49 +38,130 @@ def entry(result, name):
     return next(e for e in result["candidates"] if e["candidate"] == name)
 
 
+def noisy(mean: float, spread: float, seed: int = 0, count: int = 10) -> np.ndarray:
+    return mean + np.random.default_rng(seed).normal(0, spread, count)
+
+
 def test_a_graph_model_clearly_ahead_of_the_best_floor_earns_its_keep():
-    rng = np.random.default_rng(0)
-    base = 0.93 + rng.normal(0, 0.01, 10)
-    result = verdict(units({"graph_conv": base + 0.04, "fc": base - 0.15, "qda": base}, {"fc": 0.7, "qda": 0.93, "graph_conv": 0.97}),
-                     [GNN, FC, QDA], rope=0.01, alpha=0.05)
+    base = noisy(0.90, 0.02)
+    result = verdict(units({"graph_conv": base + noisy(0.06, 0.01, 1), "fc": base - noisy(0.15, 0.01, 2), "qda": base},
+                           {"fc": 0.7, "qda": 0.93, "graph_conv": 0.97}), [GNN, FC, QDA], TEN_FOLDS, CLASSIFICATION)
     assert result["reference"] == "qda"  # the best graph-free candidate, not fc
     assert entry(result, "graph_conv")["outcome"] == "earns_its_keep"
-    assert entry(result, "graph_conv")["sentence"].startswith("graph_conv earns its keep over qda: +0.040 test accuracy (95% CI")
+    assert entry(result, "graph_conv")["sentence"].startswith("graph_conv earns its keep over qda: +0.0")
+    assert "corrected for resampling, 10 folds x 1 repetition" in entry(result, "graph_conv")["sentence"]
+    assert "probability 1.00 better by more than 0.01" in entry(result, "graph_conv")["sentence"]
     assert entry(result, "fc")["outcome"] == "does_not_earn_its_keep"
 
 
 def test_a_graph_model_level_with_the_floor_is_equivalent_within_the_rope():
     base = np.linspace(0.80, 0.90, 10)
-    result = verdict(units({"graph_conv": base + 0.001 * (-1) ** np.arange(10), "qda": base}), [GNN, QDA], 0.01, 0.05)
+    result = verdict(units({"graph_conv": base + 0.001 * (-1) ** np.arange(10), "qda": base}), [GNN, QDA], TEN_FOLDS, CLASSIFICATION)
     assert entry(result, "graph_conv")["outcome"] == "equivalent"
     assert "is equivalent within the ROPE to qda" in entry(result, "graph_conv")["sentence"]
 
 
-def test_a_graph_that_carries_no_information_does_not_earn_its_keep():
-    rng = np.random.default_rng(1)
-    base = 0.9 + rng.normal(0, 0.01, 10)
-    result = verdict(units({"graph_conv": base - 0.05 + rng.normal(0, 0.01, 10), "qda": base}), [GNN, QDA], 0.01, 0.05)
+def test_a_graph_model_behind_the_floor_does_not_earn_its_keep():
+    base = noisy(0.9, 0.01, 1)
+    result = verdict(units({"graph_conv": base - 0.05 + noisy(0, 0.01, 2), "qda": base}), [GNN, QDA], TEN_FOLDS, CLASSIFICATION)
     assert entry(result, "graph_conv")["outcome"] == "does_not_earn_its_keep"
 
 
-def test_a_wide_interval_is_undecided_and_asks_for_more_runs():
-    result = verdict(units({"graph_conv": [0.9, 0.7, 0.95, 0.75], "qda": [0.8, 0.8, 0.8, 0.8]}), [GNN, QDA], 0.01, 0.05)
-    assert entry(result, "graph_conv")["outcome"] == "undecided"
-    assert "more runs needed (the interval crosses the ROPE)" in entry(result, "graph_conv")["sentence"]
+def test_a_wide_interval_is_undecided_and_says_how_many_units_would_decide_it():
+    result = verdict(units({"graph_conv": [0.88, 0.83, 0.86, 0.82, 0.86], "qda": [0.8] * 5}), [GNN, QDA],
+                     StudyConfig(splits=5, seeds=1), CLASSIFICATION)
+    said = entry(result, "graph_conv")
+    assert said["outcome"] == "undecided"
+    assert "the interval crosses the ROPE's edge; about" in said["sentence"] and "repetitions of 5 folds) would decide it" in said["sentence"]
+
+
+def test_an_interval_above_the_rope_with_a_large_holm_p_says_the_p_value_falls_short():
+    comparison = compare_paired(noisy(0.9, 0.01, 3) + 0.05, noisy(0.9, 0.01, 4), rope=0.01, folds=10)
+    from shiftbench.verdict import undecided_reason
+
+    assert decide(comparison, holm_p=0.2, rope=0.01, alpha=0.05) == "undecided"
+    assert undecided_reason(comparison, 0.2, TEN_FOLDS).startswith("the interval clears the ROPE but Holm p = 0.2")
+
+
+@pytest.mark.parametrize("figures", [[0.9, 0.91], [0.85, 0.86, 0.87, 0.88]])
+def test_too_few_or_identical_units_are_undecided_never_p_zero(figures):
+    # Two folds, or every fold exactly 0.05 ahead: no spread to test against.
+    result = verdict(units({"graph_conv": figures, "qda": [f - 0.05 for f in figures]}), [GNN, QDA],
+                     StudyConfig(splits=max(len(figures), 2), seeds=1), CLASSIFICATION)
+    said = entry(result, "graph_conv")
+    assert said["outcome"] == "undecided" and "too few or identical units" in said["sentence"]
+    assert np.isnan(said["comparison"]["p"])
+
+
+def test_a_duplicated_seed_does_not_narrow_the_interval():
+    # Seeds are averaged within a fold: two identical seeds are one observation, not two.
+    figures = {"graph_conv": noisy(0.9, 0.02, 4), "qda": noisy(0.88, 0.02, 5)}
+    one = verdict(units(figures, seeds=1), [GNN, QDA], StudyConfig(splits=10, seeds=1), CLASSIFICATION)
+    two = verdict(units(figures, seeds=2), [GNN, QDA], StudyConfig(splits=10, seeds=2), CLASSIFICATION)
+    first, second = entry(one, "graph_conv")["comparison"], entry(two, "graph_conv")["comparison"]
+    assert (second["low"], second["high"]) == pytest.approx((first["low"], first["high"]))
+    assert len(second["differences"]) == 10
 
 
 def test_unpaired_units_are_named_instead_of_compared():
     planted = units({"graph_conv": [0.9, 0.91, 0.92, 0.93], "qda": [0.8, 0.81, 0.82, 0.83]})
-    planted.loc[(planted["candidate"] == "graph_conv") & (planted["split"] == 1) & (planted["seed"] == 0), "status"] = "failed"
-    result = verdict(planted, [GNN, QDA], 0.01, 0.05)
+    planted.loc[(planted["candidate"] == "graph_conv") & (planted["split"] == 1), ["status", "error"]] = ["failed", "Boom: out of luck"]
+    result = verdict(planted, [GNN, QDA], StudyConfig(splits=4, seeds=1), CLASSIFICATION)
     assert entry(result, "graph_conv")["outcome"] == "missing_units"
-    assert "no completed run for split 1 seed 0" in entry(result, "graph_conv")["sentence"]
+    assert "no usable run for folds 1 (first error: Boom: out of luck)" in entry(result, "graph_conv")["sentence"]
+
+
+@pytest.mark.parametrize(("column", "value"), [("val_accuracy", float("inf")), ("test_accuracy", float("nan")), ("test_accuracy", None)])
+def test_a_non_finite_or_missing_figure_is_a_failed_unit(column, value):
+    planted = units({"graph_conv": [0.9, 0.91, 0.92, 0.93], "qda": [0.8, 0.81, 0.82, 0.83]})
+    planted[column] = planted[column].astype(object)
+    planted.loc[(planted["candidate"] == "graph_conv") & (planted["split"] == 2), column] = value
+    result = verdict(planted, [GNN, QDA], StudyConfig(splits=4, seeds=1), CLASSIFICATION)
+    assert entry(result, "graph_conv")["outcome"] == "missing_units"
+    assert "nan" not in entry(result, "qda")["sentence"]
 
 
 def test_the_reference_is_chosen_by_validation_not_by_test():
     # qda is ahead on test, fc on validation: the test split must not choose the reference.
-    result = verdict(units({"fc": [0.80] * 4, "qda": [0.90] * 4}, {"fc": 0.95, "qda": 0.85}), [FC, QDA], 0.01, 0.05)
+    result = verdict(units({"fc": [0.80] * 4, "qda": [0.90] * 4}, {"fc": 0.95, "qda": 0.85}), [FC, QDA],
+                     StudyConfig(splits=4, seeds=1), CLASSIFICATION)
     assert result["reference"] == "fc"
+
+
+def test_a_graph_that_beats_its_rewiring_is_said_to_add_beyond_its_degrees():
+    base = noisy(0.80, 0.02, 6)
+    result = verdict(units({"graph_conv": base + noisy(0.15, 0.01, 7), "graph_conv, rewired": base, "qda": base + 0.1}),
+                     [GNN, CONTROL, QDA], TEN_FOLDS, CLASSIFICATION)
+    graph = entry(result, "graph_conv")["graph"]
+    assert graph["outcome"] == "earns_its_keep" and graph["control"] == "graph_conv, rewired"
+    assert graph["sentence"].startswith("graph_conv: the graph itself adds +0.1")
+    assert "over a degree-preserving rewiring of it" in graph["sentence"]
+    assert entry(result, "graph_conv, rewired")["outcome"] == "control"
+    assert result["comparisons"] == 2  # graph_conv against qda, and against its control; Holm over both
+
+
+def test_a_graph_level_with_its_rewiring_adds_nothing_beyond_its_degrees():
+    base = noisy(0.90, 0.02, 8)
+    result = verdict(units({"graph_conv": base + 0.001 * (-1) ** np.arange(10), "graph_conv, rewired": base, "qda": base - 0.05}),
+                     [GNN, CONTROL, QDA], TEN_FOLDS, CLASSIFICATION)
+    graph = entry(result, "graph_conv")["graph"]
+    assert graph["outcome"] == "equivalent"
+    assert "your graph adds nothing beyond its degrees" in graph["sentence"]
+    assert entry(result, "graph_conv")["outcome"] == "earns_its_keep"  # a graph model can win without its graph mattering
+
+
+def test_a_control_that_failed_is_named_in_the_graph_sentence():
+    planted = units({"graph_conv": [0.9, 0.91, 0.92, 0.93], "graph_conv, rewired": [0.8] * 4, "qda": [0.8, 0.81, 0.82, 0.83]})
+    planted.loc[planted["candidate"] == "graph_conv, rewired", ["status", "error"]] = ["failed", "ConfigError: nothing to swap"]
+    result = verdict(planted, [GNN, CONTROL, QDA], StudyConfig(splits=4, seeds=1), CLASSIFICATION)
+    graph = entry(result, "graph_conv")["graph"]
+    assert graph["outcome"] == "no_control" and "nothing to swap" in graph["sentence"]
+    assert entry(result, "graph_conv")["outcome"] != "missing_units"
+
+
+def _comparison(low: float, high: float):
+    planted = compare_paired(np.array([0.9, 0.92, 0.91]), np.array([0.9, 0.9, 0.9]), rope=0.01, folds=3)
+    return replace(planted, low=low, high=high)
 
 
 @pytest.mark.parametrize(("low", "high", "p", "outcome"), [
@@ -78,7 +170,7 @@ def test_the_reference_is_chosen_by_validation_not_by_test():
 ])
 def test_the_decision_rule_on_intervals(low, high, p, outcome):
     # HDI+ROPE decision rule (Kruschke 2018, "Rejecting or accepting parameter values in Bayesian estimation"), with a Holm-adjusted p.
-    assert decide(low, high, p, rope=0.01, alpha=0.05) == outcome
+    assert decide(_comparison(low, high), p, rope=0.01, alpha=0.05) == outcome
 
 
 @pytest.mark.parametrize(("text", "message"), [
@@ -108,16 +200,14 @@ def test_across_datasets_writes_the_rank_test_and_its_critical_difference_diagra
 def test_for_an_error_metric_lower_is_better_and_the_sentence_says_the_error_difference():
     # The same rule on RMSE: the reference is the floor with the lowest validation RMSE, and a
     # graph model whose test RMSE is clearly lower earns its keep, said as a negative difference.
-    from shiftbench.registry import TASKS
-
-    rng = np.random.default_rng(1)
-    base = 0.80 + rng.normal(0, 0.01, 10)
-    rows = units({"graph_conv": base - 0.10, "fc": base + 0.20, "ridge": base}, {"fc": 1.1, "ridge": 0.8, "graph_conv": 0.7})
+    base = noisy(0.80, 0.01, 1)
+    rows = units({"graph_conv": base - noisy(0.10, 0.01, 2), "fc": base + noisy(0.20, 0.01, 3), "ridge": base},
+                 {"fc": 1.1, "ridge": 0.8, "graph_conv": 0.7})
     rows = rows.rename(columns={"test_accuracy": "test_rmse", "val_accuracy": "val_rmse"})
     ridge = Candidate("ridge", ("arch=ridge",), "ridge", False)
-    result = verdict(rows, [GNN, FC, ridge], rope=0.01, alpha=0.05, task=TASKS["regression"])
+    result = verdict(rows, [GNN, FC, ridge], TEN_FOLDS, TASKS["regression"])
     assert result["reference"] == "ridge" and result["metric"] == "rmse" and result["better"] == "lower"
     assert entry(result, "graph_conv")["outcome"] == "earns_its_keep"
-    assert entry(result, "graph_conv")["sentence"].startswith("graph_conv earns its keep over ridge: -0.100 test rmse (95% CI -0.")
+    assert entry(result, "graph_conv")["sentence"].startswith("graph_conv earns its keep over ridge: -0.1")
     assert entry(result, "fc")["outcome"] == "does_not_earn_its_keep"
-    assert "+0.200 test rmse" in entry(result, "fc")["sentence"]
+    assert "fc does not earn its keep over ridge: +0.1" in entry(result, "fc")["sentence"]  # +0.199: an error said as it is

@@ -83,3 +83,41 @@ def resplit(dataset: Dataset, split: int) -> Dataset:
         test, val = len(sizes.test), len(sizes.val)
         splits = Splits(train=np.sort(order[test + val:]), val=np.sort(order[test:test + val]), test=np.sort(order[:test]))
     return replace(dataset, splits=splits)
+
+
+def fold_split(dataset: Dataset, folds: int, split: int) -> Dataset:
+    """The dataset under outer fold ``split`` of repeated ``folds``-fold cross-validation.
+
+    ``split = repetition x folds + fold``. Every repetition shuffles all samples once (seeded by
+    the repetition) into ``folds`` disjoint test parts that cover the data (scikit-learn's
+    ``StratifiedKFold`` where samples have classes, ``KFold`` otherwise); fold ``fold`` is the
+    test part. The validation part is carved from the other folds only, in the dataset's own
+    ratio of validation to training samples (stratified where it can be), so nothing that
+    chooses weights or settings ever comes from the test part. The dataset's own split (a file's
+    ``split`` array, an archive's train/test) is not kept: the folds are drawn over all samples.
+    """
+    from sklearn.model_selection import KFold, StratifiedKFold
+
+    repetition, fold = divmod(split, folds)
+    samples = dataset.samples
+    stratify = has_classes(dataset.labels)
+    splitter = (StratifiedKFold if stratify else KFold)(n_splits=folds, shuffle=True, random_state=20_000 + repetition)
+    _, test = list(splitter.split(np.zeros(samples), dataset.labels if stratify else None))[fold]
+    rest = np.setdiff1d(np.arange(samples), test)
+    own = dataset.splits
+    share = len(own.val) / max(len(own.train) + len(own.val), 1)
+    if share == 0:
+        return replace(dataset, splits=Splits(train=rest, val=rest[:0], test=np.sort(test)))
+    from sklearn.model_selection import train_test_split
+
+    try:
+        train, val = train_test_split(rest, test_size=share, random_state=30_000 + split,
+                                      stratify=dataset.labels[rest] if stratify else None)
+    except ValueError:  # a class too small to stratify in this fold: carve plainly
+        train, val = train_test_split(rest, test_size=share, random_state=30_000 + split)
+    return replace(dataset, splits=Splits(train=np.sort(train), val=np.sort(val), test=np.sort(test)))
+
+
+def smallest_class(labels: np.ndarray) -> int | None:
+    """The size of the smallest class, or None for value targets (no classes to stratify by)."""
+    return int(np.bincount(labels).min()) if has_classes(labels) else None
