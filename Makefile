@@ -31,6 +31,7 @@ bench: setup
 	$(BIN)/python -m benchmarks.layers
 	$(BIN)/python -m benchmarks.end_to_end
 	$(BIN)/python -m benchmarks.decision
+	$(BIN)/python -m benchmarks.null_share
 	$(BIN)/python -m benchmarks.memory
 	$(BIN)/python -m benchmarks.startup
 	$(BIN)/python -m benchmarks.contention

@@ -60,7 +60,8 @@ def main(argv: list[str] | None = None) -> None:
         f"Measured {figures['date']} on {facts['cpu']}, {facts['cores']} cores, torch {facts['torch']} by "
         "`python -m benchmarks.decision`: `shiftbench-decide` from an empty results folder, demo scenario, "
         f"default budgets ({figures['candidates']} candidates, controls included, {max(figures['trials'].values())} "
-        f"trials a tuning, {figures['units']} paired units; {verdict['protocol']}): {wall / 60:.1f} minutes.",
+        f"trials a tuning, {figures['units']} paired units): {wall / 60:.1f} minutes, one process (the study runs its "
+        f"jobs one after another). Protocol: {verdict['protocol']}",
         "",
     ]))
     print(done.stdout)

@@ -17,7 +17,6 @@ from shiftbench import decision_plots
 from shiftbench.config_store import register_defaults
 from shiftbench.decision import Candidate, Settings, read_settings
 from shiftbench.decision_protocol import Tuning, expected_best, run_protocol
-from shiftbench.errors import ConfigError
 from shiftbench.job import run_job
 from shiftbench.preflight import preflight
 from shiftbench.records import write_atomic
@@ -69,26 +68,18 @@ def run_study(arguments: list[str], config_dir: Path, say=print) -> str:
 
 
 def check_folds(config: DictConfig, settings: Settings) -> None:
-    """Refuse, before any job, outer folds the data cannot give (more folds than the smallest
-    class has samples, or than there are samples)."""
+    """Refuse, before any job, outer folds the data cannot give."""
     from shiftbench.config import validate
     from shiftbench.data import load_dataset
-    from shiftbench.data.splits import smallest_class
+    from shiftbench.data.splits import check_fold_count
 
-    run = validate(config)
-    dataset = load_dataset(run.data)
-    folds = settings.study.splits
-    smallest = smallest_class(dataset.labels)
-    if (smallest if smallest is not None else dataset.samples) < folds:
-        what = f"the smallest class has {smallest} samples" if smallest is not None else f"there are {dataset.samples} samples"
-        raise ConfigError(f"decision.splits={folds} is not accepted: {what}; accepted: an integer from 2 to "
-                          f"{smallest if smallest is not None else dataset.samples} (outer folds, each testing part of every class)")
+    check_fold_count(load_dataset(validate(config).data), settings.study.splits, key="decision.splits")
 
 
 def protocol_text(settings: Settings) -> str:
     """The protocol in one paragraph, for the verdict and ``verdict.json``."""
     study = settings.study
-    folds = (f"{study.splits} outer folds (stratified where there are classes) x {study.repetitions} repetition(s), "
+    folds = (f"{study.splits} outer folds (stratified where there are classes) x {study.repetitions} repetition{'s' * (study.repetitions > 1)}, "
              f"their test parts disjoint within a repetition; {study.seeds} seeds per fold, averaged into one unit")
     if study.protocol == "nested":
         tuning = (f"nested: every trained candidate tuned inside every fold ({study.trials} TPE trials, sampler seed "
@@ -228,21 +219,22 @@ def outcomes_of(result: dict[str, Any]) -> dict[tuple[str, str], str]:
 
 
 def candidates_table(units: pd.DataFrame, task: Task) -> str:
-    """Mean figures per candidate over its usable units, as markdown."""
+    """Mean figures per candidate over its usable runs (fold x seed), and the median parameter
+    count (nested tuning may choose another size in each fold), as markdown."""
     completed = usable_units(units, task)
     metric = task.metric
     test, val = f"test_{metric}", f"val_{metric}"
     table = completed.groupby("candidate", sort=False).agg(
         test=(test, "mean"), std=(test, "std"), val=(val, "mean"),
-        parameters=("parameters", "median"), train_seconds=("train_seconds", "mean"), units=(test, "size"),
+        parameters=("parameters", "median"), train_seconds=("train_seconds", "mean"), runs=(test, "size"),
     )
     short = "acc" if metric == "accuracy" else metric
-    lines = [f"| candidate | test {short} | ± std | val {short} | parameters | train s | units |",
+    lines = [f"| candidate | test {short} | ± std | val {short} | median parameters | train s | runs |",
              "| --- | ---: | ---: | ---: | ---: | ---: | ---: |"]
     for name, row in table.iterrows():
         lines.append(
             f"| {name} | {row.test:.3f} | {row['std']:.3f} | {row.val:.3f} | {row.parameters:,.0f} | "
-            f"{row.train_seconds:.2f} | {int(row.units)} |"
+            f"{row.train_seconds:.2f} | {int(row.runs)} |"
         )
     return "\n".join(lines) + "\n"
 

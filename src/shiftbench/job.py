@@ -59,15 +59,16 @@ def load_data(run: RunConfig) -> Dataset:
 
 def check_inputs(run: RunConfig) -> None:
     """Read and check the user's files a job would use (a data file, a graph file), so a bad file
-    stops a sweep before its first job. Other sources are checked by the config alone. Where
-    the config tells the node count, a model too large to train is refused here too."""
+    stops a sweep before its first job; with outer folds, the data is loaded to check it can give
+    them. Other sources are checked by the config alone. Where the config tells the node count,
+    a model too large to train is refused here too."""
     nodes, samples = run.data.known_nodes(), run.data.known_samples()
     if nodes is not None and getattr(run.arch, "budget", None) is None:
         # One feature and the configured classes: the least the job could need.
         classes = getattr(run.data, "classes", 2)
         require_memory_for(run.arch, nodes, 1, classes, run.train.batch_size, samples or 0, available_memory_bytes())
     uses_graph_file = FAMILIES[run.arch.family].uses_graph and run.graph.source == "file"
-    if run.data.source != "file" and not uses_graph_file:
+    if run.data.source != "file" and not uses_graph_file and not run.folds:
         return
     dataset = load_data(run)
     check_graph_fits(run.graph, run.arch.family, dataset.nodes)

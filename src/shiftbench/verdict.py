@@ -298,7 +298,7 @@ def write_verdict(result: dict[str, Any], folder: Path) -> str:
     metric = "" if result.get("metric", "accuracy") == "accuracy" else f" test {result['metric']}, {result['better']} is better"
     lines += ["", f"Reference: {result['reference']} (best graph-free candidate on validation). ROPE ±{result['rope']}{metric}, "
               f"alpha {result['alpha']}; {result['units']} paired units ({result['folds']} outer folds x {result['repetitions']} "
-              f"repetitions, {result['seeds']} seeds averaged in each); intervals and p from the corrected resampled t-test "
+              f"repetition{'s' * (result['repetitions'] > 1)}, {result['seeds']} seeds averaged in each); intervals and p from the corrected resampled t-test "
               f"(Nadeau & Bengio 2003), Holm-adjusted over {result['comparisons']} comparisons; probabilities from the "
               "Bayesian correlated t-test (baycomp)."]
     if "protocol" in result:

@@ -86,6 +86,9 @@ CONFIG_CASES: list[tuple[list[str], str]] = [
                                    "hydra/launcher=joblib here, or on a cluster's login node"),
     (["arch.order=-1"], "arch.order=-1 is not accepted; accepted: an integer >= 0"),
     (["threads=0"], "threads=0 is not accepted; accepted: an integer >= 1"),
+    (["folds=1"], "folds=1 is not accepted; accepted: 0 (no outer folds) or an integer >= 2"),
+    (["folds=500"], "folds=500 is not accepted: the smallest class has 200 samples; accepted: an integer from 2 to 200 "
+                    "(outer folds, each testing part of every class)"),
     (["arch=line_conv", "arch.padding=valid"], "arch.padding='valid' is not accepted; accepted: one of causal, same"),
     (["train.lr=inf"], "train.lr=inf is not accepted; accepted: a number > 0"),
     (["data.noise=inf"], "data.noise=inf is not accepted; accepted: a number >= 0"),

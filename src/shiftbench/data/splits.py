@@ -9,6 +9,7 @@ import numpy as np
 
 from shiftbench.config import FRACTION, declared, require
 from shiftbench.data.dataset import DataConfig, Dataset, Splits
+from shiftbench.errors import ConfigError
 
 
 @dataclass
@@ -98,6 +99,7 @@ def fold_split(dataset: Dataset, folds: int, split: int) -> Dataset:
     """
     from sklearn.model_selection import KFold, StratifiedKFold
 
+    check_fold_count(dataset, folds)
     repetition, fold = divmod(split, folds)
     samples = dataset.samples
     stratify = has_classes(dataset.labels)
@@ -116,6 +118,17 @@ def fold_split(dataset: Dataset, folds: int, split: int) -> Dataset:
     except ValueError:  # a class too small to stratify in this fold: carve plainly
         train, val = train_test_split(rest, test_size=share, random_state=30_000 + split)
     return replace(dataset, splits=Splits(train=np.sort(train), val=np.sort(val), test=np.sort(test)))
+
+
+def check_fold_count(dataset: Dataset, folds: int, key: str = "folds") -> None:
+    """Refuse more outer folds than the smallest class has samples (each fold tests part of
+    every class), or than there are samples for value targets."""
+    smallest = smallest_class(dataset.labels)
+    most = smallest if smallest is not None else dataset.samples
+    what = f"the smallest class has {smallest} samples" if smallest is not None else f"there are {dataset.samples} samples"
+    if folds > most:
+        raise ConfigError(f"{key}={folds} is not accepted: {what}; accepted: an integer from 2 to {most} "
+                          "(outer folds, each testing part of every class)")
 
 
 def smallest_class(labels: np.ndarray) -> int | None:
