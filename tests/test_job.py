@@ -2,6 +2,7 @@
 
 import json
 
+import numpy as np
 import pandas as pd
 import pytest
 
@@ -238,3 +239,19 @@ def test_records_are_readable_as_the_umask_allows_not_private(small_config):
     os.umask(umask)
     for name in (RECORD_FILE, CURVE_FILE):
         assert (home(record) / name).stat().st_mode & 0o777 == 0o666 & ~umask
+
+
+def test_a_small_job_after_a_large_allocation_records_its_own_peak_memory(small_config):
+    # proc(5): writing 5 to /proc/self/clear_refs resets the peak resident size (Linux 4.0+).
+    import sys
+
+    if not sys.platform.startswith("linux"):
+        pytest.skip("the per-job reset needs Linux's /proc/self/clear_refs")
+    from shiftbench.runtime import peak_memory_mb
+
+    large = np.ones(600 * 2**20 // 8)  # 600 MiB touched, then freed before the job
+    del large
+    peak_before = peak_memory_mb()  # the process's mark, the large array included
+    record = run_job(small_config("arch=fc"), None, [], live=False)
+    assert record["peak_rss_scope"] == "job"
+    assert record["peak_rss_mb"] < peak_before - 300

@@ -189,6 +189,8 @@ graph-free candidate, and does it beat itself on a degree-preserving rewiring of
                        trials, splits (outer folds), repetitions, seeds, tune_controls,
                        tuning_seeds, rope, alpha, sampler_seed, folder, candidates
   data=A[,B...]        the dataset(s); several give a rank test across datasets
+  hydra/launcher=NAME  where the jobs run, as for a sweep: basic (this process, the default),
+                       joblib (hydra.launcher.n_jobs=2: local cores), submitit_local, slurm_cpu
   KEY=VALUE            any job override, given to every job (train.epochs=50, graph.neighbors=8)
 
 Writes verdict.md, verdict.json, units.csv and plots to results_dir/decision (decision.folder)."""

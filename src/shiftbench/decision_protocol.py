@@ -21,8 +21,9 @@ from shiftbench.decision import Candidate, DecisionError, Dimension, Settings, o
 from shiftbench.records import FINAL_STATUSES
 from shiftbench.registry import FAMILIES, Task
 
-# Runs one job from its overrides and returns its record (the store skips what is done).
-RunJob = Callable[[list[str]], dict[str, Any]]
+# Runs a batch of jobs, each from its overrides, and returns their records in the same order
+# (the store skips what is done).
+RunBatch = Callable[[list[list[str]]], list[dict[str, Any]]]
 
 # Record figures the verdict reads, per unit, besides the task's metric on test and validation.
 COST_FIELDS = ("parameters", "train_seconds", "inference_seconds_per_sample")
@@ -90,80 +91,94 @@ class Tuning:
         return sum(value is None for value in self.values)
 
 
-def tune(
-    candidate: Candidate, settings: Settings, unit: int, sampler_seed: int, run: RunJob, say: Callable[[str], None],
-    configured: DictConfig | None = None,
-) -> Tuning:
-    """Choose ``candidate``'s setting on outer fold ``unit``'s validation figure of the task's
-    metric, over ``trials`` TPE trials seeded by ``sampler_seed``. The first trial is the
-    configured setting where the space holds it (``configured``: the candidate's composed
-    config), so tuning never ends below the default on validation. Floors are not tuned here:
-    they choose on validation inside their own job."""
-    if FAMILIES[candidate.family].fit is not None:
-        return Tuning([])
+def tune_all(
+    tasks: list[tuple[Candidate, int]], settings: Settings, sampler_seed: int, run: RunBatch, say: Callable[[str], None],
+    configured: Callable[[Candidate], DictConfig],
+) -> dict[tuple[str, int], Tuning]:
+    """Tune every ``(candidate, unit)`` of ``tasks`` on outer fold ``unit``'s validation figure
+    of the task's metric, over ``trials`` TPE trials seeded by ``sampler_seed``; returns each
+    task's tuning. The first trial is the configured setting where the space holds it, so
+    tuning never ends below the default on validation. Floors are not tuned here: they choose
+    on validation inside their own job.
+
+    The tunings advance together, one trial each per batch handed to ``run``: each tuning asks
+    and tells in the same order as it would alone, so the choices do not depend on how many
+    jobs run at once."""
     import optuna
 
     optuna.logging.set_verbosity(optuna.logging.WARNING)
     metric, trials = settings.task.metric, settings.study.trials
     direction = "maximize" if settings.task.higher_is_better else "minimize"
-    study = optuna.create_study(direction=direction, sampler=optuna.samplers.TPESampler(seed=sampler_seed))
-    space = settings.spaces[candidate.family]
-    if configured is not None:
-        study.enqueue_trial(configured_values(space, configured))
-    values: list[float | None] = []
-    for number in range(trials):
-        trial = study.ask()
-        lines = suggest(trial, space)
-        record = run([*candidate.overrides, *lines, *unit_lines(candidate, settings, unit, 0)])
-        value = usable_figure(record, f"val_{metric}")
-        values.append(value)
-        where = f"  fold {unit} trial {number + 1}/{trials} of {candidate.name}"
-        if value is None:
-            study.tell(trial, state=optuna.trial.TrialState.FAIL)
-            say(f"{where}: failed ({record.get('error') or 'val ' + metric + ' ' + str(record.get(f'val_{metric}'))})")
-            continue
-        study.tell(trial, value)
-        say(f"{where}: val {metric} {value:.3f}  {' '.join(lines)}")
-    if all(value is None for value in values):
-        raise DecisionError(f"every tuning trial of {candidate.name} on fold {unit} failed; see the failed records in the store")
-    chosen = [f"{key}={override_text(value)}" for key, value in study.best_trial.params.items()]
-    return Tuning(chosen, values)
+    tuned = [(candidate, unit) for candidate, unit in tasks if FAMILIES[candidate.family].fit is None]
+    studies, values = {}, {}
+    for candidate, unit in tuned:
+        study = optuna.create_study(direction=direction, sampler=optuna.samplers.TPESampler(seed=sampler_seed))
+        held = configured_values(settings.spaces[candidate.family], configured(candidate))
+        if held:
+            study.enqueue_trial(held)
+        studies[candidate.name, unit], values[candidate.name, unit] = study, []
+    for number in range(trials if tuned else 0):
+        asked = {key: study.ask() for key, study in studies.items()}
+        lines = {(candidate.name, unit): suggest(asked[candidate.name, unit], settings.spaces[candidate.family])
+                 for candidate, unit in tuned}
+        records = run([[*candidate.overrides, *lines[candidate.name, unit], *unit_lines(candidate, settings, unit, 0)]
+                       for candidate, unit in tuned])
+        for (candidate, unit), record in zip(tuned, records):
+            key = (candidate.name, unit)
+            value = usable_figure(record, f"val_{metric}")
+            values[key].append(value)
+            where = f"  fold {unit} trial {number + 1}/{trials} of {candidate.name}"
+            if value is None:
+                studies[key].tell(asked[key], state=optuna.trial.TrialState.FAIL)
+                say(f"{where}: failed ({record.get('error') or 'val ' + metric + ' ' + str(record.get(f'val_{metric}'))})")
+            else:
+                studies[key].tell(asked[key], value)
+                say(f"{where}: val {metric} {value:.3f}  {' '.join(lines[key])}")
+    tunings = {(candidate.name, unit): Tuning([]) for candidate, unit in tasks}
+    for (name, unit), study in studies.items():
+        if all(value is None for value in values[name, unit]):
+            raise DecisionError(f"every tuning trial of {name} on fold {unit} failed; see the failed records in the store")
+        chosen = [f"{key}={override_text(value)}" for key, value in study.best_trial.params.items()]
+        tunings[name, unit] = Tuning(chosen, values[name, unit])
+    return tunings
 
 
-def evaluate(candidate: Candidate, chosen: dict[int, list[str]], settings: Settings, run: RunJob) -> pd.DataFrame:
-    """Retrain each unit's chosen setting with every seed; one row per unit and seed."""
+def evaluate_all(chosen: dict[str, dict[int, list[str]]], settings: Settings, run: RunBatch) -> pd.DataFrame:
+    """Retrain each candidate's chosen setting of each unit with every seed, all in one batch;
+    one row per candidate, unit and seed."""
+    jobs = [(candidate, unit, seed) for candidate in settings.candidates for unit in settings.units
+            for seed in range(settings.study.seeds)]
+    records = run([[*candidate.overrides, *chosen[candidate.name][unit], *unit_lines(candidate, settings, unit, seed)]
+                   for candidate, unit, seed in jobs])
     rows = []
-    for unit in settings.units:
-        for seed in range(settings.study.seeds):
-            record = run([*candidate.overrides, *chosen[unit], *unit_lines(candidate, settings, unit, seed)])
-            row = {"candidate": candidate.name, "split": unit, "seed": seed, "status": record.get("status"),
-                   "error": record.get("error")}
-            row.update({key: record.get(key) for key in unit_fields(settings.task)})
-            rows.append(row)
+    for (candidate, unit, seed), record in zip(jobs, records):
+        row = {"candidate": candidate.name, "split": unit, "seed": seed, "status": record.get("status"),
+               "error": record.get("error")}
+        row.update({key: record.get(key) for key in unit_fields(settings.task)})
+        rows.append(row)
     return pd.DataFrame(rows)
 
 
 def run_protocol(
-    settings: Settings, sampler_seed: int, run: RunJob, say: Callable[[str], None], configured: Callable[[Candidate], DictConfig],
+    settings: Settings, sampler_seed: int, run: RunBatch, say: Callable[[str], None], configured: Callable[[Candidate], DictConfig],
 ) -> tuple[pd.DataFrame, dict[str, dict[int, Tuning]]]:
     """Tune and evaluate every candidate under the settings' protocol; returns the units (one
     row per candidate, unit and seed) and each candidate's tuning per tuned unit. A control
     takes its candidate's setting on every unit, unless ``tune_controls``."""
-    tables, tunings = [], {}
     tuned_units = list(settings.units) if settings.study.protocol == "nested" else [0]
+    own = [candidate for candidate in settings.candidates if not candidate.control_of or settings.study.tune_controls]
+    trained = [candidate.name for candidate in own if FAMILIES[candidate.family].fit is None]
+    if trained:
+        say(f"tuning {', '.join(trained)} ({len(tuned_units)} x {settings.study.trials} trials each)")
+    found = tune_all([(candidate, unit) for candidate in own for unit in tuned_units], settings, sampler_seed, run, say, configured)
+    tunings: dict[str, dict[int, Tuning]] = {}
     for candidate in settings.candidates:
-        if candidate.control_of and not settings.study.tune_controls:
-            tunings[candidate.name] = tunings[candidate.control_of]
-        else:
-            if FAMILIES[candidate.family].fit is None:
-                say(f"tuning {candidate.name} ({len(tuned_units)} x {settings.study.trials} trials)")
-            tunings[candidate.name] = {
-                unit: tune(candidate, settings, unit, sampler_seed, run, say, configured(candidate)) for unit in tuned_units
-            }
-        chosen = {unit: tunings[candidate.name][unit if unit in tunings[candidate.name] else 0].chosen for unit in settings.units}
-        say(f"evaluating {candidate.name} on {len(settings.units)} folds x {settings.study.seeds} seeds")
-        tables.append(evaluate(candidate, chosen, settings, run))
-    return pd.concat(tables, ignore_index=True), tunings
+        source = candidate.name if candidate in own else candidate.control_of
+        tunings[candidate.name] = {unit: found[source, unit] for unit in tuned_units}
+    chosen = {name: {unit: per_unit[unit if unit in per_unit else 0].chosen for unit in settings.units}
+              for name, per_unit in tunings.items()}
+    say(f"evaluating {len(settings.candidates)} candidates on {len(settings.units)} folds x {settings.study.seeds} seeds")
+    return evaluate_all(chosen, settings, run), tunings
 
 
 def expected_best(values: list[float | None], higher_is_better: bool = True) -> np.ndarray:

@@ -14,13 +14,14 @@ from hydra import compose, initialize_config_dir
 from omegaconf import DictConfig, OmegaConf
 
 from shiftbench import decision_plots
+from shiftbench.batch import BatchRunner, is_launcher_override
 from shiftbench.config_store import register_defaults
 from shiftbench.decision import Candidate, Settings, read_settings
 from shiftbench.decision_protocol import Tuning, expected_best, run_protocol
-from shiftbench.job import run_job
 from shiftbench.preflight import preflight
 from shiftbench.records import write_atomic
 from shiftbench.registry import TASKS, Task
+from shiftbench.runtime import available_cores
 from shiftbench.statistics import rank_test
 from shiftbench.verdict import usable_units, verdict, write_verdict
 
@@ -38,12 +39,14 @@ def split_arguments(arguments: list[str]) -> tuple[list[str], list[str], list[st
 def run_study(arguments: list[str], config_dir: Path, say=print) -> str:
     """Run the decision study for ``arguments`` and return the verdicts as markdown."""
     own, datasets, common = split_arguments(arguments)
+    launcher = [argument for argument in common if is_launcher_override(argument)]
+    common = [argument for argument in common if not is_launcher_override(argument)]
     register_defaults()
     task = next((a.split("=", 1)[1] for a in reversed(common) if a.startswith("task=")), "classification")
     per_node = ["arch.readout=node"] if task in TASKS and TASKS[task].head == "nodes" else []
     for dataset in datasets:  # every dataset with the default candidates' families, before any job
-        preflight([f"data={dataset}", *common, "arch=fc"], config_dir)
-        preflight([f"data={dataset}", *common, "arch=graph_conv", *per_node], config_dir)
+        preflight([f"data={dataset}", *common, *launcher, "arch=fc"], config_dir)
+        preflight([f"data={dataset}", *common, *launcher, "arch=graph_conv", *per_node], config_dir)
     with initialize_config_dir(str(config_dir.resolve()), version_base="1.3", job_name="shiftbench"):
         def composed(overrides: list[str]) -> DictConfig:
             config = compose("config", overrides=overrides)
@@ -59,7 +62,9 @@ def run_study(arguments: list[str], config_dir: Path, say=print) -> str:
         outputs, scores = [], {}
         for dataset in datasets:
             folder = results_dir / settings.study.folder / dataset if len(datasets) > 1 else results_dir / settings.study.folder
-            markdown, means = run_one(dataset, common, settings, folder, composed, say)
+            runner = BatchRunner(launcher, folder)
+            warn_oversubscribed(runner, composed([f"data={dataset}", *common]).threads, say)
+            markdown, means = run_one(dataset, common, settings, folder, composed, runner, say)
             outputs.append(markdown)
             scores[dataset] = means
     if len(datasets) > 1:
@@ -92,23 +97,31 @@ def protocol_text(settings: Settings) -> str:
     return f"{tuning}; {folds}; {controls}; the folds are drawn over all samples (a dataset's own split, if it has one, is not kept)."
 
 
-def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, composed, say) -> tuple[str, dict]:
-    """Tune, evaluate and judge every candidate on one dataset; write the study's files into
-    ``folder``. Returns the verdict markdown and the mean test figure per candidate."""
-    started = time.perf_counter()
-    counts = {"jobs": 0}
+def warn_oversubscribed(runner: BatchRunner, threads: int, say) -> None:
+    """One line when the parallel jobs' threads ask for more cores than there are."""
+    cores = available_cores()
+    if runner.workers * threads > cores:
+        say(f"warning: hydra.launcher.n_jobs={runner.workers} x threads={threads} is {runner.workers * threads} threads "
+            f"on {cores} cores; the jobs will slow each other down")
 
-    def run(lines: list[str]) -> dict[str, Any]:
-        overrides = [f"data={dataset}", *common, *lines]
-        counts["jobs"] += 1
-        return run_job(composed(overrides), folder, overrides, live=False, quiet=True)
+
+def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, composed, runner: BatchRunner, say) -> tuple[str, dict]:
+    """Tune, evaluate and judge every candidate on one dataset, its jobs handed to ``runner`` a
+    batch at a time; write the study's files into ``folder``. Returns the verdict markdown and
+    the mean test figure per candidate."""
+    started = time.perf_counter()
+    first_job = runner.jobs
+
+    def run(batch: list[list[str]]) -> list[dict[str, Any]]:
+        return runner([[f"data={dataset}", *common, *lines] for lines in batch])
 
     def configured(candidate: Candidate) -> DictConfig:
         return composed([f"data={dataset}", *common, *candidate.overrides])
 
     study = settings.study
     say(f"decision study on {dataset}: {len(settings.candidates)} candidates (controls included), {study.protocol} protocol, "
-        f"{study.trials} trials a tuning, {study.splits} folds x {study.repetitions} repetitions x {study.seeds} seeds")
+        f"{study.trials} trials a tuning, {study.splits} folds x {study.repetitions} repetitions x {study.seeds} seeds; "
+        f"jobs through hydra/launcher {runner.name} with {runner.workers} worker{'s' * (runner.workers > 1)}")
     units, tunings = run_protocol(settings, study.sampler_seed, run, say, configured)
     result = verdict(units, settings.candidates, study, settings.task, settings.uncontrolled)
     curves = tuning_curves(tunings, settings)
@@ -122,6 +135,7 @@ def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, c
         tuning={name: tuning_summary(per_unit, settings.task) for name, per_unit in tunings.items()},
         failed_trials=sum(tuning.failed for per_unit in tunings.values() for tuning in per_unit.values()),
         tuning_notes=notes,
+        launcher=runner.name, workers=runner.workers,
         minutes=(time.perf_counter() - started) / 60,
     )
     buffer = io.StringIO()
@@ -136,7 +150,7 @@ def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, c
     markdown = write_verdict(result, folder)
     extra = [f"![{figure.stem.replace('_', ' ')}]({figure.name})" for figure in figures]
     write_atomic(folder / "verdict.md", markdown + "\n" + candidates_table(units, settings.task) + "\n" + "\n\n".join(extra) + "\n")
-    say(f"{counts['jobs']} jobs (done ones skipped) in {result['minutes']:.1f} min; failed trials: {result['failed_trials']}")
+    say(f"{runner.jobs - first_job} jobs (done ones skipped) in {result['minutes']:.1f} min; failed trials: {result['failed_trials']}")
     # Scores for the rank test across datasets: larger is better.
     sign = 1.0 if settings.task.higher_is_better else -1.0
     return markdown, {name: sign * value for name, value in result[f"mean_test_{metric}"].items() if value is not None}

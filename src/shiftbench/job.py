@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import contextlib
 import io
-import resource
 import traceback
 from collections.abc import Callable
 from dataclasses import dataclass, field
@@ -35,7 +34,7 @@ from shiftbench.records import (
     FINAL_STATUSES, Record, config_hash, versions, write_curve, write_predictions, write_record, write_weights,
 )
 from shiftbench.registry import FAMILIES, TASKS
-from shiftbench.runtime import available_memory_bytes
+from shiftbench.runtime import available_memory_bytes, peak_memory_mb, start_peak_memory
 from shiftbench.store import claim, clear_torn_writes, finished_record, home_of, note_launch, release, set_aside, touch_claim
 from shiftbench.training import Checkpointing, TrainingDiverged, TrainingResult, seed_everything, train
 
@@ -244,7 +243,7 @@ def execute(run: RunConfig, record: Record, home: Path, live: bool, label: str =
 def finish(record: Record, home: Path, outputs: JobOutputs) -> Path:
     """Write the curve, predictions, weights and, last, the record into the job's home; a
     finished job leaves no checkpoint."""
-    record.peak_rss_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    record.peak_rss_mb = peak_memory_mb()
     record.torch_threads = torch.get_num_threads()
     record.versions = versions()
     record.finished = datetime.now(timezone.utc).isoformat(timespec="seconds")
@@ -298,6 +297,7 @@ def run_job(
         if run.force and (aside := set_aside(home)) is not None:
             print(f"force: the earlier record is kept in {aside}", flush=True)
         record = new_record(run, plain, digest, overrides)
+        record.peak_rss_scope = start_peak_memory()
         with contextlib.redirect_stdout(io.StringIO()) if quiet else contextlib.nullcontext():
             outputs = execute(run, record, home, live, label, in_sweep=launch is not None)
         finish(record, home, outputs)

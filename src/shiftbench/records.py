@@ -125,6 +125,7 @@ class Record:
     samples_per_second: float | None = None
     inference_seconds_per_sample: float | None = None
     peak_rss_mb: float | None = None
+    peak_rss_scope: str | None = None
     torch_threads: int | None = None
     versions: dict[str, str | None] = field(default_factory=dict)
     finished: str | None = None

@@ -63,3 +63,36 @@ def process_alive(pid: int) -> bool:
     except PermissionError:
         return True
     return True
+
+
+def start_peak_memory() -> str:
+    """Make the process's peak resident memory start afresh, so the next reading is one job's
+    peak: free heap memory kept from earlier jobs is handed back (glibc ``malloc_trim``), then
+    the kernel's high-water mark is reset to the current resident size (writing 5 to
+    ``/proc/self/clear_refs``, Linux 4.0+). Returns ``"job"`` where the reset took effect, else
+    ``"process"`` (the reading is the process's high-water mark, which may be an earlier job's)."""
+    name = ctypes.util.find_library("c")
+    if name is not None:
+        try:
+            ctypes.CDLL(name).malloc_trim(0)
+        except (OSError, AttributeError):
+            pass
+    try:
+        Path("/proc/self/clear_refs").write_text("5")
+    except OSError:
+        return "process"
+    return "job"
+
+
+def peak_memory_mb() -> float:
+    """The peak resident memory in MiB since :func:`start_peak_memory` (``VmHWM``), or the
+    process's high-water mark where ``/proc`` has no status."""
+    try:
+        for line in Path("/proc/self/status").read_text().splitlines():
+            if line.startswith("VmHWM:"):
+                return int(line.split()[1]) / 1024
+    except OSError:
+        pass
+    import resource
+
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024

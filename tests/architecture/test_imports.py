@@ -40,6 +40,7 @@ STAGES = {
     "shiftbench.report": 9,
     "shiftbench.export": 9,
     "shiftbench.sweep_progress": 9,
+    "shiftbench.batch": 9,
     "shiftbench.preflight": 9,
     "shiftbench.command_help": 9,
     "shiftbench.claims": 10,

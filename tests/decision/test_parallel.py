@@ -1,0 +1,55 @@
+"""The decision study's jobs through the launchers a sweep uses: the same figures bit for bit
+with parallel workers, and two studies on one results folder train each config once."""
+
+import json
+import subprocess
+import sys
+from collections import Counter
+from pathlib import Path
+
+import pandas as pd
+import pytest
+
+from shiftbench.cli import CONFIG_DIR
+from shiftbench.decision_study import run_study
+from shiftbench.errors import ConfigError
+from tests.decision.test_study import FC_VS_QDA, SMALL, planted_file
+
+FIGURES = ["candidate", "split", "seed", "test_accuracy", "val_accuracy", "parameters"]
+
+
+def study(tmp_path: Path, data: Path, *launcher: str) -> pd.DataFrame:
+    arguments = [f"results_dir={tmp_path}", "data=file", f"data.path={data}", *SMALL, FC_VS_QDA, *launcher]
+    run_study(arguments, CONFIG_DIR, say=lambda line: None)
+    return pd.read_csv(tmp_path / "decision" / "units.csv")
+
+
+def test_two_joblib_workers_give_the_figures_of_one_process_bit_for_bit(tmp_path):
+    # Every job computes on one torch thread wherever it runs, and each tuning asks and tells in
+    # the same order however many jobs run at once.
+    data = planted_file(tmp_path / "data.npz")
+    alone = study(tmp_path / "basic", data)
+    parallel = study(tmp_path / "joblib", data, "hydra/launcher=joblib", "hydra.launcher.n_jobs=2")
+    pd.testing.assert_frame_equal(alone[FIGURES], parallel[FIGURES])
+    written = json.loads((tmp_path / "joblib" / "decision" / "verdict.json").read_text())
+    assert (written["launcher"], written["workers"]) == ("JoblibLauncher", 2)
+
+
+def test_two_studies_on_one_results_folder_train_each_config_once(tmp_path):
+    data = planted_file(tmp_path / "data.npz")
+    command = [str(Path(sys.executable).with_name("shiftbench-decide")), f"results_dir={tmp_path / 'shared'}", "data=file",
+               f"data.path={data}", *SMALL, FC_VS_QDA]
+    studies = [subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True) for _ in range(2)]
+    outputs = [process.communicate(timeout=300) for process in studies]
+    assert [process.returncode for process in studies] == [0, 0], outputs
+    launches = [json.loads(line) for line in (tmp_path / "shared" / "decision" / "jobs.jsonl").read_text().splitlines()]
+    trained = Counter(entry["config_hash"] for entry in launches if entry["outcome"] == "trained")
+    assert trained and max(trained.values()) == 1
+    assert set(trained) == {entry["config_hash"] for entry in launches}  # every config trained, by one of the two
+    assert outputs[0][0].split("# Verdict")[1] == outputs[1][0].split("# Verdict")[1]
+
+
+def test_a_launcher_that_does_not_exist_is_refused_before_any_job(tmp_path):
+    with pytest.raises(ConfigError, match="hydra/launcher='nope' is not accepted; accepted: one of basic, joblib"):
+        run_study([f"results_dir={tmp_path}", "hydra/launcher=nope"], CONFIG_DIR)
+    assert not (tmp_path / "store").exists()
