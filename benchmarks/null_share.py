@@ -92,6 +92,8 @@ def main(argv: list[str] | None = None) -> None:
         "machine": {key: facts[key] for key in ("cpu", "cores", "torch")},
         "study": STUDY, "draws": draws, "wall_seconds": wall,
         "share_adds_corrected": corrected, "share_adds_plain": plain, "alpha": draws[0]["alpha"],
+        "size_corrected": sum(draw["p"] < draw["alpha"] for draw in draws) / len(draws),
+        "size_plain": sum(draw["t_p"] < draw["alpha"] for draw in draws) / len(draws),
     }
     arguments.out.mkdir(parents=True, exist_ok=True)
     write_atomic(arguments.out / "null_share.json", json.dumps(figures, indent=1) + "\n")
@@ -108,6 +110,14 @@ def main(argv: list[str] | None = None) -> None:
         "| --- | ---: | ---: | ---: |",
         f"| corrected resampled t (the verdict's) | {corrected:.2f} | {binomial_upper(corrected, len(draws)):.2f} | {figures['alpha']} |",
         f"| plain paired t, same rule, same units | {plain:.2f} | {binomial_upper(plain, len(draws)):.2f} | {figures['alpha']} |",
+        "",
+        "The tests alone, without the ROPE (share of draws with p < alpha, either sign: each test's size, which "
+        "should not exceed alpha):",
+        "",
+        "| test | share with p < alpha | 95% upper bound |",
+        "| --- | ---: | ---: |",
+        *(f"| {name} | {share:.2f} | {binomial_upper(share, len(draws)):.2f} |" for name, share in (
+            ("corrected resampled t", figures["size_corrected"]), ("plain paired t", figures["size_plain"]))),
         "",
         "The verdict's outcomes: " + ", ".join(f"{name.replace('_', ' ')} {count}" for name, count in outcomes.items()) + ".",
         "",

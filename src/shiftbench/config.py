@@ -71,6 +71,13 @@ def declared(check: Check, default: Any = MISSING, default_factory: Any = MISSIN
     return field(default=default, default_factory=default_factory, metadata={"check": check})
 
 
+def input_file(check: Check | None = None) -> Any:
+    """A field naming a file the job reads (empty: none): its content, not only its name, goes
+    into the job's hash (``shiftbench.input_files``)."""
+    metadata = {"reads_file": True} if check is None else {"reads_file": True, "check": check}
+    return field(default="", metadata=metadata)
+
+
 def finite(value: Any) -> bool:
     """A number other than NaN and the infinities (``inf`` passes every ``>=`` bound)."""
     return isinstance(value, (int, float)) and math.isfinite(value)

@@ -21,11 +21,12 @@ import numpy as np
 import torch
 from omegaconf import DictConfig
 
-from shiftbench.cache import shared
+from shiftbench.cache import Built, shared
 from shiftbench.checkpoints import remove_checkpoint
-from shiftbench.config import ConfigError, RunConfig, as_plain_dict, check_graph_fits, validate
+from shiftbench.config import ConfigError, RunConfig, check_graph_fits, validate
 from shiftbench.data import Dataset, load_dataset
 from shiftbench.graphs import Graph, build_graph, operator_matrix, shift_operator
+from shiftbench.input_files import input_digests, job_content
 from shiftbench.models import build_model, count_parameters
 from shiftbench.models.budget import fit_budget, width_key
 from shiftbench.models.parameters import require_memory_for
@@ -42,10 +43,17 @@ if TYPE_CHECKING:
     import pandas as pd
 
 
+def shared_for(run: RunConfig, what: str, configs: tuple[Any, ...], build: Callable[[], Built]) -> Built:
+    """``build()``'s result shared by the jobs of this process with the same ``configs``, split
+    and input files (by content: a file changed between two jobs is read again)."""
+    files = ",".join(f"{key}={digest}" for key, digest in input_digests(run).items())
+    return shared(f"{what}/{run.folds}folds/split{run.split}/{files}", configs, build)
+
+
 def load_data(run: RunConfig) -> Dataset:
     """The run's dataset under its split, shared by the jobs of this process; a one-line error
     when its targets are not what the run's task learns (a user's file of another kind)."""
-    dataset = shared(f"dataset/{run.folds}folds/split{run.split}", (run.data,), lambda: load_dataset(run.data, run.split, run.folds))
+    dataset = shared_for(run, "dataset", (run.data,), lambda: load_dataset(run.data, run.split, run.folds))
     task = TASKS[run.task]
     if not task.fits(dataset.labels, dataset.nodes):
         where = f"data.path={run.data.path!r}" if run.data.source == "file" else f"data={run.data.source}"
@@ -108,12 +116,12 @@ def fit_family(
     shift = None
     if family.uses_graph:
         key = (run.data, run.graph)
-        graph = shared(f"graph/{run.folds}folds/split{run.split}", key, lambda: build_graph(run.graph, dataset))
+        graph = shared_for(run, "graph", key, lambda: build_graph(run.graph, dataset))
         record.graph_name = graph.name
         record.graph_notes = graph_notes(graph)
         for note in record.graph_notes:
             print(f"note: graph {record.graph}: {note}", flush=True)
-        shift = shared(f"shift/{run.folds}folds/split{run.split}", key, lambda: shift_operator(graph, run.graph.operator, run.graph.scale))
+        shift = shared_for(run, "shift", key, lambda: shift_operator(graph, run.graph.operator, run.graph.scale))
     arch, head = run.arch, TASKS[run.task].head
     if getattr(arch, "budget", None) is not None:
         record.budget = arch.budget
@@ -271,7 +279,7 @@ def run_job(
     sweep's ``job 3``) starts the job's epoch lines.
     """
     run = validate(config)
-    plain = as_plain_dict(run)
+    plain = job_content(run)
     digest = config_hash(plain)
     home = home_of(Path(run.results_dir), digest)
 

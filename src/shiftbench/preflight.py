@@ -20,7 +20,8 @@ from hydra.errors import HydraException, MissingConfigException
 from omegaconf import DictConfig, OmegaConf
 from omegaconf.errors import OmegaConfBaseException
 
-from shiftbench.config import ConfigError, as_plain_dict, require_inside, validate
+from shiftbench.config import ConfigError, require_inside, validate
+from shiftbench.input_files import job_content
 from shiftbench.config_store import register_defaults
 from shiftbench.job import check_inputs
 from shiftbench.records import config_hash
@@ -176,7 +177,7 @@ def _validate(config: DictConfig) -> str:
     run = validate(job)
     require_writable_folder(Path(run.results_dir))
     check_inputs(run)
-    return config_hash(as_plain_dict(run))
+    return config_hash(job_content(run))
 
 
 def require_writable_folder(folder: Path) -> None:

@@ -18,6 +18,7 @@ STAGES = {
     "shiftbench.runtime": 1,
     "shiftbench.cache": 1,
     "shiftbench.records": 1,
+    "shiftbench.input_files": 1,
     "shiftbench.task": 2,
     "shiftbench.graphs.graph": 2,
     "shiftbench.graphs.standard": 2,

@@ -32,7 +32,7 @@ import torch
 from shiftbench.csv_input import read_user_csv
 from shiftbench.data.dataset import Dataset, Splits, keyword_loader
 from shiftbench.data.labels import encode_labels
-from shiftbench.config import Check, declared
+from shiftbench.config import Check, input_file
 from shiftbench.data.splits import RandomSplitConfig, random_splits, stratified_splits
 from shiftbench.errors import file_error
 from shiftbench.npz_input import require_fits_in_memory
@@ -356,8 +356,8 @@ class FileDataConfig(RandomSplitConfig):
     native graph; empty: the line graph in column order)."""
 
     source: str = "file"
-    path: str = declared(Check(lambda value: value != "", "the path of a .npz or .csv file (data.path=...)"), "")
-    graph: str = ""
+    path: str = input_file(Check(lambda value: value != "", "the path of a .npz or .csv file (data.path=...)"))
+    graph: str = input_file()
 
 
 DATASETS.add(DatasetSource(

@@ -28,7 +28,7 @@ import numpy as np
 import scipy.sparse as sp
 import torch
 
-from shiftbench.config import Check, declared
+from shiftbench.config import Check, input_file
 from shiftbench.csv_input import read_user_csv
 from shiftbench.errors import file_error
 from shiftbench.graphs.graph import Graph
@@ -164,7 +164,7 @@ class FileGraphConfig(GraphConfig):
     """The user's graph file (edge-list .csv, scipy .npz, .graphml, .gml)."""
 
     source: str = "file"
-    path: str = declared(Check(lambda value: value != "", "the path of a graph file (graph.path=...)"), "")
+    path: str = input_file(Check(lambda value: value != "", "the path of a graph file (graph.path=...)"))
 
 
 GRAPH_SOURCES.add(
