@@ -255,3 +255,70 @@ def test_a_small_job_after_a_large_allocation_records_its_own_peak_memory(small_
     record = run_job(small_config("arch=fc"), None, [], live=False)
     assert record["peak_rss_scope"] == "job"
     assert record["peak_rss_mb"] < peak_before - 300
+
+
+def stale_claim_test_target(small_config, tmp_path, seed):
+    from shiftbench.config import validate
+    from shiftbench.input_files import job_content
+    from shiftbench.records import config_hash
+
+    config = small_config(f"seed={seed}")
+    target = tmp_path / "store" / config_hash(job_content(validate(config)))
+    target.mkdir(parents=True)
+    return config, target
+
+
+def test_a_claim_whose_pid_now_names_another_process_is_taken_over(small_config, tmp_path):
+    # proc(5): a pid is reused; with its start time (field 22 of /proc/PID/stat) it names one process.
+    import os
+    import socket
+
+    from shiftbench.runtime import process_start
+
+    if process_start(os.getppid()) is None:
+        pytest.skip("needs /proc to read a process's start time")
+    config, target = stale_claim_test_target(small_config, tmp_path, seed=9)
+    claimant = {"host": socket.gethostname(), "pid": os.getppid(), "started": process_start(os.getppid()) + 1, "since": "then"}
+    (target / "claim").write_text(json.dumps(claimant))
+    record = run_job(config, None, [], live=False)
+    assert record["status"] == "completed" and not (target / "claim").exists()
+
+
+def test_a_claim_nobody_touched_for_the_limit_is_taken_over_even_from_a_live_pid(small_config, tmp_path):
+    import os
+    import socket
+    import time
+
+    from shiftbench.store import STALE_CLAIM_SECONDS
+
+    config, target = stale_claim_test_target(small_config, tmp_path, seed=10)
+    (target / "claim").write_text(json.dumps({"host": socket.gethostname(), "pid": os.getppid(), "since": "then"}))
+    long_ago = time.time() - STALE_CLAIM_SECONDS - 60
+    os.utime(target / "claim", (long_ago, long_ago))
+    record = run_job(config, None, [], live=False)
+    assert record["status"] == "completed"
+
+
+def test_a_live_claim_says_who_holds_it(small_config, tmp_path):
+    import os
+    import socket
+
+    config, target = stale_claim_test_target(small_config, tmp_path, seed=11)
+    (target / "claim").write_text(json.dumps({"host": socket.gethostname(), "pid": os.getppid(), "since": "now"}))
+    record = run_job(config, None, [], live=False)
+    assert record["status"] == "claimed" and record["holder"].startswith(f"pid {os.getppid()} on {socket.gethostname()}")
+
+
+def test_the_claim_is_touched_while_a_job_runs_however_long_its_epoch(tmp_path, monkeypatch):
+    import os
+    import time
+
+    from shiftbench import store
+
+    monkeypatch.setattr(store, "HEARTBEAT_SECONDS", 0.05)
+    (tmp_path / "claim").write_text("{}")
+    long_ago = time.time() - 3600
+    os.utime(tmp_path / "claim", (long_ago, long_ago))
+    with store.heartbeat(tmp_path):
+        time.sleep(0.3)
+    assert time.time() - (tmp_path / "claim").stat().st_mtime < 60

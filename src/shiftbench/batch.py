@@ -11,14 +11,17 @@ import logging
 import shutil
 import time
 from pathlib import Path
+from collections.abc import Callable
 from typing import Any
 
 from omegaconf import DictConfig
 
 from shiftbench.errors import ConfigError
 
-# How long to wait before asking again for a job another process is training.
+# How long to wait before asking again for a job another process is training, and between two
+# lines saying so.
 CLAIM_POLL_SECONDS = 2.0
+WAITING_LINE_SECONDS = 60.0
 
 
 def is_launcher_override(argument: str) -> bool:
@@ -48,7 +51,7 @@ class BatchRunner:
 
     Must be made inside Hydra's ``initialize_config_dir`` (it reads the config loader)."""
 
-    def __init__(self, launcher_overrides: list[str], folder: Path) -> None:
+    def __init__(self, launcher_overrides: list[str], folder: Path, say: Callable[[str], None] = print) -> None:
         from hydra._internal.callbacks import Callbacks
         from hydra.core.global_hydra import GlobalHydra
         from hydra.core.plugins import Plugins
@@ -71,13 +74,20 @@ class BatchRunner:
         self.name = config.hydra.launcher._target_.rsplit(".", 1)[-1]
         self.workers = int(config.hydra.launcher.get("n_jobs") or 1)
         self.jobs = 0
+        self.say = say
 
     def __call__(self, batch: list[list[str]]) -> list[dict[str, Any]]:
         """The records of ``batch``'s jobs, in order. A job another process has claimed is
         asked for again every few seconds until that process's record is there (or its claim
         went stale and this one trained it), so two studies on one results_dir share the work."""
         records = self.launch(batch)
+        told = 0.0
         while waiting := [index for index, record in enumerate(records) if record.get("status") == "claimed"]:
+            if time.monotonic() - told >= WAITING_LINE_SECONDS:
+                holders = sorted({str(records[index].get("holder")) for index in waiting})
+                self.say(f"waiting for {len(waiting)} job{'s' * (len(waiting) > 1)} another process is training "
+                         f"({'; '.join(holders)}); their records will be used")
+                told = time.monotonic()
             time.sleep(CLAIM_POLL_SECONDS)
             for index, record in zip(waiting, self.launch([batch[index] for index in waiting])):
                 records[index] = record

@@ -62,7 +62,7 @@ def run_study(arguments: list[str], config_dir: Path, say=print) -> str:
         outputs, scores = [], {}
         for dataset in datasets:
             folder = results_dir / settings.study.folder / dataset if len(datasets) > 1 else results_dir / settings.study.folder
-            runner = BatchRunner(launcher, folder)
+            runner = BatchRunner(launcher, folder, say)
             warn_oversubscribed(runner, composed([f"data={dataset}", *common]).threads, say)
             markdown, means = run_one(dataset, common, settings, folder, composed, runner, say)
             outputs.append(markdown)

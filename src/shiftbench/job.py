@@ -36,7 +36,7 @@ from shiftbench.records import (
 )
 from shiftbench.registry import FAMILIES, TASKS
 from shiftbench.runtime import available_memory_bytes, peak_memory_mb, start_peak_memory
-from shiftbench.store import claim, clear_torn_writes, finished_record, home_of, note_launch, release, set_aside, touch_claim
+from shiftbench.store import claim, clear_torn_writes, finished_record, heartbeat, home_of, note_launch, release, set_aside
 from shiftbench.training import Checkpointing, TrainingDiverged, TrainingResult, seed_everything, train
 
 if TYPE_CHECKING:
@@ -105,7 +105,7 @@ def structure(run: RunConfig) -> tuple[str, str]:
 
 def fit_family(
     run: RunConfig, dataset: Dataset, record: Record, live: bool, checkpointing: Checkpointing | None = None,
-    on_epoch: Callable[[dict[str, float]], None] | None = None, label: str = "",
+    label: str = "",
 ) -> TrainingResult:
     """Build and train the family ``run`` names on ``dataset`` (or fit a floor), noting in
     ``record`` what the record reports about the model: parameters, budget, graph notes."""
@@ -135,15 +135,9 @@ def fit_family(
     model = build_model(arch, dataset.nodes, dataset.features, dataset.classes, shift, head)
     record.parameters = count_parameters(model)
     progress = EpochProgress(run.train.epochs, live, label=label)
-
-    def each_epoch(row: dict[str, float]) -> None:
-        progress(row)
-        if on_epoch is not None:
-            on_epoch(row)
-
     try:
         return train(
-            model, dataset, run.train, run.seed, run.device, on_epoch=each_epoch, checkpointing=checkpointing,
+            model, dataset, run.train, run.seed, run.device, on_epoch=progress, checkpointing=checkpointing,
             task=TASKS[run.task],
         )
     finally:
@@ -217,7 +211,7 @@ def execute(run: RunConfig, record: Record, home: Path, live: bool, label: str =
         record.nodes = dataset.nodes
         record.data = dataset.name
         checkpointing = Checkpointing(home, run.train.checkpoint_every, record.config_hash)
-        result = fit_family(run, dataset, record, live, checkpointing, on_epoch=lambda row: touch_claim(home), label=label)
+        result = fit_family(run, dataset, record, live, checkpointing, label=label)
         if result.resumed_from_epoch is not None:
             record.resumed_from_epoch = result.resumed_from_epoch
             print(f"resumed at epoch {result.resumed_from_epoch} (the checkpoint holds epochs 1 to "
@@ -296,7 +290,7 @@ def run_job(
     holder = claim(home)
     if holder is not None:
         pending = new_record(run, plain, digest, overrides).as_dict()
-        return skip({**pending, "status": "claimed"}, "claimed", f"being trained by {holder}; its record will be in {home}")
+        return skip({**pending, "status": "claimed", "holder": holder}, "claimed", f"being trained by {holder}; its record will be in {home}")
     try:
         clear_torn_writes(home)
         done = None if run.force else finished_record(home)  # finished while we were claiming
@@ -306,7 +300,7 @@ def run_job(
             print(f"force: the earlier record is kept in {aside}", flush=True)
         record = new_record(run, plain, digest, overrides)
         record.peak_rss_scope = start_peak_memory()
-        with contextlib.redirect_stdout(io.StringIO()) if quiet else contextlib.nullcontext():
+        with heartbeat(home), contextlib.redirect_stdout(io.StringIO()) if quiet else contextlib.nullcontext():
             outputs = execute(run, record, home, live, label, in_sweep=launch is not None)
         finish(record, home, outputs)
     finally:

@@ -65,6 +65,18 @@ def process_alive(pid: int) -> bool:
     return True
 
 
+def process_start(pid: int) -> int | None:
+    """When process ``pid`` of this host started, in clock ticks since boot (field 22 of
+    ``/proc/PID/stat``, proc(5)): with the pid, it names one process, since pids are reused. None
+    where there is no such entry (the process is gone, or the system has no ``/proc``)."""
+    try:
+        text = Path(f"/proc/{pid}/stat").read_text()
+    except OSError:
+        return None
+    # The command name (field 2, in parentheses) may hold spaces; the fields after it are plain.
+    return int(text.rsplit(")", 1)[1].split()[19])
+
+
 def start_peak_memory() -> str:
     """Make the process's peak resident memory start afresh, so the next reading is one job's
     peak: free heap memory kept from earlier jobs is handed back (glibc ``malloc_trim``), then

@@ -14,11 +14,14 @@ processes from training one config all work on the home.
 
 from __future__ import annotations
 
+import contextlib
 import errno
 import json
 import os
 import socket
+import threading
 import time
+from collections.abc import Iterator
 from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any
@@ -27,14 +30,16 @@ from shiftbench.records import (
     CURVE_FILE, FINAL_STATUSES, MANIFEST_FILE, OLD_RECORD_FILE, PREDICTIONS_FILE, RECORD_FILE, SCHEMA_VERSION, WEIGHTS_FILE,
     config_hash, write_atomic, write_record,
 )
-from shiftbench.runtime import process_alive
+from shiftbench.runtime import process_alive, process_start
 
 STORE_FOLDER = "store"
 CLAIM_FILE = "claim"
 SUPERSEDED_FOLDER = "superseded"
-# A claim from another machine whose holder has not touched it for this long is taken as dead
-# (the holder touches it every epoch).
-STALE_CLAIM_SECONDS = 30 * 60
+# The holder of a claim touches it this often, from a thread, however long an epoch takes; a
+# claim nobody touched for STALE_CLAIM_SECONDS is taken as dead on any host (a holder killed
+# with its machine, or stopped, leaves one behind).
+HEARTBEAT_SECONDS = 30
+STALE_CLAIM_SECONDS = 10 * 60
 
 
 def home_of(results_dir: Path, config_hash: str) -> Path:
@@ -52,15 +57,21 @@ def finished_record(home: Path) -> dict[str, Any] | None:
 
 
 def _holder_alive(holder: dict[str, Any], claim: Path) -> bool:
-    if holder.get("host") == socket.gethostname():
-        try:
-            return process_alive(int(holder.get("pid", -1)))
-        except ValueError:
-            return False
+    """Whether the claim's holder may still be training: its heartbeat is recent and, on this
+    host, its process runs and is the one that claimed (same start time: a pid the system gave
+    to another process since does not hold the claim)."""
     try:
-        return time.time() - claim.stat().st_mtime < STALE_CLAIM_SECONDS
+        if time.time() - claim.stat().st_mtime >= STALE_CLAIM_SECONDS:
+            return False
     except FileNotFoundError:
         return False
+    if holder.get("host") != socket.gethostname():
+        return True
+    pid = holder.get("pid")
+    if not isinstance(pid, int) or isinstance(pid, bool) or not process_alive(pid):
+        return False
+    started, now = holder.get("started"), process_start(pid)
+    return started is None or now is None or started == now
 
 
 def clear_torn_writes(home: Path) -> int:
@@ -81,7 +92,8 @@ def claim(home: Path) -> str | None:
     """
     home.mkdir(parents=True, exist_ok=True)
     path = home / CLAIM_FILE
-    me = {"host": socket.gethostname(), "pid": os.getpid(), "since": datetime.now(timezone.utc).isoformat(timespec="seconds")}
+    me = {"host": socket.gethostname(), "pid": os.getpid(), "started": process_start(os.getpid()),
+          "since": datetime.now(timezone.utc).isoformat(timespec="seconds")}
     for _ in range(3):
         try:
             handle = os.open(path, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o644)
@@ -112,6 +124,26 @@ def touch_claim(home: Path) -> None:
         os.utime(home / CLAIM_FILE)
     except FileNotFoundError:
         pass
+
+
+@contextlib.contextmanager
+def heartbeat(home: Path) -> Iterator[None]:
+    """Touch the home's claim every :data:`HEARTBEAT_SECONDS` while the block runs (a daemon
+    thread), so that a live holder's claim never looks stale, however long one epoch or one
+    floor's fit takes."""
+    stop = threading.Event()
+
+    def beat() -> None:
+        while not stop.wait(HEARTBEAT_SECONDS):
+            touch_claim(home)
+
+    thread = threading.Thread(target=beat, name=f"claim heartbeat {home.name}", daemon=True)
+    thread.start()
+    try:
+        yield
+    finally:
+        stop.set()
+        thread.join()
 
 
 def release(home: Path) -> None:

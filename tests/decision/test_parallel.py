@@ -35,7 +35,7 @@ def test_two_joblib_workers_give_the_figures_of_one_process_bit_for_bit(tmp_path
     assert (written["launcher"], written["workers"]) == ("JoblibLauncher", 2)
 
 
-def test_two_studies_on_one_results_folder_train_each_config_once(tmp_path):
+def test_two_studies_on_one_results_folder_train_each_config_once_and_agree_with_one_alone(tmp_path):
     data = planted_file(tmp_path / "data.npz")
     command = [str(Path(sys.executable).with_name("shiftbench-decide")), f"results_dir={tmp_path / 'shared'}", "data=file",
                f"data.path={data}", *SMALL, FC_VS_QDA]
@@ -47,6 +47,8 @@ def test_two_studies_on_one_results_folder_train_each_config_once(tmp_path):
     assert trained and max(trained.values()) == 1
     assert set(trained) == {entry["config_hash"] for entry in launches}  # every config trained, by one of the two
     assert outputs[0][0].split("# Verdict")[1] == outputs[1][0].split("# Verdict")[1]
+    alone = study(tmp_path / "alone", data)  # the same study, uninterrupted and by itself
+    pd.testing.assert_frame_equal(pd.read_csv(tmp_path / "shared" / "decision" / "units.csv")[FIGURES], alone[FIGURES])
 
 
 def test_a_launcher_that_does_not_exist_is_refused_before_any_job(tmp_path):
