@@ -322,3 +322,20 @@ def test_the_claim_is_touched_while_a_job_runs_however_long_its_epoch(tmp_path, 
     with store.heartbeat(tmp_path):
         time.sleep(0.3)
     assert time.time() - (tmp_path / "claim").stat().st_mtime < 60
+
+
+def test_a_home_that_is_a_symbolic_link_is_refused_and_its_target_left_alone(small_config, tmp_path):
+    import os
+
+    from shiftbench.errors import ConfigError
+
+    config, target = stale_claim_test_target(small_config, tmp_path, seed=12)
+    target.rmdir()
+    elsewhere = tmp_path / "elsewhere"
+    elsewhere.mkdir()
+    (elsewhere / RECORD_FILE).write_text("keep me")
+    os.symlink(elsewhere, target)
+    with pytest.raises(ConfigError, match="the job's home is a symbolic link"):
+        run_job(config, None, [], live=False)
+    assert sorted(path.name for path in elsewhere.iterdir()) == [RECORD_FILE]
+    assert (elsewhere / RECORD_FILE).read_text() == "keep me"

@@ -23,7 +23,7 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass, field, fields
-from pathlib import Path
+from pathlib import Path, PurePath
 from typing import Any
 
 from omegaconf import DictConfig, OmegaConf
@@ -79,12 +79,9 @@ class StudyConfig(Schema):
     rope: float = declared(Check(lambda value: 0 <= value < 1, "a number in [0, 1) (in the metric's units)"), 0.01)
     alpha: float = declared(FRACTION, 0.05)
     sampler_seed: int = declared(at_least(0), 0)
-    folder: str = "decision"
-
-    def check(self) -> None:
-        from shiftbench.config import require_inside
-
-        require_inside("decision.folder", self.folder)
+    folder: str = declared(Check(lambda value: isinstance(value, str) and value != "" and not PurePath(value).is_absolute()
+                                 and ".." not in PurePath(value).parts,
+                                 "a folder name under results_dir (relative, no '..')"), "decision")
 
 
 @dataclass

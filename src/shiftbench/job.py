@@ -36,7 +36,9 @@ from shiftbench.records import (
 )
 from shiftbench.registry import FAMILIES, TASKS
 from shiftbench.runtime import available_memory_bytes, peak_memory_mb, start_peak_memory
-from shiftbench.store import claim, clear_torn_writes, finished_record, heartbeat, home_of, note_launch, release, set_aside
+from shiftbench.store import (
+    claim, clear_torn_writes, finished_record, heartbeat, home_of, note_launch, release, require_plain_home, set_aside,
+)
 from shiftbench.training import Checkpointing, TrainingDiverged, TrainingResult, seed_everything, train
 
 if TYPE_CHECKING:
@@ -276,6 +278,7 @@ def run_job(
     plain = job_content(run)
     digest = config_hash(plain)
     home = home_of(Path(run.results_dir), digest)
+    require_plain_home(home)
 
     def skip(previous: dict[str, Any], outcome: str, why: str) -> dict[str, Any]:
         if launch is not None:

@@ -21,10 +21,11 @@ from omegaconf import DictConfig, OmegaConf
 from omegaconf.errors import OmegaConfBaseException
 
 from shiftbench.config import ConfigError, require_inside, validate
-from shiftbench.input_files import job_content
 from shiftbench.config_store import register_defaults
+from shiftbench.input_files import job_content
 from shiftbench.job import check_inputs
 from shiftbench.records import config_hash
+from shiftbench.store import home_of, require_plain_home
 from shiftbench.sweep_axes import add_study_axes, split_overrides
 
 # Hydra flags that take the next argument as their value.
@@ -177,7 +178,9 @@ def _validate(config: DictConfig) -> str:
     run = validate(job)
     require_writable_folder(Path(run.results_dir))
     check_inputs(run)
-    return config_hash(job_content(run))
+    digest = config_hash(job_content(run))
+    require_plain_home(home_of(Path(run.results_dir), digest))
+    return digest
 
 
 def require_writable_folder(folder: Path) -> None:

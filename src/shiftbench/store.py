@@ -26,6 +26,7 @@ from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any
 
+from shiftbench.errors import ConfigError
 from shiftbench.records import (
     CURVE_FILE, FINAL_STATUSES, MANIFEST_FILE, OLD_RECORD_FILE, PREDICTIONS_FILE, RECORD_FILE, SCHEMA_VERSION, WEIGHTS_FILE,
     config_hash, write_atomic, write_record,
@@ -44,6 +45,14 @@ STALE_CLAIM_SECONDS = 10 * 60
 
 def home_of(results_dir: Path, config_hash: str) -> Path:
     return Path(results_dir) / STORE_FOLDER / config_hash
+
+
+def require_plain_home(home: Path) -> None:
+    """A home must be a folder of the store, not a link: a link would have the job write its
+    record, weights and checkpoints wherever it points."""
+    if home.is_symlink():
+        raise ConfigError(f"{home}: the job's home is a symbolic link (to {os.readlink(home)}); accepted: a plain "
+                          "folder in the store (remove the link, and the job trains anew)")
 
 
 def finished_record(home: Path) -> dict[str, Any] | None:
