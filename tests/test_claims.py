@@ -161,3 +161,18 @@ def test_a_scrambled_native_graph_does_not_hold_on_trained_runs(tmp_path):
             run_job(composed(overrides), None, overrides, live=False, quiet=True)
     claim = claims.graph_matters(load_records([tmp_path / "runs"]))
     assert claim.verdict == "does_not_hold", claim.evidence
+
+
+def test_line_graph_equivalence_on_a_test_split_without_targets_is_not_enough_evidence():
+    # NaN figures compare unequal to themselves (IEEE 754), so they cannot show a disagreement either.
+    import dataclasses
+
+    from shiftbench.data.sensor_dynamics import sensor_forecast
+    from shiftbench.registry import TASKS
+
+    dataset = sensor_forecast(nodes=12, samples=80)
+    labels = dataset.labels.copy()
+    labels[dataset.splits.test] = np.nan
+    claim = claims.line_graph_equivalence(dataclasses.replace(dataset, labels=labels), seeds=(0,), epochs=2,
+                                          task=TASKS["node_regression"])
+    assert claim.verdict == "not_enough_evidence" and "not finite" in claim.explanation

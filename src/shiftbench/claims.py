@@ -128,7 +128,11 @@ def line_graph_equivalence(
     transfer_holds = agrees(transfer) and agrees(cycle)
     parity_holds = all(run["max_train_loss_difference"] <= 1e-9 and run[f"max_val_{task.metric}_difference"] <= 1e-9
                        for run in parity)
-    if not transfer_holds:
+    figures = [value for run in transfer + cycle + parity for value in run.values()]
+    if not all(math.isfinite(value) for value in figures):
+        # A split without targets scores NaN, and NaN agrees with nothing, itself included.
+        verdict, why = "not_enough_evidence", "some figures are not finite (a split with no targets scores NaN)"
+    elif not transfer_holds:
         verdict, why = "does_not_hold", "the mapped networks disagree beyond float32 rounding"
     elif not parity_holds:
         verdict, why = "does_not_hold", "trained side by side in float64, the two networks' curves parted"

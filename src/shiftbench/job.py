@@ -63,7 +63,24 @@ def load_data(run: RunConfig) -> Dataset:
             f"task={run.task} is not accepted for {where}, whose targets have shape {dataset.labels.shape} "
             f"({dataset.labels.dtype}); accepted: a task that learns them, or {task.targets} for task={run.task}"
         )
+    require_targets_in_every_split(run, dataset)
     return dataset
+
+
+def target_entries(labels: np.ndarray) -> int:
+    """How many entries of ``labels`` are targets: not NaN (values), not -1 (classes on nodes).
+    Shapes: ``(samples,)``, ``(samples, nodes)`` or ``(samples[, nodes], outputs)``."""
+    return int(np.count_nonzero(~np.isnan(labels))) if labels.dtype.kind == "f" else int(np.count_nonzero(labels >= 0))
+
+
+def require_targets_in_every_split(run: RunConfig, dataset: Dataset) -> None:
+    """Each split that has samples must hold a target: a split without one trains on nothing or
+    scores NaN (a file whose test nodes are all -1, or whose mask is False on every test row)."""
+    for part, indices in (("train", dataset.splits.train), ("validation", dataset.splits.val), ("test", dataset.splits.test)):
+        if len(indices) and target_entries(dataset.labels[indices]) == 0:
+            where = f"data.path={run.data.path!r}" if run.data.source == "file" else f"data={run.data.source}"
+            raise ConfigError(f"{where}: the {part} split ({len(indices)} samples) holds no targets (every entry is "
+                              f"unmarked: -1 or NaN, or masked out); accepted: data with targets in every split")
 
 
 def check_inputs(run: RunConfig) -> None:

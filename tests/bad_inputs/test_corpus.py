@@ -81,3 +81,28 @@ def test_negative_weights_are_fine_for_the_adjacency():
 
     graph = Graph.from_adjacency(sp.csr_matrix(np.array([[0, -1.0], [-1.0, 0]])))
     assert operator_matrix(graph, "adjacency").nnz == 2
+
+
+def node_file_without_test_targets(path, kind):
+    """20 signals on 4 nodes, 12 train, 4 validation, 4 test, whose test rows hold no target."""
+    import numpy as np
+
+    rng = np.random.default_rng(0)
+    split = np.repeat([0, 1, 2], [12, 4, 4])
+    if kind == "node_classification":
+        targets = rng.integers(0, 2, size=(20, 4))
+        targets[split == 2] = -1
+        np.savez(path, signals=rng.standard_normal((20, 4)), node_labels=targets, split=split)
+    else:
+        mask = np.ones((20, 4), dtype=bool)
+        mask[split == 2] = False
+        np.savez(path, signals=rng.standard_normal((20, 4)), node_targets=rng.standard_normal((20, 4)), mask=mask, split=split)
+
+
+@pytest.mark.parametrize("task", ["node_classification", "node_regression"])
+def test_a_node_task_whose_test_split_holds_no_targets_is_refused_before_any_job(workspace, capsys, monkeypatch, task):
+    node_file_without_test_targets(workspace / "nodes.npz", task)
+    printed = refused(workspace, ["data=file", "data.path=nodes.npz", f"task={task}", "arch=graph_conv", "arch.readout=node"],
+                      capsys, monkeypatch)
+    assert printed == ("shiftbench: error: data.path='nodes.npz': the test split (4 samples) holds no targets (every "
+                       "entry is unmarked: -1 or NaN, or masked out); accepted: data with targets in every split\n")
