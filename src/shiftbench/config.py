@@ -284,15 +284,18 @@ def validate_group(group: str, node: Any) -> Any:
         which = f" ({group} {discriminator} {choice})" if discriminator else ""
         raise ConfigError(f"unknown key {group}.{error.key}{which}; accepted keys: {accepted}") from None
     except OmegaConfBaseException as error:
-        key = str(error.full_key or error.key)
-        wanted = _type_name(typing.get_type_hints(schema).get(key.split("[")[0]))
-        raise ConfigError(
-            f"{group}.{key}={error.value!r} has the wrong type; accepted: {wanted}"
-        ) from None
+        raise wrong_type(group, schema, error) from None
     try:
         return OmegaConf.to_object(merged)
     except ConfigError as error:
         raise ConfigError(f"{group}.{error}") from None
+
+
+def wrong_type(group: str, schema: type, error: OmegaConfBaseException) -> ConfigError:
+    """The one-line refusal of OmegaConf's type error merging a value into ``schema``'s field."""
+    key = str(error.full_key or error.key)
+    wanted = _type_name(typing.get_type_hints(schema).get(key.split("[")[0]))
+    return ConfigError(f"{group}.{key}={error.value!r} has the wrong type; accepted: {wanted}")
 
 
 def _type_name(annotation: Any) -> str:

@@ -27,8 +27,9 @@ from pathlib import Path, PurePath
 from typing import Any
 
 from omegaconf import DictConfig, OmegaConf
+from omegaconf.errors import OmegaConfBaseException
 
-from shiftbench.config import FRACTION, Check, Schema, at_least, declared, one_of, validate
+from shiftbench.config import FRACTION, Check, Schema, at_least, declared, one_of, validate, wrong_type
 from shiftbench.errors import ConfigError
 from shiftbench.registry import FAMILIES, TASKS, Task
 
@@ -154,7 +155,9 @@ def read_study(base: DictConfig, overrides: list[str]) -> StudyConfig:
         if "accepted" in str(error):
             raise ConfigError(f"decision.{error}" if not str(error).startswith("decision.") else str(error)) from None
         raise ConfigError(f"{error}; accepted keys: decision.{', decision.'.join(accepted_keys)}") from None
-    except Exception as error:  # OmegaConf's refusal of a wrong type
+    except OmegaConfBaseException as error:  # a wrong type
+        raise wrong_type("decision", StudyConfig, error) from None
+    except Exception as error:  # what OmegaConf's dotlist parser refuses
         raise ConfigError(f"{_first_line(error)}; accepted keys: decision.{', decision.'.join(accepted_keys)}") from None
 
 
@@ -182,6 +185,7 @@ def read_settings(settings_dir: Path, overrides: list[str], compose: Callable[[l
                 candidates.append(control)
         if FAMILIES[family].fit is None and family not in spaces:
             spaces[family] = search_space(settings_dir, entry.name, family, composed)
+            check_space_values(spaces[family], settings_dir / "search" / f"{family}.yaml", composed)
     if not candidates or not any(not c.uses_graph for c in candidates):
         raise ConfigError("decision.candidates must hold at least one graph-free candidate to compare against")
     if len(tasks) > 1:
@@ -236,6 +240,25 @@ def search_space(settings_dir: Path, name: str, family: str, composed: DictConfi
         if OmegaConf.select(composed, dimension.key, default="<absent>") == "<absent>":
             raise ConfigError(f"search space {path.name}: unknown key {dimension.key}; accepted: a key of the {family} job config")
     return space
+
+
+def check_space_values(space: list[Dimension], path: Path, composed: DictConfig) -> None:
+    """Every choice, and both ends of every range, validated in the candidate's composed config,
+    so a value its schema refuses (``arch.hidden: {choices: [[0]]}``) stops the study before the
+    first job instead of failing trials."""
+    import yaml
+
+    for dimension in space:
+        ends = [dimension.low, dimension.high] if not dimension.choices else []
+        values = dimension.choices or tuple(override_text(int(end) if dimension.integer else end) for end in ends)
+        for value in values:
+            trial = composed.copy()
+            OmegaConf.update(trial, dimension.key, yaml.safe_load(value), force_add=True)
+            try:
+                validate(trial)
+            except ConfigError as error:
+                named = str(error) if str(error).startswith(f"{dimension.key}=") else f"{dimension.key}={value}: {error}"
+                raise ConfigError(f"search space {path.name}: {named}") from None
 
 
 def node_task(composed: DictConfig) -> bool:

@@ -93,13 +93,14 @@ def check_inputs(run: RunConfig) -> None:
         # One feature and the configured classes: the least the job could need.
         classes = getattr(run.data, "classes", 2)
         require_memory_for(run.arch, nodes, 1, classes, run.train.batch_size, samples or 0, available_memory_bytes())
-    uses_graph_file = FAMILIES[run.arch.family].uses_graph and run.graph.source == "file"
-    if run.data.source != "file" and not uses_graph_file and not run.folds:
+    uses_graph = FAMILIES[run.arch.family].uses_graph
+    if run.data.source != "file" and not (uses_graph and run.graph.source == "file") and not run.folds:
         return
     dataset = load_data(run)
     check_graph_fits(run.graph, run.arch.family, dataset.nodes)
-    if uses_graph_file:
-        operator_matrix(build_graph(run.graph, dataset), run.graph.operator)
+    if uses_graph:  # the operator against the graph's weights (a Laplacian of negative weights)
+        graph = shared_for(run, "graph", (run.data, run.graph), lambda: build_graph(run.graph, dataset))
+        operator_matrix(graph, run.graph.operator)
 
 
 def graph_notes(graph: Graph) -> list[str]:

@@ -106,3 +106,13 @@ def test_a_node_task_whose_test_split_holds_no_targets_is_refused_before_any_job
                       capsys, monkeypatch)
     assert printed == ("shiftbench: error: data.path='nodes.npz': the test split (4 samples) holds no targets (every "
                        "entry is unmarked: -1 or NaN, or masked out); accepted: data with targets in every split\n")
+
+
+def test_an_operator_the_datas_own_graph_cannot_take_stops_a_sweep_before_its_first_job(workspace, capsys, monkeypatch):
+    # The graph a signal file carries (data.graph) is the native graph of every job that reads one.
+    (workspace / "negative.csv").write_text("source,target,weight\n0,1,-1\n1,2,1\n2,3,1\n3,4,1\n")
+    arguments = ["-m", "arch=fc,graph_conv", "data=file", "data.path=good.npz", "data.graph=negative.csv",
+                 "graph.operator=laplacian"]
+    assert refused(workspace, arguments, capsys, monkeypatch) == (
+        "shiftbench: error: graph.operator='laplacian' is not accepted for a graph with 1 negative edge weights; "
+        "accepted: adjacency or normalized_adjacency\n")

@@ -55,3 +55,29 @@ def test_a_launcher_that_does_not_exist_is_refused_before_any_job(tmp_path):
     with pytest.raises(ConfigError, match="hydra/launcher='nope' is not accepted; accepted: one of basic, joblib"):
         run_study([f"results_dir={tmp_path}", "hydra/launcher=nope"], CONFIG_DIR)
     assert not (tmp_path / "store").exists()
+
+
+def test_ctrl_c_in_the_study_is_one_line_and_status_130_and_the_rerun_goes_on(tmp_path):
+    # SIGINT restored in the child: a job started from a non-interactive shell inherits it ignored.
+    import os
+    import signal
+    import time
+
+    data = planted_file(tmp_path / "data.npz")
+    command = [str(Path(sys.executable).with_name("shiftbench-decide")), f"results_dir={tmp_path / 'cut'}", "data=file",
+               f"data.path={data}", *SMALL, FC_VS_QDA, "hydra/launcher=joblib", "hydra.launcher.n_jobs=2"]
+    process = subprocess.Popen(command, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True, start_new_session=True,
+                               preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
+    deadline = time.monotonic() + 120
+    while not list((tmp_path / "cut" / "store").glob("*/record.json")):
+        assert process.poll() is None and time.monotonic() < deadline, "the study ended before it could be cut"
+        time.sleep(0.05)
+    os.killpg(process.pid, signal.SIGINT)
+    _, stderr = process.communicate(timeout=60)
+    assert process.returncode == 130 and "Traceback" not in stderr
+    assert stderr.strip().splitlines() == [
+        "shiftbench-decide: interrupted; run the same command again to go on: finished jobs are kept and skipped, "
+        "an interrupted one resumes from its last checkpoint"]
+    rerun = subprocess.run(command, capture_output=True, text=True, timeout=300)
+    assert rerun.returncode == 0, rerun.stderr
+    assert (tmp_path / "cut" / "decision" / "verdict.md").is_file()

@@ -22,7 +22,8 @@ FC_VS_QDA = "decision.candidates=[{name: fc, overrides: [arch=fc]}, {name: qda, 
     ("decision.protocol=twice", "decision.protocol='twice' is not accepted; accepted: one of nested, tune_once"),
     ("decision.tuning_seeds=0", "decision.tuning_seeds=0 is not accepted; accepted: an integer >= 1"),
     ("decision.rope=nan", "decision.rope=nan is not accepted"),
-    ("decision.alpha=high", "decision.alpha"),
+    ("decision.alpha=high", "decision.alpha='high' has the wrong type; accepted: a number"),
+    ("decision.sampler_seed=x", "decision.sampler_seed='x' has the wrong type; accepted: an integer"),
     ("decision.sampler_seed=-1", "decision.sampler_seed=-1 is not accepted; accepted: an integer >= 0"),
     ("decision.folder=../elsewhere", "decision.folder='../elsewhere' is not accepted"),
     ("decision.folder=/tmp/elsewhere", "decision.folder='/tmp/elsewhere' is not accepted; accepted: a folder name under results_dir"),
@@ -137,3 +138,17 @@ def test_a_floor_that_fails_every_unit_is_named_and_left_out_not_a_traceback(tmp
     (qda,) = [entry for entry in result["candidates"] if entry["candidate"] == "qda"]
     assert qda["outcome"] == "missing_units" and "left out" in qda["sentence"] and "not full rank" in qda["sentence"]
     assert result["reference"] == "nearest"
+
+
+def test_a_search_space_choice_its_schema_refuses_stops_the_study_before_any_job(tmp_path):
+    import shutil
+
+    root = Path(CONFIG_DIR).parent
+    shutil.copytree(root / "configs", tmp_path / "configs")
+    shutil.copytree(root / "decision", tmp_path / "decision")
+    space = tmp_path / "decision" / "search" / "fc.yaml"
+    space.write_text(space.read_text().replace("arch.hidden: {choices: [[32], [64], [128], [64, 64]]}",
+                                               "arch.hidden: {choices: [[64], [0]]}"))
+    with pytest.raises(ConfigError, match=r"search space fc.yaml: arch.hidden=\[0\] is not accepted; accepted: a list of integers >= 1"):
+        run_study([f"results_dir={tmp_path / 'results'}", FC_VS_QDA], tmp_path / "configs")
+    assert not (tmp_path / "results" / "store").exists()
