@@ -339,3 +339,20 @@ def test_a_home_that_is_a_symbolic_link_is_refused_and_its_target_left_alone(sma
         run_job(config, None, [], live=False)
     assert sorted(path.name for path in elsewhere.iterdir()) == [RECORD_FILE]
     assert (elsewhere / RECORD_FILE).read_text() == "keep me"
+
+
+@pytest.mark.parametrize(("name", "make", "kind"), [
+    ("record.json", lambda path: path.mkdir(), "a folder"),
+    ("claim", lambda path: path.mkdir(), "a folder"),
+    ("claim", lambda path: path.symlink_to(path.parent / "gone"), "a symbolic link"),
+    ("weights.npz", lambda path: path.symlink_to("/etc/hostname"), "a symbolic link"),
+])
+def test_a_home_whose_files_are_folders_or_links_is_refused_in_one_line(small_config, tmp_path, name, make, kind):
+    from shiftbench.errors import ConfigError
+
+    config, target = stale_claim_test_target(small_config, tmp_path, seed=13)
+    make(target / name)
+    with pytest.raises(ConfigError, match=f"{name}: is {kind}; accepted: a plain file the job writes") as refused:
+        run_job(config, None, [], live=False)
+    assert "\n" not in str(refused.value)
+    assert not (target / RECORD_FILE).is_file()

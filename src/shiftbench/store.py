@@ -26,6 +26,7 @@ from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any
 
+from shiftbench.checkpoints import CHECKPOINT_FILE
 from shiftbench.errors import ConfigError
 from shiftbench.records import (
     CURVE_FILE, FINAL_STATUSES, MANIFEST_FILE, OLD_RECORD_FILE, PREDICTIONS_FILE, RECORD_FILE, SCHEMA_VERSION, WEIGHTS_FILE,
@@ -48,11 +49,17 @@ def home_of(results_dir: Path, config_hash: str) -> Path:
 
 
 def require_plain_home(home: Path) -> None:
-    """A home must be a folder of the store, not a link: a link would have the job write its
-    record, weights and checkpoints wherever it points."""
+    """A home must be a folder of the store, not a link, and the files a job writes there plain
+    files where they exist: a link would have the job write wherever it points, and a folder
+    in a file's place would stop the job after its training."""
     if home.is_symlink():
         raise ConfigError(f"{home}: the job's home is a symbolic link (to {os.readlink(home)}); accepted: a plain "
                           "folder in the store (remove the link, and the job trains anew)")
+    for name in (RECORD_FILE, CLAIM_FILE, CHECKPOINT_FILE, CURVE_FILE, PREDICTIONS_FILE, WEIGHTS_FILE):
+        path = home / name
+        if path.is_symlink() or (path.exists() and not path.is_file()):
+            kind = "a symbolic link" if path.is_symlink() else "a folder" if path.is_dir() else "not a regular file"
+            raise ConfigError(f"{path}: is {kind}; accepted: a plain file the job writes (remove it, and the job runs anew)")
 
 
 def finished_record(home: Path) -> dict[str, Any] | None:

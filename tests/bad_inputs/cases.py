@@ -172,6 +172,8 @@ CONFIG_CASES: list[tuple[list[str], str]] = [
 
 DATA_CASES: list[tuple[str, Writer, str]] = [
     ("missing.npz", None, "no such file; give the path of a .npz or .csv file"),
+    ("two_values.npz", npz(signals=GOOD_SIGNALS[:2], targets=RNG.standard_normal((2, 1))),
+     "has 2 samples; a train/val/test split needs at least 3 (or give a 'split' array)"),
     ("data.txt", text("1,2,3"), "has suffix '.txt'; accepted: .npz or .csv"),
     ("torn.npz", text("not a zip archive"), "cannot be read as .npz (not a zip archive); save it with numpy.savez"),
     ("empty.npz", text(""), "cannot be read as .npz (not a zip archive); save it with numpy.savez"),

@@ -267,19 +267,32 @@ def _check_positions(path: Path, positions: np.ndarray, nodes: int) -> np.ndarra
     return positions
 
 
-def _random_splits(path: Path, labels: np.ndarray, val_fraction: float, test_fraction: float, seed: int) -> Splits:
-    counts = np.bincount(labels)
-    smallest = int(counts.argmin())
-    if counts[smallest] < 3:
-        raise _fail(
-            path,
-            f"class {smallest} has {counts[smallest]} samples; each class needs at least 3 for a stratified "
-            "train/val/test split (or give a 'split' array)",
-        )
+def _random_splits(path: Path, labels: np.ndarray | None, samples: int, val_fraction: float, test_fraction: float,
+                   seed: int) -> Splits:
+    """Train/val/test parts drawn at random, stratified by class ``labels`` (None: targets without
+    classes); a file too small for three parts is refused in one line."""
+    if labels is not None:
+        counts = np.bincount(labels)
+        smallest = int(counts.argmin())
+        if counts[smallest] < 3:
+            raise _fail(
+                path,
+                f"class {smallest} has {counts[smallest]} samples; each class needs at least 3 for a stratified "
+                "train/val/test split (or give a 'split' array)",
+            )
+    elif samples < 3:
+        raise _fail(path, f"has {samples} samples; a train/val/test split needs at least 3 (or give a 'split' array)")
     try:
+        if labels is None:
+            return random_splits(samples, val_fraction, test_fraction, seed)
         return stratified_splits(labels, val_fraction, test_fraction, seed)
     except ValueError as error:
-        raise _fail(path, f"cannot split it stratified ({error}); raise data.val_fraction and data.test_fraction") from None
+        raise _fail(path, f"cannot split it ({_first_sentence(error)}); raise data.val_fraction and "
+                    "data.test_fraction, or give a 'split' array") from None
+
+
+def _first_sentence(error: Exception) -> str:
+    return str(error).split(". ")[0].rstrip(".")
 
 
 def outputs_of(kind: str, labels: np.ndarray) -> int:
@@ -329,10 +342,8 @@ def load_signal_file(
         labels = _check_node_targets(file, arrays["node_targets"], arrays.get("mask"), samples, nodes)
     if "split" in arrays:
         splits = _check_split(file, arrays["split"], labels)
-    elif kinds == ["labels"]:
-        splits = _random_splits(file, labels, val_fraction, test_fraction, seed)
     else:
-        splits = random_splits(samples, val_fraction, test_fraction, seed)
+        splits = _random_splits(file, labels if kinds == ["labels"] else None, samples, val_fraction, test_fraction, seed)
     positions = _check_positions(file, arrays["positions"], nodes) if "positions" in arrays else None
     native = replace(
         load_graph_file(graph, nodes, key="data.graph") if graph else replace(line_graph(nodes), name="column_order"),
