@@ -25,3 +25,14 @@ def test_each_record_becomes_a_run_whose_scalars_are_its_curve(small_config, tmp
         assert loss == pytest.approx(curve["train_loss"].tolist(), rel=1e-6)
         assert [event.step for event in events.Scalars("val/accuracy")] == curve["epoch"].tolist()
         assert events.Scalars("test/accuracy")[0].value == pytest.approx(record["test_accuracy"], rel=1e-6)
+
+
+def test_a_folder_without_records_is_refused_in_one_line_and_writes_nothing(tmp_path, capsys):
+    from shiftbench.cli import export_main
+
+    (tmp_path / "empty").mkdir()
+    with pytest.raises(SystemExit) as stopped:
+        export_main([str(tmp_path / "empty"), "--out", str(tmp_path / "runs")])
+    assert stopped.value.code == 2
+    assert capsys.readouterr().err.startswith(f"shiftbench-export: error: no records under {tmp_path / 'empty'}; accepted:")
+    assert not (tmp_path / "runs").exists()

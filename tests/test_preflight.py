@@ -102,3 +102,13 @@ def test_an_output_folder_that_leaves_through_an_interpolation_is_refused(monkey
     monkeypatch.setenv("SHIFTBENCH_TEST_ESCAPE", "../outside")
     with pytest.raises(ConfigError, match=r"hydra\.run\.dir='\.\./outside' is not accepted"):
         preflight(["hydra.run.dir=${oc.env:SHIFTBENCH_TEST_ESCAPE}"], CONFIG_DIR)
+
+
+def test_more_threads_than_cores_gets_a_note_not_a_refusal():
+    # Common practice, no source: compute threads beyond the cores contend instead of helping.
+    from shiftbench.runtime import available_cores
+
+    checked = preflight([f"threads={available_cores() + 1}"], CONFIG_DIR)
+    assert checked.notes == [f"note: threads={available_cores() + 1} is more than the {available_cores()} cores this "
+                             "process may use; torch's threads beyond them wait on each other and a job runs slower, "
+                             "not faster"]

@@ -147,7 +147,9 @@ def claims_main(arguments: list[str] | None = None) -> None:
     parser.add_argument("--seeds", type=int, default=3, help="seeds for the claims computed here (default 3)")
     options = parser.parse_args(arguments)
     if not options.path.is_dir():
-        parser.exit(2, f"shiftbench-claims: error: no such folder: {options.path}\n")
+        what = "is a file, not a folder" if options.path.exists() else "no such folder"
+        parser.exit(2, f"shiftbench-claims: error: {options.path}: {what}; accepted: a study folder (the claims "
+                       "study's launch folder or a results folder)\n")
     if options.seeds < 1:
         parser.exit(2, f"shiftbench-claims: error: --seeds {options.seeds} is not accepted; accepted: an integer >= 1\n")
     from shiftbench.claims_report import write_claims  # here, not at import: jobs do not need it
@@ -213,6 +215,9 @@ def export_main(arguments: list[str] | None = None) -> None:
         runs = export_tensorboard(options.paths, options.out)
     except ValueError as error:
         parser.exit(2, f"shiftbench-export: error: {error}\n")
+    if not runs:
+        parser.exit(2, f"shiftbench-export: error: no records under {' '.join(map(str, options.paths))}; accepted: "
+                       "launch folders, results folders or record.json files that hold records\n")
     print(f"wrote {len(runs)} TensorBoard runs into {options.out}; view them with: tensorboard --logdir {options.out}")
 
 

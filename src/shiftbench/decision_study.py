@@ -18,6 +18,7 @@ from shiftbench.batch import BatchRunner, is_launcher_override
 from shiftbench.config_store import register_defaults
 from shiftbench.decision import Candidate, Settings, read_settings
 from shiftbench.decision_protocol import Tuning, expected_best, run_protocol
+from shiftbench.errors import ConfigError
 from shiftbench.preflight import preflight
 from shiftbench.records import write_atomic
 from shiftbench.registry import TASKS, Task
@@ -32,6 +33,10 @@ def split_arguments(arguments: list[str]) -> tuple[list[str], list[str], list[st
     own = [a for a in arguments if a.startswith("decision.")]
     datasets = [a.split("=", 1)[1] for a in arguments if a.startswith("data=")]
     datasets = datasets[-1].split(",") if datasets else ["sensor_regimes"]
+    repeated = sorted({name for name in datasets if datasets.count(name) > 1})
+    if repeated:
+        raise ConfigError(f"data={','.join(datasets)}: {repeated[0]} is named twice; accepted: distinct datasets "
+                          "(the rank test compares datasets)")
     jobs = [a for a in arguments if not a.startswith(("decision.", "data="))]
     return own, datasets, jobs
 

@@ -25,6 +25,7 @@ from shiftbench.config_store import register_defaults
 from shiftbench.input_files import job_content
 from shiftbench.job import check_inputs
 from shiftbench.records import config_hash
+from shiftbench.runtime import available_cores
 from shiftbench.store import home_of, require_plain_home
 from shiftbench.sweep_axes import add_study_axes, split_overrides
 
@@ -103,6 +104,10 @@ def preflight(arguments: list[str], config_dir: Path) -> Checked:
                                   "path, or an interpolation that resolves") from None
             require_inside(f"hydra.{key}", folder)
         checked = Checked(1)
+        threads, cores = composed.threads, available_cores()
+        if isinstance(threads, int) and threads > cores:
+            checked.notes.append(f"note: threads={threads} is more than the {cores} cores this process may use; torch's "
+                                 "threads beyond them wait on each other and a job runs slower, not faster")
         for position, values in enumerate(axes.values()):
             seen = {first: values[0]}
             for value in values[1:]:

@@ -287,7 +287,10 @@ GRAPH_CASES: list[tuple[str, Writer, str]] = [
     ("outside.npz", npz(format=np.array(b"csr"), shape=np.array([5, 5]), data=np.ones(2), indices=np.array([1, 9]),
                         indptr=np.array([0, 1, 2, 2, 2, 2])),
      "holds a malformed sparse matrix (indices must be < 5); save a valid matrix with scipy.sparse.save_npz"),
-    ("nan_weight.graphml", graphml(nx.path_graph(5), weight=float("nan")), "holds weights that are not finite numbers"),
+    ("nan_weight.graphml", graphml(nx.path_graph(5), weight=float("nan")),
+     "holds weights that are not finite float32 numbers (NaN, infinite, or beyond ±3.4e38); accepted: finite weights"),
+    ("huge_weight.csv", text("source,target,weight\n0,1,1e39\n1,2,1\n2,3,1\n3,4,1\n"),
+     "holds weights that are not finite float32 numbers (NaN, infinite, or beyond ±3.4e38); accepted: finite weights"),
     ("malformed.npz", npz(format=np.array(b"csr"), shape=np.array([5, 5]), data=np.ones(3), indices=np.array([1, 2, 3]),
                           indptr=np.array([0, 2, 1, 3, 3, 3])),
      "holds a malformed sparse matrix (indptr must be a non-decreasing sequence); save a valid matrix with "

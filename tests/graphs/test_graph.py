@@ -39,6 +39,13 @@ def test_from_adjacency_sums_duplicate_entries():
     assert graph.edges == 1 and graph.edge_weight.item() == 3.0
 
 
+def test_edges_of_weight_zero_are_dropped_and_noted_apart_from_summed_duplicates():
+    # scipy.sparse: sum_duplicates merges repeated entries; eliminate_zeros removes stored zeros.
+    matrix = sp.coo_matrix(([0.0, 0.0, 1.0, 1.0], ([0, 1, 2, 2], [1, 0, 3, 3])), shape=(4, 4))
+    graph = Graph.from_adjacency(matrix)
+    assert graph.edges == 1 and graph.notes == ("1 duplicate edges summed", "2 edges of weight 0 dropped")
+
+
 def test_edge_index_outside_the_nodes_is_rejected():
     with pytest.raises(ValueError, match="outside 0..2"):
         Graph(nodes=3, edge_index=torch.tensor([[0], [3]]), edge_weight=torch.ones(1))

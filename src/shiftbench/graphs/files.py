@@ -155,7 +155,8 @@ def load_graph_file(path: str, nodes: int, key: str = "graph.path") -> Graph:
     if graph.nodes != nodes:
         raise fail(file, f"has {graph.nodes} nodes but the data has {nodes}; they must agree")
     if not torch.isfinite(graph.edge_weight).all():
-        raise fail(file, "holds weights that are not finite numbers")
+        raise fail(file, "holds weights that are not finite float32 numbers (NaN, infinite, or beyond ±3.4e38); "
+                   "accepted: finite weights")
     return replace(graph, name=file.name)
 
 

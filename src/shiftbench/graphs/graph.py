@@ -133,22 +133,27 @@ class Graph:
     ) -> Graph:
         """A graph from a square scipy sparse matrix read as ``A[target, source] = weight``.
 
-        Duplicate entries (possible in COO input) are summed and self-loops kept; both are noted.
+        Duplicate entries (possible in COO input) are summed, edges of weight 0 dropped and
+        self-loops kept; each is noted.
         """
         if matrix.shape[0] != matrix.shape[1]:
             raise ValueError(f"an adjacency must be square, got shape {matrix.shape}")
         coo = sp.coo_matrix(matrix)
         entries = coo.nnz
         coo.sum_duplicates()
+        summed = entries - coo.nnz
         coo.eliminate_zeros()
         notes = []
-        if coo.nnz < entries:
-            notes.append(f"{entries - coo.nnz} duplicate edges summed")
+        if summed:
+            notes.append(f"{summed} duplicate edges summed")
+        if entries - summed > coo.nnz:
+            notes.append(f"{entries - summed - coo.nnz} edges of weight 0 dropped")
         loops = int((coo.row == coo.col).sum())
         if loops:
             notes.append(f"{loops} self-loops kept")
         edge_index = torch.from_numpy(np.stack([coo.col, coo.row]).astype(np.int64))
-        edge_weight = torch.from_numpy(coo.data.astype(np.float32))
+        with np.errstate(over="ignore"):  # weights beyond float32 become infinite; the readers refuse them
+            edge_weight = torch.from_numpy(coo.data.astype(np.float32))
         return cls(
             nodes=int(matrix.shape[0]),
             edge_index=edge_index,
