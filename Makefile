@@ -15,7 +15,7 @@ $(BIN)/python:
 $(STAMP): pyproject.toml | $(BIN)/python
 	$(BIN)/python -m pip install --quiet --upgrade pip
 	$(BIN)/python -m pip install --quiet torch==2.13.0
-	$(BIN)/python -m pip install --quiet -e '.[dev,ucr,tracking]'
+	$(BIN)/python -m pip install --quiet -e '.[dev,ucr,tracking,regions]'
 	touch $(STAMP)
 
 setup: $(STAMP)

@@ -198,6 +198,42 @@ graph-free candidate, and does it beat itself on a degree-preserving rewiring of
 Writes verdict.md, verdict.json, units.csv and plots to results_dir/decision (decision.folder)."""
 
 
+def graph_check_main(arguments: list[str] | None = None) -> None:
+    """``shiftbench-graph-check [KEY=VALUE ...]``: do the signals live on the graph? (see
+    :mod:`shiftbench.graph_check`)."""
+    quiet_on_closed_pipe()
+    arguments = sys.argv[1:] if arguments is None else arguments
+    if any(a in ("-h", "--help") for a in arguments):
+        print(GRAPH_CHECK_HELP)
+        return
+    from shiftbench.graph_check import check_config
+
+    rewirings = [a for a in arguments if a.startswith("--rewirings=")]
+    arguments = [a for a in arguments if not a.startswith("--rewirings=")]
+    count = rewirings[-1].split("=", 1)[1] if rewirings else "99"
+    if not count.isdigit() or int(count) < 1:
+        fail(f"--rewirings={count} is not accepted; accepted: an integer >= 1")
+    try:
+        check, written = check_config(arguments, CONFIG_DIR, int(count))
+    except ConfigError as error:
+        fail(str(error))
+    print(written.read_text(), end="")
+    print(f"wrote {written} and {written.with_suffix('.json')}", file=sys.stderr)
+
+
+GRAPH_CHECK_HELP = """usage: shiftbench-graph-check [KEY=VALUE ...] [--rewirings=99]
+
+Before any training: are the signals smoother on the graph than on degree-preserving rewirings
+of it (Moran's I, Dirichlet energy), and do the classes differ in their graph-spectral content
+(band energies, cross-validated logistic regression) more on it than on rewirings?
+
+  data=NAME, data.*    the data, as for shiftbench (data=file data.path=... data.graph=...)
+  graph=NAME, graph.*  the graph to check (default: the data's native graph)
+  --rewirings=N        rewirings to compare with (default 99; the band-energy test uses 19)
+
+Writes results_dir/graph_check/<data>_<graph>.md and .json. A check, not a verdict."""
+
+
 def export_main(arguments: list[str] | None = None) -> None:
     """``shiftbench-export PATH... --out DIR``: records' curves as TensorBoard runs."""
     parser = argparse.ArgumentParser(

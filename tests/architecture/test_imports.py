@@ -42,6 +42,7 @@ STAGES = {
     "shiftbench.export": 9,
     "shiftbench.sweep_progress": 9,
     "shiftbench.batch": 9,
+    "shiftbench.graph_check": 9,
     "shiftbench.preflight": 9,
     "shiftbench.command_help": 9,
     "shiftbench.claims": 10,
