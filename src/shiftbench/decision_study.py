@@ -19,6 +19,7 @@ from shiftbench.config_store import register_defaults
 from shiftbench.decision import Candidate, Settings, read_settings
 from shiftbench.decision_protocol import Tuning, expected_best, run_protocol
 from shiftbench.errors import ConfigError
+from shiftbench.graph_check import GraphCheck, agreement_note, check_graph, summary
 from shiftbench.preflight import preflight
 from shiftbench.records import write_atomic
 from shiftbench.registry import TASKS, Task
@@ -62,7 +63,7 @@ def run_study(arguments: list[str], config_dir: Path, say=print) -> str:
         # not job configs, and Hydra would offer them as config groups.
         settings = read_settings(config_dir.parent / "decision", own, lambda lines: composed([f"data={datasets[0]}", *common, *lines]))
         for dataset in datasets:
-            check_folds(composed([f"data={dataset}", *common]), settings)
+            check_folds(composed([f"data={dataset}", *common, "arch=fc"]), settings)
         results_dir = Path(composed([f"data={datasets[0]}", *common]).results_dir)
         outputs, scores = [], {}
         for dataset in datasets:
@@ -127,8 +128,12 @@ def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, c
     say(f"decision study on {dataset}: {len(settings.candidates)} candidates (controls included), {study.protocol} protocol, "
         f"{study.trials} trials a tuning, {study.splits} folds x {study.repetitions} repetitions x {study.seeds} seeds; "
         f"jobs through hydra/launcher {runner.name} with {runner.workers} worker{'s' * (runner.workers > 1)}")
+    check = native_graph_check(composed([f"data={dataset}", *common, "arch=fc"]), settings)
     units, tunings = run_protocol(settings, study.sampler_seed, run, say, configured)
     result = verdict(units, settings.candidates, study, settings.task, settings.uncontrolled)
+    if check is not None:
+        outcomes = [entry["graph"]["outcome"] for entry in result["candidates"] if "graph" in entry]
+        result["graph_check"] = {**summary(check), "agreement": agreement_note(check, outcomes)}
     curves = tuning_curves(tunings, settings)
     notes = [budget_note(curves, settings)] if len(curves) > 1 else []
     if study.tuning_seeds > 1:
@@ -159,6 +164,19 @@ def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, c
     # Scores for the rank test across datasets: larger is better.
     sign = 1.0 if settings.task.higher_is_better else -1.0
     return markdown, {name: sign * value for name, value in result[f"mean_test_{metric}"].items() if value is not None}
+
+
+def native_graph_check(config: DictConfig, settings: Settings) -> GraphCheck | None:
+    """The graph check of the data's native graph, when a candidate reads it (seconds; the
+    verdict shows it beside the trained answer)."""
+    from shiftbench.config import validate
+    from shiftbench.job import load_data
+
+    if not any(candidate.uses_graph for candidate in settings.candidates):
+        return None
+    run = validate(config)
+    dataset = load_data(run)
+    return check_graph(dataset, dataset.native_graph, classes=settings.task.name == "classification", seed=run.seed)
 
 
 def tuning_summary(per_unit: dict[int, Tuning], task: Task) -> dict[str, Any]:

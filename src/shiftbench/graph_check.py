@@ -260,6 +260,7 @@ def check_config(arguments: list[str], config_dir: Path, rewirings: int = 99) ->
     from shiftbench.job import load_data
     from shiftbench.preflight import job_config, preflight
     from shiftbench.records import write_atomic
+    arguments = ["arch=fc", *arguments]  # the check trains nothing: any family that serves every task
     preflight(arguments, config_dir)
     with initialize_config_dir(str(config_dir.resolve()), version_base="1.3", job_name="shiftbench"):
         run = validate(job_config(compose("config", overrides=arguments, return_hydra_config=True)))
@@ -271,3 +272,32 @@ def check_config(arguments: list[str], config_dir: Path, rewirings: int = 99) ->
     stem = f"{dataset.name}_{run.graph.source}"
     write_atomic(folder / f"{stem}.json", json.dumps(check.as_dict(), indent=1) + "\n")
     return check, write_atomic(folder / f"{stem}.md", markdown(check))
+
+
+def smooth_on_graph(check: GraphCheck) -> bool | None:
+    """Whether Moran's I says the signals are smoother on the graph than on its rewirings
+    (None: nothing compared)."""
+    found = next((c for c in check.comparisons if c.name == "Moran's I"), None)
+    return None if found is None else found.p <= check.alpha and found.observed > found.rewired_mean
+
+
+def agreement_note(check: GraphCheck, graph_outcomes: list[str]) -> str | None:
+    """A flag where the trained verdict's graph question and the check disagree: the verdict
+    credits the graph while the signals are no smoother on it, or the reverse."""
+    smooth = smooth_on_graph(check)
+    if smooth is None:
+        return None
+    if not smooth and "earns_its_keep" in graph_outcomes:
+        return ("The verdict credits the graph, yet the signals are no smoother on it than on rewirings: the model "
+                "uses the graph in a way smoothness does not show; look at what it learned before relying on it.")
+    if smooth and graph_outcomes and all(outcome in ("equivalent", "does_not_earn_its_keep") for outcome in graph_outcomes):
+        return ("The signals are smoother on the graph than on rewirings, yet the tuned graph models gained nothing "
+                "from it: a model or setting that uses the graph may be missing from the candidates.")
+    return None
+
+
+def summary(check: GraphCheck) -> dict[str, Any]:
+    """What a verdict or report keeps of the check: its figures, sentence and table lines."""
+    table = markdown(check).split("\n")
+    return {"figures": check.as_dict(), "sentence": sentence(check),
+            "table": [line for line in table if line.startswith("|")], "notes": check.notes}

@@ -27,6 +27,7 @@ COMPONENT_MODULES = [
     "shiftbench.data.tser",
     "shiftbench.data.series_gaps",
     "shiftbench.data.files",
+    "shiftbench.data.regions",
     "shiftbench.graphs.sources",
     "shiftbench.graphs.from_signals",
     "shiftbench.graphs.files",

@@ -292,7 +292,13 @@ def write_verdict(result: dict[str, Any], folder: Path) -> str:
     from shiftbench.records import write_atomic
 
     write_atomic(folder / "verdict.json", json.dumps(result, indent=2, default=float) + "\n")
-    lines = ["# Verdict", "", *headline(result), "", "## Every candidate", ""]
+    lines = ["# Verdict", "", *headline(result), ""]
+    if result.get("graph_check"):
+        check = result["graph_check"]
+        lines += ["## Before training: do the signals live on the graph?", "", check["sentence"], "", *check["table"], ""]
+        lines += [f"- note: {note}" for note in check["notes"]] + ([""] if check["notes"] else [])
+        lines += [f"**{check['agreement']}**", ""] if check.get("agreement") else []
+    lines += ["## Every candidate", ""]
     lines += [f"- {entry['sentence']}" for entry in result["candidates"] if not entry["uses_graph"] or entry["outcome"] == "control"]
     # Accuracy goes without saying (the verdicts of classification read as they always have).
     metric = "" if result.get("metric", "accuracy") == "accuracy" else f" test {result['metric']}, {result['better']} is better"

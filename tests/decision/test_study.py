@@ -153,3 +153,13 @@ def test_a_search_space_choice_its_schema_refuses_stops_the_study_before_any_job
     with pytest.raises(ConfigError, match=r"search space fc.yaml: arch.hidden=\[0\] is not accepted; accepted: a list of integers >= 1"):
         run_study([f"results_dir={tmp_path / 'results'}", FC_VS_QDA], tmp_path / "configs")
     assert not (tmp_path / "results" / "store").exists()
+
+
+def test_a_node_task_on_real_regional_data_runs_end_to_end_with_the_graph_check_on_top(tmp_path):
+    # Real data with its real graph (libpysal's US states' incomes and contiguity); a node task's
+    # candidates need the per-node readout in every check made before the jobs.
+    markdown = run_study([f"results_dir={tmp_path}", "data=state_incomes", "task=node_regression", "decision.trials=1",
+                          "decision.splits=2", "decision.seeds=1", "train.epochs=3"], CONFIG_DIR, say=lambda line: None)
+    assert "## Before training: do the signals live on the graph?" in markdown
+    written = json.loads((tmp_path / "decision" / "verdict.json").read_text())
+    assert written["metric"] == "rmse" and written["graph_check"]["figures"]["nodes"] == 48

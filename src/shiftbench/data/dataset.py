@@ -59,6 +59,8 @@ class Dataset:
         classes: number of classes.
         native_graph: the graph the data carries (sensor links, pixel grid, time line).
         name: the dataset's name in records.
+        in_time_order: the samples are consecutive times (a forecast): every split keeps later
+            samples out of the training part of an earlier test part (see ``splits.fold_split``).
     """
 
     signals: np.ndarray
@@ -67,6 +69,7 @@ class Dataset:
     classes: int
     native_graph: Graph
     name: str
+    in_time_order: bool = False
 
     @property
     def samples(self) -> int:

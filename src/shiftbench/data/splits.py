@@ -71,6 +71,10 @@ def resplit(dataset: Dataset, split: int) -> Dataset:
     and test sizes (seeded by ``split``), so repeated evaluations differ in their data."""
     if split == 0:
         return dataset
+    if dataset.in_time_order:
+        raise ConfigError(f"split={split} is not accepted for {dataset.name}, whose samples are in time order (a random "
+                          "split would train on later years than it tests); accepted: split=0, or folds=K for "
+                          "forward-chaining folds")
     sizes = dataset.splits
     samples = dataset.samples
     test_fraction = len(sizes.test) / samples
@@ -100,6 +104,8 @@ def fold_split(dataset: Dataset, folds: int, split: int) -> Dataset:
     from sklearn.model_selection import KFold, StratifiedKFold
 
     check_fold_count(dataset, folds)
+    if dataset.in_time_order:
+        return forward_chaining_split(dataset, folds, split % folds)
     repetition, fold = divmod(split, folds)
     samples = dataset.samples
     stratify = has_classes(dataset.labels)
@@ -120,9 +126,34 @@ def fold_split(dataset: Dataset, folds: int, split: int) -> Dataset:
     return replace(dataset, splits=Splits(train=np.sort(train), val=np.sort(val), test=np.sort(test)))
 
 
+def forward_chaining_split(dataset: Dataset, folds: int, fold: int) -> Dataset:
+    """Outer fold ``fold`` of ``folds`` for samples in time order (scikit-learn's
+    ``TimeSeriesSplit``): the samples are cut into ``folds + 1`` consecutive blocks; fold ``k``
+    tests block ``k + 1`` and trains on the blocks before it, its validation part the latest of
+    them in the dataset's own share, so no fold trains or chooses on a time after its test part.
+    Every repetition gives the same folds (there is nothing to shuffle)."""
+    from sklearn.model_selection import TimeSeriesSplit
+
+    rest, test = list(TimeSeriesSplit(n_splits=folds).split(np.zeros(dataset.samples)))[fold]
+    own = dataset.splits
+    share = len(own.val) / max(len(own.train) + len(own.val), 1)
+    validation = int(round(share * len(rest)))
+    if share and validation == 0:
+        validation = 1
+    train, val = rest[: len(rest) - validation], rest[len(rest) - validation:]
+    return replace(dataset, splits=Splits(train=train, val=val, test=test))
+
+
 def check_fold_count(dataset: Dataset, folds: int, key: str = "folds") -> None:
     """Refuse more outer folds than the smallest class has samples (each fold tests part of
-    every class), or than there are samples for value targets."""
+    every class), or than there are samples for value targets (in time order, ``folds + 1``
+    blocks of at least two samples)."""
+    if dataset.in_time_order:
+        most = dataset.samples // 2 - 1
+        if not 2 <= folds <= most:
+            raise ConfigError(f"{key}={folds} is not accepted: {dataset.name} holds {dataset.samples} times in order; "
+                              f"accepted: an integer from 2 to {most} (forward-chaining folds)")
+        return
     smallest = smallest_class(dataset.labels)
     most = smallest if smallest is not None else dataset.samples
     what = f"the smallest class has {smallest} samples" if smallest is not None else f"there are {dataset.samples} samples"
