@@ -8,7 +8,10 @@ guard against two workers training one config."""
 from __future__ import annotations
 
 import logging
+import multiprocessing
+import os
 import shutil
+import signal
 import time
 from pathlib import Path
 from collections.abc import Callable
@@ -40,6 +43,10 @@ def launched_job(config: DictConfig) -> dict[str, Any]:
     from shiftbench.runtime import keep_freed_memory
 
     keep_freed_memory()
+    if multiprocessing.parent_process() is not None:
+        # A worker of a parallel launcher: Ctrl-C reaches the whole process group, and the study
+        # that started the worker answers it (one line, status 130), not each worker's traceback.
+        signal.signal(signal.SIGINT, signal.SIG_IGN)
     hydra = HydraConfig.get()
     overrides = list(OmegaConf.to_container(hydra.overrides.task))  # type: ignore[arg-type]
     return run_job(config, Path(hydra.sweep.dir), overrides, live=False, quiet=True)
@@ -72,6 +79,12 @@ class BatchRunner:
         except (HydraException, ImportError) as error:
             raise ConfigError(f"{' '.join(launcher_overrides)}: {str(error).splitlines()[0]}") from None
         self.name = config.hydra.launcher._target_.rsplit(".", 1)[-1]
+        if self.name == "JoblibLauncher":
+            # After Ctrl-C, joblib's resource tracker (a process of its own, started with this
+            # environment) removes the workers' shared-memory folders and warns that it did; the
+            # study's one line says what happened.
+            filters = os.environ.get("PYTHONWARNINGS", "")
+            os.environ["PYTHONWARNINGS"] = ",".join(filter(None, [filters, "ignore:resource_tracker:UserWarning"]))
         self.workers = int(config.hydra.launcher.get("n_jobs") or 1)
         self.jobs = 0
         self.say = say

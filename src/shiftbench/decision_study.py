@@ -16,6 +16,7 @@ from omegaconf import DictConfig, OmegaConf
 from shiftbench import decision_plots
 from shiftbench.batch import BatchRunner, is_launcher_override
 from shiftbench.config_store import register_defaults
+from shiftbench.data import Dataset
 from shiftbench.decision import Candidate, Settings, read_settings
 from shiftbench.decision_protocol import Tuning, expected_best, run_protocol
 from shiftbench.errors import ConfigError
@@ -87,11 +88,17 @@ def check_folds(config: DictConfig, settings: Settings) -> None:
     check_fold_count(load_dataset(validate(config).data), settings.study.splits, key="decision.splits")
 
 
-def protocol_text(settings: Settings) -> str:
-    """The protocol in one paragraph, for the verdict and ``verdict.json``."""
+def protocol_text(settings: Settings, in_time_order: bool = False) -> str:
+    """The protocol in one paragraph, for the verdict and ``verdict.json``; ``in_time_order``:
+    the samples are consecutive times, whose folds are forward-chaining."""
     study = settings.study
-    folds = (f"{study.splits} outer folds (stratified where there are classes) x {study.repetitions} repetition{'s' * (study.repetitions > 1)}, "
-             f"their test parts disjoint within a repetition; {study.seeds} seeds per fold, averaged into one unit")
+    if in_time_order:
+        folds = (f"{study.splits} forward-chaining outer folds (the samples are times in order: each fold tests a later "
+                 f"block and trains only on the times before it; every repetition the same); {study.seeds} seeds per "
+                 "fold, averaged into one unit")
+    else:
+        folds = (f"{study.splits} outer folds (stratified where there are classes) x {study.repetitions} repetition{'s' * (study.repetitions > 1)}, "
+                 f"their test parts disjoint within a repetition; {study.seeds} seeds per fold, averaged into one unit")
     if study.protocol == "nested":
         tuning = (f"nested: every trained candidate tuned inside every fold ({study.trials} TPE trials, sampler seed "
                   f"{study.sampler_seed}) on a validation part carved from that fold's training part, so no test part chose anything")
@@ -100,7 +107,8 @@ def protocol_text(settings: Settings) -> str:
                   f"{study.sampler_seed}) and that setting evaluated on every fold: the other folds' test parts hold samples that chose it")
     controls = ("controls tuned on their own equal budget" if study.tune_controls
                 else "each control evaluated with its candidate's setting of that fold")
-    return f"{tuning}; {folds}; {controls}; the folds are drawn over all samples (a dataset's own split, if it has one, is not kept)."
+    drawn = "drawn in time order" if in_time_order else "drawn over all samples"
+    return f"{tuning}; {folds}; {controls}; the folds are {drawn} (a dataset's own split, if it has one, is not kept)."
 
 
 def warn_oversubscribed(runner: BatchRunner, threads: int, say) -> None:
@@ -128,7 +136,8 @@ def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, c
     say(f"decision study on {dataset}: {len(settings.candidates)} candidates (controls included), {study.protocol} protocol, "
         f"{study.trials} trials a tuning, {study.splits} folds x {study.repetitions} repetitions x {study.seeds} seeds; "
         f"jobs through hydra/launcher {runner.name} with {runner.workers} worker{'s' * (runner.workers > 1)}")
-    check = native_graph_check(composed([f"data={dataset}", *common, "arch=fc"]), settings)
+    data = loaded(composed([f"data={dataset}", *common, "arch=fc"]))
+    check = native_graph_check(data, settings)
     units, tunings = run_protocol(settings, study.sampler_seed, run, say, configured)
     result = verdict(units, settings.candidates, study, settings.task, settings.uncontrolled)
     if check is not None:
@@ -141,7 +150,7 @@ def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, c
     metric = settings.task.metric
     result.update(
         data=dataset,
-        protocol=protocol_text(settings),
+        protocol=protocol_text(settings, data.in_time_order),
         tuning={name: tuning_summary(per_unit, settings.task) for name, per_unit in tunings.items()},
         failed_trials=sum(tuning.failed for per_unit in tunings.values() for tuning in per_unit.values()),
         tuning_notes=notes,
@@ -166,17 +175,20 @@ def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, c
     return markdown, {name: sign * value for name, value in result[f"mean_test_{metric}"].items() if value is not None}
 
 
-def native_graph_check(config: DictConfig, settings: Settings) -> GraphCheck | None:
-    """The graph check of the data's native graph, when a candidate reads it (seconds; the
-    verdict shows it beside the trained answer)."""
+def loaded(config: DictConfig) -> Dataset:
+    """The dataset a composed job config names, under its own split."""
     from shiftbench.config import validate
     from shiftbench.job import load_data
 
+    return load_data(validate(config))
+
+
+def native_graph_check(dataset: Dataset, settings: Settings) -> GraphCheck | None:
+    """The graph check of the data's native graph, when a candidate reads it (seconds; the
+    verdict shows it beside the trained answer)."""
     if not any(candidate.uses_graph for candidate in settings.candidates):
         return None
-    run = validate(config)
-    dataset = load_data(run)
-    return check_graph(dataset, dataset.native_graph, classes=settings.task.name == "classification", seed=run.seed)
+    return check_graph(dataset, dataset.native_graph, classes=settings.task.name == "classification")
 
 
 def tuning_summary(per_unit: dict[int, Tuning], task: Task) -> dict[str, Any]:
