@@ -17,7 +17,7 @@ from shiftbench import decision_plots
 from shiftbench.batch import BatchRunner, is_launcher_override
 from shiftbench.config_store import register_defaults
 from shiftbench.data import Dataset
-from shiftbench.decision import Candidate, Settings, read_settings
+from shiftbench.decision import Candidate, Settings, StudyConfig, read_settings
 from shiftbench.decision_protocol import Tuning, expected_best, run_protocol
 from shiftbench.errors import ConfigError
 from shiftbench.graph_check import GraphCheck, agreement_note, check_graph, summary
@@ -66,16 +66,17 @@ def run_study(arguments: list[str], config_dir: Path, say=print) -> str:
         for dataset in datasets:
             check_folds(composed([f"data={dataset}", *common, "arch=fc"]), settings)
         results_dir = Path(composed([f"data={datasets[0]}", *common]).results_dir)
-        outputs, scores = [], {}
+        outputs, scores, references = [], {}, {}
         for dataset in datasets:
             folder = results_dir / settings.study.folder / dataset if len(datasets) > 1 else results_dir / settings.study.folder
             runner = BatchRunner(launcher, folder, say)
             warn_oversubscribed(runner, composed([f"data={dataset}", *common]).threads, say)
-            markdown, means = run_one(dataset, common, settings, folder, composed, runner, say)
+            markdown, means, references[dataset] = run_one(dataset, common, settings, folder, composed, runner, say)
             outputs.append(markdown)
             scores[dataset] = means
     if len(datasets) > 1:
-        outputs.append(across_datasets(pd.DataFrame(scores).T, results_dir / settings.study.folder, settings.study.alpha))
+        outputs.append(across_datasets(pd.DataFrame(scores).T, references, settings.candidates, settings.study,
+                                       results_dir / settings.study.folder))
     return "\n".join(outputs)
 
 
@@ -170,9 +171,10 @@ def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, c
     extra = [f"![{figure.stem.replace('_', ' ')}]({figure.name})" for figure in figures]
     write_atomic(folder / "verdict.md", markdown + "\n" + candidates_table(units, settings.task) + "\n" + "\n\n".join(extra) + "\n")
     say(f"{runner.jobs - first_job} jobs (done ones skipped) in {result['minutes']:.1f} min; failed trials: {result['failed_trials']}")
-    # Scores for the rank test across datasets: larger is better.
+    # Scores for the comparisons across datasets: larger is better.
     sign = 1.0 if settings.task.higher_is_better else -1.0
-    return markdown, {name: sign * value for name, value in result[f"mean_test_{metric}"].items() if value is not None}
+    means = {name: sign * value for name, value in result[f"mean_test_{metric}"].items() if value is not None}
+    return markdown, means, result["reference"]
 
 
 def loaded(config: DictConfig) -> Dataset:
@@ -288,16 +290,53 @@ def candidates_table(units: pd.DataFrame, task: Task) -> str:
     return "\n".join(lines) + "\n"
 
 
-def across_datasets(scores: pd.DataFrame, folder: Path, alpha: float) -> str:
-    """Friedman and Nemenyi over datasets, with a critical-difference diagram."""
-    if scores.shape[1] < 3:
-        return "Across datasets: fewer than 3 candidates, no rank test.\n"
-    test = rank_test(scores, alpha)
-    figure = decision_plots.critical_difference(test, folder / "critical_difference.png")
-    ranks = ", ".join(f"{name} {rank:.2f}" for name, rank in test.ranks.sort_values().items())
-    markdown = (
-        f"# Across {len(scores)} datasets\n\nAverage ranks (1 is best): {ranks}. Friedman p = {test.friedman_p:.3g}; "
-        f"Nemenyi critical difference {test.critical_difference:.2f} at alpha {alpha}.\n\n![critical difference]({figure.name})\n"
-    )
+def across_datasets(scores: pd.DataFrame, references: dict[str, str | None], candidates: list[Candidate], study: StudyConfig,
+                    folder: Path) -> str:
+    """Across datasets: Friedman and Nemenyi over all candidates, with a critical-difference
+    diagram, and for each graph candidate the Bayesian signed-rank test against each dataset's
+    reference and against its control. ``scores``: one row per dataset, one column per
+    candidate, larger is better; ``references``: each dataset's strongest graph-free candidate."""
+    lines = [f"# Across {len(scores)} datasets", ""]
+    complete = scores.dropna(axis=1)
+    missing = [name for name in scores.columns if name not in complete.columns]
+    if missing:
+        lines += [f"Left out of the rank test, with no figure on every dataset: {', '.join(missing)}.", ""]
+    if complete.shape[1] < 3:
+        lines.append("Fewer than 3 candidates with a figure on every dataset: no rank test.")
+    else:
+        test = rank_test(complete, study.alpha)
+        figure = decision_plots.critical_difference(test, folder / "critical_difference.png")
+        ranks = ", ".join(f"{name} {rank:.2f}" for name, rank in test.ranks.sort_values().items())
+        lines += [f"Average ranks (1 is best): {ranks}. Friedman p = {test.friedman_p:.3g}; "
+                  f"Nemenyi critical difference {test.critical_difference:.2f} at alpha {study.alpha}.", "",
+                  f"![critical difference]({figure.name})"]
+    pairs = bayesian_pairs(scores, references, candidates, study.rope)
+    if pairs:
+        lines += ["", f"Bayesian signed-rank test over datasets (Benavoli et al. 2017, baycomp), ROPE ±{study.rope:g}:", "", *pairs]
+    markdown = "\n".join(lines) + "\n"
     write_atomic(folder / "across_datasets.md", markdown)
     return markdown
+
+
+def bayesian_pairs(scores: pd.DataFrame, references: dict[str, str | None], candidates: list[Candidate], rope: float) -> list[str]:
+    """One line per graph candidate and question (against each dataset's reference, against its
+    control), over the datasets where both figures exist; a pair with fewer than 2 is left out."""
+    from shiftbench.statistics import over_datasets
+
+    controls = {candidate.control_of: candidate.name for candidate in candidates if candidate.control_of}
+    lines = []
+    for candidate in candidates:
+        if not candidate.uses_graph or candidate.control_of or candidate.name not in scores:
+            continue
+        reference = pd.Series({dataset: scores.at[dataset, name] if name in scores else np.nan for dataset, name in references.items()})
+        against = [("each dataset's strongest graph-free candidate", reference)]
+        if controls.get(candidate.name) in scores:
+            against.append(("its degree-preserving rewiring", scores[controls[candidate.name]]))
+        for label, other in against:
+            both = scores[candidate.name].notna() & other.notna()
+            if both.sum() < 2:
+                continue
+            better, equivalent, worse = over_datasets(scores[candidate.name][both].to_numpy(), other[both].to_numpy(), rope)
+            lines.append(f"- {candidate.name} against {label}: probability {better:.2f} better by more than the ROPE, "
+                         f"{equivalent:.2f} equivalent, {worse:.2f} worse ({int(both.sum())} datasets).")
+    return lines

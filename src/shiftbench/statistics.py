@@ -193,3 +193,17 @@ def rank_test(scores: pd.DataFrame, alpha: float = 0.05) -> RankTest:
     nemenyi = scikit_posthocs.posthoc_nemenyi_friedman(scores.to_numpy())
     nemenyi.index = nemenyi.columns = list(scores.columns)
     return RankTest(ranks, float(friedman.pvalue), nemenyi, critical_difference(scores.shape[1], scores.shape[0], alpha))
+
+
+def over_datasets(candidate: np.ndarray, reference: np.ndarray, rope: float, seed: int = 0) -> tuple[float, float, float]:
+    """Posterior probabilities that ``candidate`` is better by more than ``rope``, equivalent
+    within it, or worse than ``reference``, from two ``(datasets,)`` arrays of mean scores
+    (larger is better): the Bayesian signed-rank test (Benavoli et al. 2017, "Time for a change:
+    a tutorial for comparing multiple classifiers through Bayesian analysis"; baycomp's
+    ``two_on_multiple`` on one score per dataset), with a Dirichlet process prior of strength
+    0.5 at zero difference."""
+    import baycomp
+
+    better, equivalent, worse = baycomp.two_on_multiple(np.asarray(candidate, dtype=float), np.asarray(reference, dtype=float),
+                                                        rope=rope, random_state=seed)
+    return float(better), float(equivalent), float(worse)

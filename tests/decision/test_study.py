@@ -163,3 +163,17 @@ def test_a_node_task_on_real_regional_data_runs_end_to_end_with_the_graph_check_
     assert "## Before training: do the signals live on the graph?" in markdown
     written = json.loads((tmp_path / "decision" / "verdict.json").read_text())
     assert written["metric"] == "rmse" and written["graph_check"]["figures"]["nodes"] == 48
+
+
+def test_several_datasets_end_with_the_rank_test_and_the_graph_candidates_signed_rank_probabilities(tmp_path):
+    # Friedman/Nemenyi (scikit-posthocs) and baycomp's signed-rank test over the datasets, each
+    # dataset's own reference taken from its own verdict.
+    run_study([f"results_dir={tmp_path}", "data=sensor_regimes,digits", "decision.trials=1", "decision.splits=3",
+               "decision.seeds=1", "train.epochs=1",
+               "decision.candidates=[{name: fc, overrides: [arch=fc]}, {name: gnn, overrides: [arch=graph_conv]}, "
+               "{name: nearest, overrides: [arch=nearest]}]"], CONFIG_DIR, say=lambda line: None)
+    markdown = (tmp_path / "decision" / "across_datasets.md").read_text()
+    assert "Average ranks (1 is best):" in markdown and (tmp_path / "decision" / "critical_difference.png").exists()
+    assert "- gnn against each dataset's strongest graph-free candidate: probability" in markdown
+    assert "- gnn against its degree-preserving rewiring: probability" in markdown
+    assert all((tmp_path / "decision" / name / "verdict.json").exists() for name in ("sensor_regimes", "digits"))

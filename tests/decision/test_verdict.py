@@ -192,9 +192,29 @@ def test_across_datasets_writes_the_rank_test_and_its_critical_difference_diagra
 
     scores = pd.DataFrame({"graph_conv": [0.97, 0.95, 0.90, 0.93], "fc": [0.77, 0.90, 0.85, 0.80], "qda": [0.93, 0.80, 0.88, 0.91]},
                           index=["a", "b", "c", "d"])
-    markdown = across_datasets(scores, tmp_path, alpha=0.05)
+    markdown = across_datasets(scores, dict.fromkeys(scores.index, "qda"), [GNN, FC], StudyConfig(), tmp_path)
     assert "Average ranks (1 is best): graph_conv 1.00" in markdown
     assert (tmp_path / "critical_difference.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_across_datasets_the_graph_candidate_gets_baycomps_signed_rank_probabilities_against_each_reference_and_its_control(tmp_path):
+    # The Bayesian signed-rank test (Benavoli et al. 2017) as baycomp computes it on the same
+    # pairs; each dataset's own reference is the one compared (here qda on a, b and fc on c, d).
+    import baycomp
+
+    from shiftbench.decision_study import across_datasets
+
+    control = Candidate("graph_conv, rewired", ("arch=graph_conv",), "graph_conv", True, control_of="graph_conv")
+    scores = pd.DataFrame({"graph_conv": [0.97, 0.95, 0.90, 0.93, 0.91], "graph_conv, rewired": [0.50, 0.52, 0.47, 0.55, 0.49],
+                           "fc": [0.77, 0.90, 0.85, 0.80, 0.84], "qda": [0.93, 0.80, 0.88, 0.91, 0.70]}, index=list("abcde"))
+    references = {"a": "qda", "b": "qda", "c": "fc", "d": "fc", "e": "qda"}
+    markdown = across_datasets(scores, references, [GNN, control, FC], StudyConfig(rope=0.01), tmp_path)
+    reference = np.array([0.93, 0.80, 0.85, 0.80, 0.70])
+    better, equivalent, worse = baycomp.two_on_multiple(scores["graph_conv"].to_numpy(), reference, rope=0.01, random_state=0)
+    assert (f"- graph_conv against each dataset's strongest graph-free candidate: probability {better:.2f} better by more than "
+            f"the ROPE, {equivalent:.2f} equivalent, {worse:.2f} worse (5 datasets).") in markdown
+    assert "- graph_conv against its degree-preserving rewiring: probability 1.00 better" in markdown
+    assert "graph_conv, rewired against" not in markdown
 
 
 def test_for_an_error_metric_lower_is_better_and_the_sentence_says_the_error_difference():
