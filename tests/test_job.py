@@ -356,3 +356,24 @@ def test_a_home_whose_files_are_folders_or_links_is_refused_in_one_line(small_co
         run_job(config, None, [], live=False)
     assert "\n" not in str(refused.value)
     assert not (target / RECORD_FILE).is_file()
+
+
+def test_a_read_only_home_is_refused_in_one_line_before_the_claim_and_a_finished_one_is_still_skipped(small_config, tmp_path, monkeypatch):
+    # Permission bits do not bind root (the CI runs as root), so os.access stands in for a
+    # read-only folder: what the job must do is ask before it writes.
+    import os
+    from pathlib import Path
+
+    from shiftbench import store
+    from shiftbench.errors import ConfigError
+
+    config, target = stale_claim_test_target(small_config, tmp_path, seed=14)
+    real_access = os.access
+    monkeypatch.setattr(store.os, "access", lambda path, mode: False if Path(path) == target else real_access(path, mode))
+    with pytest.raises(ConfigError, match=r"is not writable here, and the job's home .* must be written") as refused:
+        run_job(config, None, [], live=False)
+    assert "\n" not in str(refused.value) and not (target / "claim").exists()
+    monkeypatch.setattr(store.os, "access", real_access)
+    run_job(config, None, [], live=False)
+    monkeypatch.setattr(store.os, "access", lambda path, mode: False if Path(path) == target else real_access(path, mode))
+    assert run_job(config, None, [], live=False)["skipped"] is True

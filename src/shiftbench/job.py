@@ -37,7 +37,8 @@ from shiftbench.records import (
 from shiftbench.registry import FAMILIES, TASKS
 from shiftbench.runtime import available_memory_bytes, peak_memory_mb, start_peak_memory
 from shiftbench.store import (
-    claim, clear_torn_writes, finished_record, heartbeat, home_of, note_launch, release, require_plain_home, set_aside,
+    claim, clear_torn_writes, finished_record, heartbeat, home_of, note_launch, release, require_plain_home, require_writable_home,
+    set_aside,
 )
 from shiftbench.training import Checkpointing, TrainingDiverged, TrainingResult, seed_everything, train
 
@@ -308,6 +309,7 @@ def run_job(
     done = None if run.force else finished_record(home)
     if done is not None:
         return skip(done, "skipped", f"already completed, record in {home}")
+    require_writable_home(home)
     holder = claim(home)
     if holder is not None:
         pending = new_record(run, plain, digest, overrides).as_dict()

@@ -26,7 +26,7 @@ from shiftbench.input_files import job_content
 from shiftbench.job import check_inputs
 from shiftbench.records import config_hash
 from shiftbench.runtime import available_cores
-from shiftbench.store import home_of, require_plain_home
+from shiftbench.store import finished_record, home_of, require_plain_home, require_writable_home
 from shiftbench.sweep_axes import add_study_axes, split_overrides
 
 # Hydra flags that take the next argument as their value.
@@ -184,7 +184,10 @@ def _validate(config: DictConfig) -> str:
     require_writable_folder(Path(run.results_dir))
     check_inputs(run)
     digest = config_hash(job_content(run))
-    require_plain_home(home_of(Path(run.results_dir), digest))
+    home = home_of(Path(run.results_dir), digest)
+    require_plain_home(home)
+    if finished_record(home) is None:
+        require_writable_home(home)
     return digest
 
 

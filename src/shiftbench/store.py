@@ -62,6 +62,17 @@ def require_plain_home(home: Path) -> None:
             raise ConfigError(f"{path}: is {kind}; accepted: a plain file the job writes (remove it, and the job runs anew)")
 
 
+def require_writable_home(home: Path) -> None:
+    """A job that will train must be able to write its home (or the store folder above it that
+    will hold it): refused in one line before the claim, not as a traceback mid-job."""
+    existing = home
+    while not existing.exists() and existing != existing.parent:
+        existing = existing.parent
+    if not os.access(existing, os.W_OK | os.X_OK):
+        raise ConfigError(f"{existing}: is not writable here, and the job's home {home.name} must be written; accepted: "
+                          f"a store you may write in (chmod u+w {existing})")
+
+
 def finished_record(home: Path) -> dict[str, Any] | None:
     """The home's record when it is completed or timed out (a rerun skips it), else None."""
     path = home / RECORD_FILE
