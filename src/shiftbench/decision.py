@@ -77,6 +77,10 @@ class StudyConfig(Schema):
     protocol: str = declared(one_of(PROTOCOLS), "nested")
     tune_controls: bool = False
     tuning_seeds: int = declared(at_least(1), 1)
+    parallel_trials: int = declared(at_least(1), 1)
+    storage: str = declared(Check(lambda value: isinstance(value, str) and (value in ("journal", "none") or "://" in value),
+                                  "journal (a file in the study's folder), none, or a database URL such as "
+                                  "sqlite:///tuning.db"), "journal")
     rope: float = declared(Check(lambda value: 0 <= value < 1, "a number in [0, 1) (in the metric's units)"), 0.01)
     alpha: float = declared(FRACTION, 0.05)
     sampler_seed: int = declared(at_least(0), 0)

@@ -80,11 +80,12 @@ def usable_figure(record: dict[str, Any], key: str) -> float | None:
 
 @dataclass
 class Tuning:
-    """One tuning of a candidate on one unit: the chosen overrides and every trial's validation
-    figure in the order run (None for a failed trial)."""
+    """One tuning of a candidate on one unit: the chosen overrides, every trial's validation
+    figure in the order run (None for a failed trial), and its Optuna study (None for a floor)."""
 
     chosen: list[str]
     values: list[float | None] = field(default_factory=list)
+    study: Any = None
 
     @property
     def failed(self) -> int:
@@ -101,45 +102,49 @@ def tune_all(
     tuning never ends below the default on validation. Floors are not tuned here: they choose
     on validation inside their own job.
 
-    The tunings advance together, one trial each per batch handed to ``run``: each tuning asks
-    and tells in the same order as it would alone, so the choices do not depend on how many
-    jobs run at once."""
+    The tunings advance together, ``parallel_trials`` trials each per batch handed to ``run``
+    (TPE with ``constant_liar``: trials in flight count among the bad ones, so a batch does
+    not draw one point several times): each tuning asks and tells in the same order as it would alone, so the choices do
+    not depend on how many jobs run at once."""
     import optuna
 
     optuna.logging.set_verbosity(optuna.logging.WARNING)
-    metric, trials = settings.task.metric, settings.study.trials
+    metric, trials, at_once = settings.task.metric, settings.study.trials, settings.study.parallel_trials
     direction = "maximize" if settings.task.higher_is_better else "minimize"
     tuned = [(candidate, unit) for candidate, unit in tasks if FAMILIES[candidate.family].fit is None]
     studies, values = {}, {}
     for candidate, unit in tuned:
-        study = optuna.create_study(direction=direction, sampler=optuna.samplers.TPESampler(seed=sampler_seed))
+        sampler = optuna.samplers.TPESampler(seed=sampler_seed, constant_liar=True)
+        study = optuna.create_study(direction=direction, sampler=sampler)
         held = configured_values(settings.spaces[candidate.family], configured(candidate))
         if held:
             study.enqueue_trial(held)
         studies[candidate.name, unit], values[candidate.name, unit] = study, []
-    for number in range(trials if tuned else 0):
-        asked = {key: study.ask() for key, study in studies.items()}
-        lines = {(candidate.name, unit): suggest(asked[candidate.name, unit], settings.spaces[candidate.family])
-                 for candidate, unit in tuned}
-        records = run([[*candidate.overrides, *lines[candidate.name, unit], *unit_lines(candidate, settings, unit, 0)]
-                       for candidate, unit in tuned])
-        for (candidate, unit), record in zip(tuned, records):
-            key = (candidate.name, unit)
+    for first in range(0, trials if tuned else 0, at_once):
+        numbers = range(first, min(first + at_once, trials))
+        jobs = [(candidate, unit, number) for candidate, unit in tuned for number in numbers]
+        asked = {(candidate.name, unit, number): studies[candidate.name, unit].ask() for candidate, unit, number in jobs}
+        lines = {(candidate.name, unit, number): suggest(asked[candidate.name, unit, number], settings.spaces[candidate.family])
+                 for candidate, unit, number in jobs}
+        records = run([[*candidate.overrides, *lines[candidate.name, unit, number], *unit_lines(candidate, settings, unit, 0)]
+                       for candidate, unit, number in jobs])
+        for (candidate, unit, number), record in zip(jobs, records):
+            key, trial = (candidate.name, unit), asked[candidate.name, unit, number]
             value = usable_figure(record, f"val_{metric}")
             values[key].append(value)
             where = f"  fold {unit} trial {number + 1}/{trials} of {candidate.name}"
             if value is None:
-                studies[key].tell(asked[key], state=optuna.trial.TrialState.FAIL)
+                studies[key].tell(trial, state=optuna.trial.TrialState.FAIL)
                 say(f"{where}: failed ({record.get('error') or 'val ' + metric + ' ' + str(record.get(f'val_{metric}'))})")
             else:
-                studies[key].tell(asked[key], value)
-                say(f"{where}: val {metric} {value:.3f}  {' '.join(lines[key])}")
+                studies[key].tell(trial, value)
+                say(f"{where}: val {metric} {value:.3f}  {' '.join(lines[candidate.name, unit, number])}")
     tunings = {(candidate.name, unit): Tuning([]) for candidate, unit in tasks}
     for (name, unit), study in studies.items():
         if all(value is None for value in values[name, unit]):
             raise DecisionError(f"every tuning trial of {name} on fold {unit} failed; see the failed records in the store")
         chosen = [f"{key}={override_text(value)}" for key, value in study.best_trial.params.items()]
-        tunings[name, unit] = Tuning(chosen, values[name, unit])
+        tunings[name, unit] = Tuning(chosen, values[name, unit], study)
     return tunings
 
 

@@ -26,6 +26,7 @@ from shiftbench.records import write_atomic
 from shiftbench.registry import TASKS, Task
 from shiftbench.runtime import available_cores
 from shiftbench.statistics import rank_test
+from shiftbench.tuning_storage import JOURNAL_FILE, keep_tuning, open_storage, settings_digest, study_name
 from shiftbench.verdict import usable_units, verdict, write_verdict
 
 
@@ -67,11 +68,13 @@ def run_study(arguments: list[str], config_dir: Path, say=print) -> str:
             check_folds(composed([f"data={dataset}", *common, "arch=fc"]), settings)
         results_dir = Path(composed([f"data={datasets[0]}", *common]).results_dir)
         outputs, scores, references = [], {}, {}
-        for dataset in datasets:
-            folder = results_dir / settings.study.folder / dataset if len(datasets) > 1 else results_dir / settings.study.folder
+        folders = {dataset: results_dir / settings.study.folder / dataset if len(datasets) > 1 else results_dir / settings.study.folder
+                   for dataset in datasets}
+        storages = {dataset: open_storage(settings.study.storage, folder) for dataset, folder in folders.items()}
+        for dataset, folder in folders.items():
             runner = BatchRunner(launcher, folder, say)
             warn_oversubscribed(runner, composed([f"data={dataset}", *common]).threads, say)
-            markdown, means, references[dataset] = run_one(dataset, common, settings, folder, composed, runner, say)
+            markdown, means, references[dataset] = run_one(dataset, common, settings, folder, composed, runner, storages[dataset], say)
             outputs.append(markdown)
             scores[dataset] = means
     if len(datasets) > 1:
@@ -106,6 +109,9 @@ def protocol_text(settings: Settings, in_time_order: bool = False) -> str:
     else:
         tuning = (f"tune_once: every trained candidate tuned in fold 0 only ({study.trials} TPE trials, sampler seed "
                   f"{study.sampler_seed}) and that setting evaluated on every fold: the other folds' test parts hold samples that chose it")
+    if study.parallel_trials > 1:
+        tuning += (f"; {study.parallel_trials} trials of a tuning drawn at a time (TPE with constant liar: trials in flight "
+                   "count among the bad ones, so a batch does not draw one point twice)")
     controls = ("controls tuned on their own equal budget" if study.tune_controls
                 else "each control evaluated with its candidate's setting of that fold")
     drawn = "drawn in time order" if in_time_order else "drawn over all samples"
@@ -120,10 +126,12 @@ def warn_oversubscribed(runner: BatchRunner, threads: int, say) -> None:
             f"on {cores} cores; the jobs will slow each other down")
 
 
-def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, composed, runner: BatchRunner, say) -> tuple[str, dict]:
+def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, composed, runner: BatchRunner, storage: Any,
+            say) -> tuple[str, dict, str | None]:
     """Tune, evaluate and judge every candidate on one dataset, its jobs handed to ``runner`` a
-    batch at a time; write the study's files into ``folder``. Returns the verdict markdown and
-    the mean test figure per candidate."""
+    batch at a time; write the study's files into ``folder`` and the tunings into ``storage``
+    (an Optuna storage, or None). Returns the verdict markdown, the mean test figure per
+    candidate (larger is better) and the reference's name."""
     started = time.perf_counter()
     first_job = runner.jobs
 
@@ -140,6 +148,8 @@ def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, c
     data = loaded(composed([f"data={dataset}", *common, "arch=fc"]))
     check = native_graph_check(data, settings)
     units, tunings = run_protocol(settings, study.sampler_seed, run, say, configured)
+    if storage is not None:
+        keep_tunings(storage, folder, dataset, tunings, settings, common)
     result = verdict(units, settings.candidates, study, settings.task, settings.uncontrolled)
     if check is not None:
         outcomes = [entry["graph"]["outcome"] for entry in result["candidates"] if "graph" in entry]
@@ -155,7 +165,8 @@ def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, c
         tuning={name: tuning_summary(per_unit, settings.task) for name, per_unit in tunings.items()},
         failed_trials=sum(tuning.failed for per_unit in tunings.values() for tuning in per_unit.values()),
         tuning_notes=notes,
-        launcher=runner.name, workers=runner.workers,
+        launcher=runner.name, workers=runner.workers, parallel_trials=study.parallel_trials,
+        tuning_storage=storage_text(study.storage, folder),
         minutes=(time.perf_counter() - started) / 60,
     )
     buffer = io.StringIO()
@@ -175,6 +186,29 @@ def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, c
     sign = 1.0 if settings.task.higher_is_better else -1.0
     means = {name: sign * value for name, value in result[f"mean_test_{metric}"].items() if value is not None}
     return markdown, means, result["reference"]
+
+
+def keep_tunings(storage: Any, folder: Path, dataset: str, tunings: dict[str, dict[int, Tuning]], settings: Settings,
+                 overrides: list[str]) -> None:
+    """Every tuning the study ran (controls that reuse their candidate's are not tunings of
+    their own) into ``storage``, one stored study each; ``overrides``: every job's."""
+    digest = settings_digest(settings.study, settings.spaces, overrides)
+    for candidate in settings.candidates:
+        for unit, tuning in tunings[candidate.name].items():
+            if tuning.study is not None and (not candidate.control_of or settings.study.tune_controls):
+                keep_tuning(storage, folder, study_name(dataset, candidate.name, unit, settings.study.sampler_seed, digest), tuning.study)
+
+
+def storage_text(setting: str, folder: Path) -> str | None:
+    """Where the tunings are kept, for ``verdict.json``: the journal's path, or the URL with any
+    password hidden."""
+    if setting == "none":
+        return None
+    if setting == "journal":
+        return str(folder / JOURNAL_FILE)
+    from sqlalchemy.engine import make_url
+
+    return make_url(setting).render_as_string(hide_password=True)
 
 
 def loaded(config: DictConfig) -> Dataset:

@@ -177,3 +177,56 @@ def test_several_datasets_end_with_the_rank_test_and_the_graph_candidates_signed
     assert "- gnn against each dataset's strongest graph-free candidate: probability" in markdown
     assert "- gnn against its degree-preserving rewiring: probability" in markdown
     assert all((tmp_path / "decision" / name / "verdict.json").exists() for name in ("sensor_regimes", "digits"))
+
+
+def stored_trials(journal: Path) -> dict[str, list[float | None]]:
+    import optuna
+    from optuna.storages.journal import JournalFileBackend
+
+    storage = optuna.storages.JournalStorage(JournalFileBackend(str(journal)))
+    return {summary.study_name: [trial.value for trial in optuna.load_study(study_name=summary.study_name, storage=storage).trials]
+            for summary in optuna.get_all_study_summaries(storage)}
+
+
+def test_the_tunings_are_kept_in_optunas_journal_and_a_rerun_rewrites_them_instead_of_adding(tmp_path):
+    # Optuna's JournalStorage read back with Optuna's own API holds each fold's trials, the
+    # figures verdict.json reports; a rerun (everything skipped) leaves the same trials.
+    arguments = [f"results_dir={tmp_path}", *SMALL, "train.epochs=2", FC_VS_QDA]
+    run_study(arguments, CONFIG_DIR, say=lambda line: None)
+    journal = tmp_path / "decision" / "tuning.journal"
+    first = stored_trials(journal)
+    result = json.loads((tmp_path / "decision" / "verdict.json").read_text())
+    assert sorted(first) == [name for name in sorted(first) if name.startswith("sensor_regimes | fc | fold ")] and len(first) == 2
+    assert result["tuning_storage"] == str(journal)
+    fold_zero = next(values for name, values in first.items() if "fold 0" in name)
+    assert fold_zero == result["tuning"]["fc"]["folds"]["0"]["values"]
+    run_study(arguments, CONFIG_DIR, say=lambda line: None)
+    assert stored_trials(journal) == first
+
+
+def test_parallel_trials_draw_distinct_settings_in_a_batch_and_a_rerun_chooses_the_same(tmp_path):
+    # Optuna's constant liar: two trials asked before either is told do not repeat a point.
+    arguments = [f"results_dir={tmp_path}", *SMALL, "train.epochs=2", "decision.trials=4", "decision.parallel_trials=2",
+                 "decision.storage=none", FC_VS_QDA]
+    lines: list[str] = []
+    run_study(arguments, CONFIG_DIR, say=lines.append)
+    drawn = [line.split("  ", 2)[-1] for line in lines if line.startswith("  fold 0 trial")]
+    assert len(drawn) == 4 and len(set(drawn)) == 4
+    first = json.loads((tmp_path / "decision" / "verdict.json").read_text())
+    again: list[str] = []
+    run_study(arguments, CONFIG_DIR, say=again.append)
+    second = json.loads((tmp_path / "decision" / "verdict.json").read_text())
+    assert second["tuning"] == first["tuning"] and "parallel_trials=2" not in json.dumps(first["protocol"])
+    assert "2 trials of a tuning drawn at a time" in first["protocol"] and first["tuning_storage"] is None
+    assert any("0 jobs" in line or "jobs (done ones skipped)" in line for line in again)
+
+
+@pytest.mark.parametrize(("setting", "message"), [
+    ("decision.storage=nowhere", "decision.storage='nowhere' is not accepted; accepted: journal"),
+    ("decision.storage=nosuchdb://x", "decision.storage=nosuchdb://x: cannot be opened"),
+    ("decision.parallel_trials=0", "decision.parallel_trials=0 is not accepted; accepted: an integer >= 1"),
+])
+def test_a_storage_that_cannot_be_opened_is_refused_in_one_line_before_any_job(tmp_path, setting, message):
+    with pytest.raises(ConfigError, match=message.replace("[", r"\[")) as refused:
+        run_study([f"results_dir={tmp_path}", setting, FC_VS_QDA], CONFIG_DIR)
+    assert "\n" not in str(refused.value) and not (tmp_path / "store").exists()
