@@ -1,6 +1,7 @@
 """The decision study's wall time from an empty results folder, on the demo with the default
-budgets, through the ``shiftbench-decide`` command as a user runs it: in one process, and with
-two joblib workers (``hydra/launcher=joblib hydra.launcher.n_jobs=2``), side by side in one run,
+budgets, through the ``shiftbench-decide`` command as a user runs it: in one process, with
+two joblib workers (``hydra/launcher=joblib hydra.launcher.n_jobs=2``) and through submitit's
+local executor (a process per job, a core's worth at a time, as on a cluster), side by side in one run,
 with whether the two give the same figures and the time a job adds beyond its training. The
 one-process study's verdict, table and plots are kept as the README's example.
 
@@ -27,7 +28,8 @@ from shiftbench.records import write_atomic
 TOOL = Path(sys.executable).with_name("shiftbench-decide")
 KEPT = ("verdict.md", "verdict.json", "units.csv", "pareto.png", "paired_differences.png", "tuning_curves.png")
 FIGURES = ["candidate", "split", "seed", "test_accuracy", "val_accuracy", "parameters"]
-WAYS = {"one process": [], "two joblib workers": ["hydra/launcher=joblib", "hydra.launcher.n_jobs=2"]}
+WAYS = {"one process": [], "two joblib workers": ["hydra/launcher=joblib", "hydra.launcher.n_jobs=2"],
+        "submitit's local executor": ["hydra/launcher=submitit_local"]}
 
 
 def one_study(work: Path, launcher: list[str]) -> dict:
@@ -53,7 +55,7 @@ def main(argv: list[str] | None = None) -> None:
     runs = {}
     with tempfile.TemporaryDirectory() as work:
         for name, launcher in WAYS.items():
-            runs[name] = one_study(Path(work) / name.replace(" ", "_"), launcher)
+            runs[name] = one_study(Path(work) / name.replace(" ", "_").replace("'", ""), launcher)
             print(f"{name}: {runs[name]['wall'] / 60:.1f} min", file=sys.stderr)
         folder = Path(work) / "one_process" / "decision"
         arguments.example.mkdir(parents=True, exist_ok=True)
@@ -62,7 +64,7 @@ def main(argv: list[str] | None = None) -> None:
                 shutil.copyfile(folder / name, arguments.example / name)
         verdict = json.loads((folder / "verdict.json").read_text())
     alone, parallel = runs["one process"], runs["two joblib workers"]
-    same = alone["units"][FIGURES].equals(parallel["units"][FIGURES])
+    same = all(alone["units"][FIGURES].equals(run["units"][FIGURES]) for run in runs.values())
     overhead = (alone["wall"] - alone["train_seconds"]) / alone["jobs"]
     figures = {
         "date": datetime.now(timezone.utc).strftime("%Y-%m-%d"),
@@ -91,7 +93,7 @@ def main(argv: list[str] | None = None) -> None:
         *(f"| {name} (`{' '.join(WAYS[name]) or 'hydra/launcher=basic'}`) | {run['wall'] / 60:.1f} min | "
           f"{alone['wall'] / run['wall']:.2f}x |" for name, run in runs.items()),
         "",
-        f"The two give {'the same' if same else 'different'} figures (test and validation figure and parameter count "
+        f"The {len(runs)} give {'the same' if same else 'different'} figures (test and validation figure and parameter count "
         f"of every unit, compared exactly). Time a job adds beyond its training (loading, evaluation, records; one "
         f"process): {overhead:.2f} s.",
         "",

@@ -85,7 +85,7 @@ class BatchRunner:
             # study's one line says what happened.
             filters = os.environ.get("PYTHONWARNINGS", "")
             os.environ["PYTHONWARNINGS"] = ",".join(filter(None, [filters, "ignore:resource_tracker:UserWarning"]))
-        self.workers = int(config.hydra.launcher.get("n_jobs") or 1)
+        self.workers = launcher_workers(self.name, config.hydra.launcher)
         self.jobs = 0
         self.say = say
 
@@ -107,7 +107,12 @@ class BatchRunner:
         return records
 
     def launch(self, batch: list[list[str]]) -> list[dict[str, Any]]:
-        """One pass of ``batch`` through the launcher."""
+        """One pass of ``batch`` through the launcher. submitit's local executor starts every job
+        it is given at once, each a process of its own: it gets the batch a core's worth of jobs
+        at a time, so a batch of ninety units does not start ninety processes on two cores."""
+        if self.name == "LocalLauncher" and len(batch) > self.workers:
+            return [record for first in range(0, len(batch), self.workers)
+                    for record in self.launch(batch[first:first + self.workers])]
         if not batch:
             return []
         # The launchers log every job's overrides; the study prints its own progress.
@@ -128,3 +133,19 @@ class BatchRunner:
             except Exception as error:  # the launch itself failed; the job's config stays untrained
                 records.append({"status": "failed", "error": f"{type(error).__name__}: {error}", "overrides": overrides})
         return records
+
+
+def launcher_workers(name: str, launcher: DictConfig) -> int:
+    """How many jobs a launcher runs at once: joblib's ``n_jobs`` (negative counts back from the
+    cores, as joblib does), one per core for submitit's local executor (see
+    :meth:`BatchRunner.launch`), SLURM's ``array_parallelism``, else one."""
+    from shiftbench.runtime import available_cores
+
+    if name == "JoblibLauncher":
+        asked = int(launcher.get("n_jobs") or 1)
+        return asked if asked > 0 else max(1, available_cores() + 1 + asked)
+    if name == "LocalLauncher":
+        return available_cores()
+    if name == "SlurmLauncher":
+        return int(launcher.get("array_parallelism") or 1)
+    return 1

@@ -81,3 +81,27 @@ def test_ctrl_c_in_the_study_is_one_line_and_status_130_and_the_rerun_goes_on(tm
     rerun = subprocess.run(command, capture_output=True, text=True, timeout=300)
     assert rerun.returncode == 0, rerun.stderr
     assert (tmp_path / "cut" / "decision" / "verdict.md").is_file()
+
+
+def test_submitits_local_executor_gets_a_cores_worth_of_jobs_at_a_time(tmp_path, monkeypatch):
+    # submitit's LocalExecutor starts a process for every job it is handed; a study's batch of
+    # units must not become that many processes at once.
+    from hydra import initialize_config_dir
+
+    from shiftbench.batch import BatchRunner
+    from shiftbench.config_store import register_defaults
+    from shiftbench.runtime import available_cores
+
+    register_defaults()
+    with initialize_config_dir(str(CONFIG_DIR.resolve()), version_base="1.3", job_name="shiftbench"):
+        runner = BatchRunner(["hydra/launcher=submitit_local"], tmp_path, say=lambda line: None)
+    handed: list[int] = []
+
+    class Returned:
+        def __init__(self, overrides):
+            self.return_value = {"status": "completed", "overrides": overrides}
+
+    monkeypatch.setattr(runner.launcher, "launch", lambda batch, initial_job_idx: handed.append(len(batch)) or [Returned(b) for b in batch])
+    records = runner([[f"seed={seed}"] for seed in range(7)])
+    assert runner.workers == available_cores() and max(handed) <= available_cores() and sum(handed) == 7
+    assert [record["overrides"] for record in records] == [[f"seed={seed}"] for seed in range(7)]
