@@ -134,6 +134,7 @@ def test_claims_files_carry_every_id_in_order(tmp_path, small_demo):
     assert [claim["id"] for claim in written["claims"]] == CLAIM_IDS
     assert all(claim["verdict"] in claims.VERDICTS for claim in written["claims"])
     assert "## graph_matters: not_enough_evidence" in text
+    assert written["graph_check"]["figures"]["data"] == small_demo.name and "Graph check of" in text
     assert [row["nodes"] for row in written["analyses"]["transfer"]] == [24, 48, 96]
     assert (tmp_path / "frequency_responses.png").stat().st_size > 1000
 
@@ -176,3 +177,26 @@ def test_line_graph_equivalence_on_a_test_split_without_targets_is_not_enough_ev
     claim = claims.line_graph_equivalence(dataclasses.replace(dataset, labels=labels), seeds=(0,), epochs=2,
                                           task=TASKS["node_regression"])
     assert claim.verdict == "not_enough_evidence" and "not finite" in claim.explanation
+
+
+def test_a_native_graph_ahead_on_average_with_an_interval_reaching_zero_is_not_enough_evidence_not_a_failure():
+    # Differences +0.11, +0.02, +0.20: mean 0.11, standard deviation 0.09, 95% t interval
+    # (2 degrees of freedom) -0.114 to 0.334: ahead, not shown. The seeds that would show it: the
+    # smallest n with t_{n-1} s / sqrt(n) < mean, with scipy.stats.t's quantiles.
+    from scipy import stats
+
+    rows = [gnn_record(graph, seed, accuracy) for seed, (native, rewired) in enumerate([(0.61, 0.50), (0.52, 0.50), (0.70, 0.50)])
+            for graph, accuracy in (("native", native), ("rewired", rewired))]
+    claim = claims.graph_matters(pd.DataFrame(rows))
+    assert claim.verdict == "not_enough_evidence"
+    spread = float(np.std([0.11, 0.02, 0.20], ddof=1))
+    expected = next(n for n in range(3, 100) if stats.t.ppf(0.975, n - 1) * spread / np.sqrt(n) < 0.11)
+    assert f"about {expected} seeds would show it" in claim.explanation
+
+
+def test_the_claims_flag_a_graph_the_signals_are_smooth_on_that_the_trained_runs_did_not_use():
+    from shiftbench.graph_check import Comparison, GraphCheck, claims_agreement
+
+    smooth = GraphCheck("d", "g", 10, 20, 5, 5, [Comparison("Moran's I", 0.5, 0.0, 0.05, 0.01, 99, True)])
+    assert "yet the tuned graph models gained nothing" in claims_agreement(smooth, "does_not_hold")
+    assert claims_agreement(smooth, "holds") is None and claims_agreement(smooth, "not_enough_evidence") is None

@@ -6,7 +6,7 @@ import scipy.sparse as sp
 
 from shiftbench.data.sensor_regimes import sensor_regimes
 from shiftbench.graph_check import (
-    band_coefficients, band_energies, check_graph, dirichlet_energy, morans_i, normalized_laplacian, structure,
+    band_coefficients, band_energies, check_graph, dirichlet_energy, morans_i, normalized_laplacian, sentence, structure,
 )
 from shiftbench.graphs.sources import rewired_graph
 from shiftbench.graphs.standard import grid_graph
@@ -59,8 +59,8 @@ def test_the_bands_split_a_signal_s_energy_about_whole():
 
 def test_the_demo_signals_live_on_their_graph_and_not_on_a_rewiring_of_it():
     dataset = sensor_regimes(nodes=32, samples_per_class=40)
-    native = check_graph(dataset, dataset.native_graph, classes=True, rewirings=19, spectral_rewirings=9)
-    null = check_graph(dataset, rewired_graph(dataset.native_graph, 10, 7), classes=True, rewirings=19, spectral_rewirings=9)
+    native = check_graph(dataset, dataset.native_graph, "classification", rewirings=19, spectral_rewirings=9)
+    null = check_graph(dataset, rewired_graph(dataset.native_graph, 10, 7), "classification", rewirings=19, spectral_rewirings=9)
     by_name = lambda check: {c.name: c for c in check.comparisons}
     assert by_name(native)["Moran's I"].p == 0.05 and by_name(native)["Dirichlet energy"].p == 0.05
     assert by_name(null)["Moran's I"].p > 0.1
@@ -76,6 +76,51 @@ def test_a_graph_with_a_single_edge_has_nothing_to_compare_and_says_so():
 
     dataset = sensor_regimes(nodes=8, samples_per_class=10)
     pair = Graph(nodes=8, edge_index=torch.tensor([[0, 1], [1, 0]]), edge_weight=torch.ones(2), name="pair")
-    check = check_graph(dataclasses.replace(dataset, native_graph=pair), pair, classes=True, rewirings=5)
+    check = check_graph(dataclasses.replace(dataset, native_graph=pair), pair, "classification", rewirings=5)
     assert check.comparisons == [] and any("cannot change the graph" in note for note in check.notes)
     assert any("6 isolated nodes" in note for note in check.notes)
+
+
+def test_neighbour_rows_hold_each_nodes_own_features_and_its_neighbours_mean_as_networkx_counts_them():
+    # Reference: networkx.neighbors, averaged by hand for every node of every sample.
+    from shiftbench.graph_check import neighbour_rows
+
+    graph = nx.path_graph(5)
+    graph.add_edge(0, 3)
+    adjacency = sp.csr_matrix(nx.to_scipy_sparse_array(graph, nodelist=range(5)), dtype=float)
+    signals = np.random.default_rng(4).standard_normal((3, 5, 2))
+    rows = neighbour_rows(signals, adjacency).reshape(3, 5, 4)
+    for node in range(5):
+        expected = signals[:, list(graph.neighbors(node)), :].mean(axis=1)
+        np.testing.assert_allclose(rows[:, node, 2:], expected, rtol=1e-12)
+    np.testing.assert_array_equal(rows[:, :, :2], signals)
+
+
+def planted_node_values(on_graph: bool):
+    """Values on every node: the mean of the neighbours' signals on a grid (planted), or a
+    node's own signal only (null: neighbours carry nothing beyond it)."""
+    import dataclasses
+
+    from shiftbench.graph_check import neighbour_rows
+
+    dataset = sensor_regimes(nodes=36, samples_per_class=30, seed=5)
+    grid = grid_graph(6, 6)
+    rng = np.random.default_rng(6)
+    signals = rng.standard_normal((dataset.samples, 36, 1)).astype(np.float32)
+    parts = neighbour_rows(signals.astype(np.float64), structure(grid)).reshape(dataset.samples, 36, 2)
+    values = parts[:, :, 1:] if on_graph else parts[:, :, :1] ** 2
+    values = values + 0.1 * rng.standard_normal(values.shape)
+    return dataclasses.replace(dataset, signals=signals, labels=values.astype(np.float32), native_graph=grid)
+
+
+def test_node_targets_planted_on_the_neighbours_are_found_and_a_null_is_not():
+    # Planted: each node's value is its grid neighbours' mean signal, so the grid predicts it and
+    # a rewiring does not; null: the value is a function of the node's own signal alone.
+    planted = planted_node_values(on_graph=True)
+    found = check_graph(planted, planted.native_graph, "node_regression", rewirings=9, spectral_rewirings=9)
+    (neighbours,) = [c for c in found.comparisons if c.name == "neighbour-prediction R^2"]
+    assert neighbours.observed > 0.8 > neighbours.rewired_mean and neighbours.p == 0.1
+    null = planted_node_values(on_graph=False)
+    missed = check_graph(null, null.native_graph, "node_regression", rewirings=9, spectral_rewirings=9)
+    (neighbours,) = [c for c in missed.comparisons if c.name == "neighbour-prediction R^2"]
+    assert neighbours.p > 0.1 and "predicted no better from its neighbours" in sentence(missed)

@@ -115,7 +115,8 @@ def test_every_config_key_that_varies_is_a_column_of_every_table(tmp_path):
     markdown = (tmp_path / "out" / "summary.md").read_text()
     assert {"arch.readout", "train.lr"} <= set(csv.columns) and len(csv) == 4
     assert sorted(zip(csv["arch.readout"], csv["train.lr"])) == [("flatten", 0.001), ("flatten", 0.01), ("mean", 0.001), ("mean", 0.01)]
-    assert "arch.readout" in text.splitlines()[2] and "train.lr" in text.splitlines()[2]
+    header = next(line for line in text.splitlines() if line.startswith("row"))
+    assert "arch.readout" in header and "train.lr" in header
     assert "| arch.readout | train.lr |" in markdown
 
 
@@ -171,3 +172,25 @@ def test_a_nested_seed_that_only_sometimes_equals_the_run_seed_stays_part_of_the
     entries = [dict(record("fc", "none", None, seed, 0.7), config={"seed": seed, "data": {"seed": 0}}) for seed in range(3)]
     table = summary_table(pd.DataFrame(entries))
     assert len(table) == 1 and table.loc[0, "seeds"] == 3
+
+
+def test_a_report_on_graph_model_records_opens_with_the_graph_check_of_their_data(tmp_path):
+    # The records' own data (the most common data config, loaded again) on its native graph.
+    from shiftbench.job import run_job
+    from tests.conftest import composed
+
+    small = ["data.samples_per_class=20", "data.nodes=12", "train.epochs=2", f"results_dir={tmp_path}"]
+    for family in ("fc", "graph_conv"):
+        run_job(composed([*small, f"arch={family}"]), tmp_path / "sweep", [], live=False, quiet=True)
+    text = write_report([tmp_path / "sweep"], tmp_path / "out")
+    markdown = (tmp_path / "out" / "summary.md").read_text()
+    assert "## Graph check: sensor_regimes on its native graph (sensor_network), before any training" in markdown
+    assert markdown.index("## Graph check") < markdown.index("| graph |") and "| Moran's I |" in markdown
+    assert text.splitlines()[1].startswith("graph check: The signals are")
+
+
+def test_a_report_on_records_without_a_graph_model_has_no_graph_check(tmp_path):
+    for number, entry in enumerate(RECORDS[:3]):
+        write_record(tmp_path / str(number), entry)
+    write_report([tmp_path], tmp_path)
+    assert "Graph check" not in (tmp_path / "summary.md").read_text()

@@ -12,7 +12,7 @@ from __future__ import annotations
 import json
 from collections import Counter
 from collections.abc import Iterable
-from dataclasses import asdict, dataclass, field, replace
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
@@ -21,9 +21,10 @@ import pandas as pd
 from omegaconf import OmegaConf
 
 from shiftbench import claims, plots
-from shiftbench.config import ConfigError, TrainConfig, validate_group
+from shiftbench.config import ConfigError, TrainConfig, most_common_config, validate_group
 from shiftbench.data import Dataset, load_dataset, sensor_regimes
 from shiftbench.data.sensor_regimes import regime_responses
+from shiftbench.graph_check import check_graph, claims_agreement, summary
 from shiftbench.graphs import Graph, build_graph
 from shiftbench.graphs.operators import shift_operator
 from shiftbench.models import ShiftPolynomialNet
@@ -65,26 +66,6 @@ class Subject:
                 "operator": self.graph_config.operator, "scale": self.graph_config.scale, "from": self.origin}
 
 
-def _most_common(configs: Iterable[dict], group: str) -> dict | None:
-    """The config that occurs most often; among equally common ones, the one at its schema's
-    defaults (a study that varies the data around its defaults, as the claims study does)."""
-    counted = Counter(json.dumps(config, sort_keys=True) for config in configs)
-    if not counted:
-        return None
-    top = max(counted.values())
-    tied = [json.loads(text) for text, count in counted.items() if count == top]
-    at_defaults = [config for config in tied if config == _defaults(group, config)]
-    return (at_defaults or tied)[0]
-
-
-def _defaults(group: str, config: dict) -> dict | None:
-    """``config``'s component at its schema's defaults, as plain data (None if it has none)."""
-    try:
-        return asdict(validate_group(group, OmegaConf.create({"source": config.get("source")})))
-    except ConfigError:
-        return None
-
-
 def demo_subject(demo: Dataset, why: str) -> Subject:
     graph_config = validate_group("graph", OmegaConf.create(DEFAULT_GRAPH))
     data = validate_group("data", OmegaConf.create({"source": "sensor_regimes", "nodes": demo.nodes}))
@@ -99,12 +80,12 @@ def subject_of(records: pd.DataFrame, where: str, demo: Dataset) -> Subject:
         if not records.empty and "config" in records else pd.DataFrame()
     if usable.empty:
         return demo_subject(demo, f"no completed records under {where}")
-    data_dict = _most_common((config["data"] for config in usable["config"]), "data")
+    data_dict = most_common_config((config["data"] for config in usable["config"]), "data")
     mine = usable[usable["config"].map(lambda config: config["data"] == data_dict)]
     graphs = [config["graph"] for config, family in zip(mine["config"], mine["family"]) if family == "graph_conv"]
     # The data's own graph before the controls (rewired, line) that share the folder with it.
-    graph_dict = (_most_common((g for g in graphs if g.get("source") == "native"), "graph")
-                  or _most_common(graphs, "graph") or DEFAULT_GRAPH)
+    graph_dict = (most_common_config((g for g in graphs if g.get("source") == "native"), "graph")
+                  or most_common_config(graphs, "graph") or DEFAULT_GRAPH)
     try:
         data = validate_group("data", OmegaConf.create(data_dict))
         graph_config = validate_group("graph", OmegaConf.create(graph_dict))
@@ -287,9 +268,15 @@ def write_claims(
     checked = evaluate(records, seeds, subject)
     suggest_runs(checked, subject, paths[0])
     analyses = learned_filters(out, subject, epochs)
-    content = {"claims": [claim.as_dict() for claim in checked], "analyses": analyses}
+    check = check_graph(subject.dataset, subject.dataset.native_graph, subject.task.name)
+    matters = next(claim.verdict for claim in checked if claim.id == "graph_matters")
+    found = {**summary(check), "agreement": claims_agreement(check, matters)}
+    content = {"claims": [claim.as_dict() for claim in checked], "analyses": analyses, "graph_check": found}
     write_atomic(out / "claims.json", json.dumps(content, indent=2, default=float) + "\n")
     said = f"Computed claims and analyses ran on {format_subject(analyses['subject'])}."
-    text = said + "\n\n" + format_claims(checked)
+    flagged = [f"Flag: {found['agreement']}"] if found["agreement"] else []
+    checked_line = "\n".join([f"Graph check of {check.data} on its native graph ({check.graph}): {found['sentence']}",
+                               *found["table"], *flagged])
+    text = said + "\n\n" + checked_line + "\n\n" + format_claims(checked)
     write_atomic(out / "claims.md", "# Claims\n\n" + text + "\n" + format_analyses(analyses))
     return text + "\n" + format_analyses(analyses)

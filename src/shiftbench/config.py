@@ -316,3 +316,27 @@ def as_plain_dict(run: RunConfig) -> dict[str, Any]:
     """The validated config as plain JSON-ready data."""
     return asdict(run)
 
+
+
+def most_common_config(configs: Iterable[dict], group: str) -> dict | None:
+    """The component config (plain data, e.g. a record's ``data``) that occurs most often;
+    among equally common ones, the one at its schema's defaults (a study that varies the data
+    around its defaults)."""
+    import json
+    from collections import Counter
+
+    counted = Counter(json.dumps(config, sort_keys=True) for config in configs)
+    if not counted:
+        return None
+    top = max(counted.values())
+    tied = [json.loads(text) for text, count in counted.items() if count == top]
+    at_defaults = [config for config in tied if config == _group_defaults(group, config)]
+    return (at_defaults or tied)[0]
+
+
+def _group_defaults(group: str, config: dict) -> dict | None:
+    """``config``'s component at its schema's defaults, as plain data (None if it has none)."""
+    try:
+        return asdict(validate_group(group, OmegaConf.create({"source": config.get("source")})))
+    except ConfigError:
+        return None

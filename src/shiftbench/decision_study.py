@@ -224,7 +224,7 @@ def native_graph_check(dataset: Dataset, settings: Settings) -> GraphCheck | Non
     verdict shows it beside the trained answer)."""
     if not any(candidate.uses_graph for candidate in settings.candidates):
         return None
-    return check_graph(dataset, dataset.native_graph, classes=settings.task.name == "classification")
+    return check_graph(dataset, dataset.native_graph, settings.task.name)
 
 
 def tuning_summary(per_unit: dict[int, Tuning], task: Task) -> dict[str, Any]:

@@ -10,6 +10,10 @@ signals on the graph's structure against the same on degree-preserving rewirings
   spectrum ``[0, 2]``, where ``h_b`` is a Chebyshev approximation of the band's indicator (sparse
   products only, no eigendecomposition); a cross-validated logistic regression on the log band
   energies says how well they tell the classes apart.
+- **Targets from neighbours** (node tasks): each node's target predicted, by a cross-validated
+  linear model pooled over nodes, from its own signal and the mean of its neighbours' signals
+  (``[x_n, (D^-1 A x)_n]``); on a rewiring only the neighbours change, so the comparison is what
+  the graph's neighbourhoods add to a node's own signal (R^2 for values, accuracy for classes).
 
 Every figure is computed on the graph's edges with weights ignored and direction dropped, on the
 graph and on ``rewirings`` degree-preserving rewirings of it (networkx's double-edge swaps), so
@@ -33,6 +37,9 @@ from shiftbench.graphs.sources import rewired_graph
 
 # Signals beyond this many are a seeded sample of them (the check says so).
 MAX_SIGNALS = 4000
+# Node rows (sample x node) the neighbour-prediction check fits at most: a seeded sample of
+# samples beyond it.
+MAX_NODE_ROWS = 50_000
 BANDS = 6
 CHEBYSHEV_ORDER = 24
 # Swaps per edge of each rewiring: enough to scramble the structure, few enough for seconds.
@@ -129,6 +136,44 @@ def spectral_accuracy(energies: np.ndarray, labels: np.ndarray, features: int, s
     return float(cross_val_score(model, np.nan_to_num(table), labels, cv=StratifiedKFold(folds, shuffle=True, random_state=seed)).mean())
 
 
+def neighbour_rows(signals: np.ndarray, adjacency: sp.csr_matrix) -> np.ndarray:
+    """Each node's own features and its neighbours' mean, ``[x_n, (D^-1 A x)_n]`` (zero for a
+    node without neighbours). Shapes: signals ``(samples, nodes, features)``; returns
+    ``(samples * nodes, 2 * features)``, rows sample-major."""
+    degrees = np.asarray(adjacency.sum(axis=1)).ravel()
+    mean = sp.diags(np.divide(1.0, degrees, out=np.zeros_like(degrees), where=degrees > 0)) @ adjacency
+    samples, nodes, features = signals.shape
+    columns = np.transpose(signals, (1, 0, 2)).reshape(nodes, samples * features)  # one product for all
+    neighbours = np.transpose((mean @ columns).reshape(nodes, samples, features), (1, 0, 2))
+    return np.concatenate([signals, neighbours], axis=2).reshape(samples * nodes, 2 * features)
+
+
+def neighbour_score(table: np.ndarray, targets: np.ndarray, groups: np.ndarray, classes: bool) -> float:
+    """5-fold cross-validated score of a standardized linear model from ``table`` to ``targets``,
+    folds by sample (``groups``) so no sample's nodes straddle a fold: R^2 of ridge regression
+    (mean over outputs) for values, accuracy of logistic regression for classes. Shapes: table
+    ``(rows, columns)``, targets ``(rows,)`` or ``(rows, outputs)``, groups ``(rows,)``."""
+    from sklearn.linear_model import LogisticRegression, RidgeCV
+    from sklearn.model_selection import GroupKFold, cross_val_score
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+
+    model = make_pipeline(StandardScaler(), LogisticRegression(max_iter=1000) if classes else RidgeCV())
+    folds = GroupKFold(n_splits=min(5, len(np.unique(groups))))
+    return float(cross_val_score(model, table, targets, groups=groups, cv=folds).mean())
+
+
+def node_targets(dataset: Dataset, kept: np.ndarray) -> tuple[np.ndarray, np.ndarray, bool]:
+    """The node targets of the ``kept`` samples as rows (sample-major), which rows are targets,
+    and whether they are classes. Shapes: ``(kept * nodes,)`` or ``(kept * nodes, outputs)``."""
+    labels = dataset.labels[kept]
+    if labels.ndim == 2:  # classes on nodes, -1 where not a target
+        flat = labels.reshape(-1)
+        return flat, flat >= 0, True
+    flat = labels.reshape(len(kept) * dataset.nodes, -1).astype(np.float64)
+    return flat, ~np.isnan(flat).any(axis=1), False
+
+
 @dataclass
 class Comparison:
     """One statistic on the graph against its rewirings; ``larger_is_structure``: whether the
@@ -180,9 +225,11 @@ def signal_rows(dataset: Dataset, limit: int, seed: int) -> tuple[np.ndarray, np
     return rows, keep, samples
 
 
-def check_graph(dataset: Dataset, graph: Graph, classes: bool, rewirings: int = 99, spectral_rewirings: int = 19,
+def check_graph(dataset: Dataset, graph: Graph, task: str, rewirings: int = 99, spectral_rewirings: int = 19,
                 seed: int = 0) -> GraphCheck:
-    """The graph check of ``dataset``'s signals on ``graph`` (see the module's docstring)."""
+    """The graph check of ``dataset``'s signals on ``graph`` for ``task`` (a task's name; see the
+    module's docstring): smoothness always, band energies for classes per signal, neighbour
+    prediction for targets on nodes; the model-based ones on ``spectral_rewirings``."""
     started = time.perf_counter()
     adjacency = structure(graph)
     rows, kept, total = signal_rows(dataset, MAX_SIGNALS, seed)
@@ -201,14 +248,32 @@ def check_graph(dataset: Dataset, graph: Graph, classes: bool, rewirings: int = 
         observed = float(np.nanmean(statistic(rows, adjacency)))
         rewired = [float(np.nanmean(statistic(rows, control))) for control in controls]
         result.comparisons.append(Comparison.of(name, observed, rewired, larger))
-    if classes:
+    if task == "classification":
         labels = dataset.labels[kept]
         coefficients = band_coefficients()
         score = lambda matrix: spectral_accuracy(band_energies(rows, matrix, coefficients), labels, dataset.features, seed)
         result.comparisons.append(Comparison.of("band-energy accuracy", score(adjacency),
                                                 [score(control) for control in controls[:spectral_rewirings]], True))
+    elif task in ("node_regression", "node_classification"):
+        result.comparisons.append(neighbour_comparison(dataset, kept, adjacency, controls[:spectral_rewirings], seed, result.notes))
     result.seconds = time.perf_counter() - started
     return result
+
+
+def neighbour_comparison(dataset: Dataset, kept: np.ndarray, adjacency: sp.csr_matrix, controls: list[sp.csr_matrix],
+                         seed: int, notes: list[str]) -> Comparison:
+    """Targets on nodes predicted from ``[own, neighbours' mean]`` on the graph against
+    ``controls``, over at most :data:`MAX_NODE_ROWS` node rows (a seeded sample of samples)."""
+    if len(kept) * dataset.nodes > MAX_NODE_ROWS:
+        fewer = max(5, MAX_NODE_ROWS // dataset.nodes)
+        kept = np.sort(np.random.default_rng(seed).choice(kept, size=min(fewer, len(kept)), replace=False))
+        notes.append(f"neighbour prediction on {len(kept)} samples (a seeded sample), to stay within seconds")
+    targets, scored, classes = node_targets(dataset, kept)
+    groups = np.repeat(np.arange(len(kept)), dataset.nodes)
+    signals = dataset.signals[kept].astype(np.float64)
+    score = lambda matrix: neighbour_score(neighbour_rows(signals, matrix)[scored], targets[scored], groups[scored], classes)
+    name = "neighbour-prediction accuracy" if classes else "neighbour-prediction R^2"
+    return Comparison.of(name, score(adjacency), [score(control) for control in controls], True)
 
 
 def sentence(check: GraphCheck) -> str:
@@ -223,6 +288,11 @@ def sentence(check: GraphCheck) -> str:
         head = "The signals vary more across your graph's edges than across rewired ones: they alternate on it"
     else:
         head = "The signals are no smoother on your graph than on graphs with its degrees"
+    neighbours = next((c for c in check.comparisons if c.name.startswith("neighbour-prediction")), None)
+    if neighbours is not None:
+        better = neighbours.p <= check.alpha
+        head += (f"; each node's target is predicted {'better' if better else 'no better'} from its neighbours' signals "
+                 f"on it than on rewirings")
     if spectral is not None:
         if spectral.p <= check.alpha:
             head += "; the classes differ in their graph-spectral content more on it than on rewirings"
@@ -266,7 +336,7 @@ def check_config(arguments: list[str], config_dir: Path, rewirings: int = 99) ->
         run = validate(job_config(compose("config", overrides=arguments, return_hydra_config=True)))
     dataset = load_data(run)
     graph = build_graph(run.graph, dataset)
-    check = check_graph(dataset, graph, classes=run.task == "classification", rewirings=rewirings, seed=run.seed)
+    check = check_graph(dataset, graph, run.task, rewirings=rewirings, seed=run.seed)
     folder = Path(run.results_dir) / "graph_check"
     folder.mkdir(parents=True, exist_ok=True)
     stem = f"{dataset.name}_{run.graph.source}"
@@ -301,3 +371,37 @@ def summary(check: GraphCheck) -> dict[str, Any]:
     table = markdown(check).split("\n")
     return {"figures": check.as_dict(), "sentence": sentence(check),
             "table": [line for line in table if line.startswith("|")], "notes": check.notes}
+
+
+def records_check(records: Any) -> tuple[GraphCheck | None, str]:
+    """The check of the data most completed records were trained on, on its native graph, for
+    their task: what a families report or the claims show beside their own figures. Returns
+    ``(None, why)`` when no record names data that loads here."""
+    from omegaconf import OmegaConf
+
+    from shiftbench.config import most_common_config, validate_group
+    from shiftbench.data import load_dataset
+    from shiftbench.errors import ConfigError
+
+    if records.empty or "config" not in records:
+        return None, "no records with a config"
+    usable = records[records["status"].eq("completed")
+                     & records["config"].map(lambda config: isinstance(config, dict) and isinstance(config.get("data"), dict))]
+    data = most_common_config((config["data"] for config in usable["config"]), "data")
+    if data is None:
+        return None, "no completed records"
+    mine = usable[usable["config"].map(lambda config: config["data"] == data)]
+    tasks = mine["task"].dropna() if "task" in mine else []
+    task = tasks.mode().iloc[0] if len(tasks) else "classification"
+    try:
+        dataset = load_dataset(validate_group("data", OmegaConf.create(data)))
+    except ConfigError as error:
+        return None, f"the records' data cannot be loaded here: {error}"
+    return check_graph(dataset, dataset.native_graph, task), ""
+
+
+def claims_agreement(check: GraphCheck, graph_matters: str) -> str | None:
+    """:func:`agreement_note` for the claims' ``graph_matters`` verdict: ``holds`` credits the
+    graph, ``does_not_hold`` finds nothing from it, ``not_enough_evidence`` says nothing."""
+    outcomes = {"holds": ["earns_its_keep"], "does_not_hold": ["does_not_earn_its_keep"]}.get(graph_matters, [])
+    return agreement_note(check, outcomes)

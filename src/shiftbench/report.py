@@ -410,7 +410,8 @@ def write_report(
     configs = {path: flat_config(config) for path, config in zip(records.get("path", []), records.get("config", []))
                if isinstance(config, dict)}
     notes = [f"note: {note}" for note in near_chance_notes(table, configs)]
-    markdown = ["# Summary", ""] + ([outcomes + ".", ""] if outcomes else [])
+    check = graph_check_lines(records)
+    markdown = ["# Summary", ""] + ([outcomes + ".", ""] if outcomes else []) + check
     if constants:
         markdown += [f"All rows: {', '.join(f'`{k}={v}`' for k, v in constants.items())}.", ""]
     markdown += [format_markdown(shown)]
@@ -420,4 +421,23 @@ def write_report(
     text = format_terminal(shown)
     head = _constants_line(constants)
     written = ", ".join(figure.name for figure in figures)
-    return "\n".join(filter(None, [outcomes, head, text, *notes, f"plots: {written}" if written else ""]))
+    said = f"graph check: {check[2]}" if check else ""
+    return "\n".join(filter(None, [outcomes, said, head, text, *notes, f"plots: {written}" if written else ""]))
+
+
+def graph_check_lines(records: pd.DataFrame) -> list[str]:
+    """The graph check's section of the summary (heading, sentence, table), when a record's
+    family reads a graph; none otherwise."""
+    from shiftbench.graph_check import records_check, summary
+    from shiftbench.registry import FAMILIES
+
+    families = set(records.get("family", pd.Series(dtype=object)).dropna())
+    if not any(name in FAMILIES and FAMILIES[name].uses_graph for name in families):
+        return []
+    check, why = records_check(records)
+    if check is None:
+        return ["## Graph check", "", f"Not run: {why}.", ""]
+    found = summary(check)
+    heading = f"## Graph check: {check.data} on its native graph ({check.graph}), before any training"
+    return [heading, "", found["sentence"], "", *found["table"], "", *[f"- note: {note}" for note in check.notes]]
+
