@@ -81,11 +81,13 @@ def usable_figure(record: dict[str, Any], key: str) -> float | None:
 @dataclass
 class Tuning:
     """One tuning of a candidate on one unit: the chosen overrides, every trial's validation
-    figure in the order run (None for a failed trial), and its Optuna study (None for a floor)."""
+    figure in the order run (None for a failed trial), its Optuna study (None for a floor),
+    and how many other trials tied with the chosen one at the best figure."""
 
     chosen: list[str]
     values: list[float | None] = field(default_factory=list)
     study: Any = None
+    tied: int = 0
 
     @property
     def failed(self) -> int:
@@ -112,14 +114,14 @@ def tune_all(
     metric, trials, at_once = settings.task.metric, settings.study.trials, settings.study.parallel_trials
     direction = "maximize" if settings.task.higher_is_better else "minimize"
     tuned = [(candidate, unit) for candidate, unit in tasks if FAMILIES[candidate.family].fit is None]
-    studies, values = {}, {}
+    studies, values, sizes = {}, {}, {}
     for candidate, unit in tuned:
         sampler = optuna.samplers.TPESampler(seed=sampler_seed, constant_liar=True)
         study = optuna.create_study(direction=direction, sampler=sampler)
         held = configured_values(settings.spaces[candidate.family], configured(candidate))
         if held:
             study.enqueue_trial(held)
-        studies[candidate.name, unit], values[candidate.name, unit] = study, []
+        studies[candidate.name, unit], values[candidate.name, unit], sizes[candidate.name, unit] = study, [], []
     for first in range(0, trials if tuned else 0, at_once):
         numbers = range(first, min(first + at_once, trials))
         jobs = [(candidate, unit, number) for candidate, unit in tuned for number in numbers]
@@ -132,6 +134,7 @@ def tune_all(
             key, trial = (candidate.name, unit), asked[candidate.name, unit, number]
             value = usable_figure(record, f"val_{metric}")
             values[key].append(value)
+            sizes[key].append(record.get("parameters"))
             where = f"  fold {unit} trial {number + 1}/{trials} of {candidate.name}"
             if value is None:
                 studies[key].tell(trial, state=optuna.trial.TrialState.FAIL)
@@ -143,9 +146,22 @@ def tune_all(
     for (name, unit), study in studies.items():
         if all(value is None for value in values[name, unit]):
             raise DecisionError(f"every tuning trial of {name} on fold {unit} failed; see the failed records in the store")
-        chosen = [f"{key}={override_text(value)}" for key, value in study.best_trial.params.items()]
-        tunings[name, unit] = Tuning(chosen, values[name, unit], study)
+        number, tied = tie_broken_best(values[name, unit], sizes[name, unit], settings.task.higher_is_better)
+        chosen = [f"{key}={override_text(value)}" for key, value in study.trials[number].params.items()]
+        tunings[name, unit] = Tuning(chosen, values[name, unit], study, tied)
     return tunings
+
+
+def tie_broken_best(values: list[float | None], parameters: list[Any], higher_is_better: bool) -> tuple[int, int]:
+    """The trial a tuning chooses: the best validation figure; among trials tied at it (equal to
+    1e-12), the one with the fewest parameters, then the earliest. Returns its number and how
+    many others tied with it. ``values`` holds at least one figure."""
+    sign = 1.0 if higher_is_better else -1.0
+    best = max(sign * value for value in values if value is not None)
+    level = [number for number, value in enumerate(values) if value is not None and abs(sign * value - best) <= 1e-12]
+    size = lambda number: parameters[number] if isinstance(parameters[number], (int, float)) else math.inf
+    chosen = min(level, key=lambda number: (size(number), number))
+    return chosen, len(level) - 1
 
 
 def evaluate_all(chosen: dict[str, dict[int, list[str]]], settings: Settings, run: RunBatch) -> pd.DataFrame:

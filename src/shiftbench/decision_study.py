@@ -146,6 +146,9 @@ def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, c
         f"{study.trials} trials a tuning, {study.splits} folds x {study.repetitions} repetitions x {study.seeds} seeds; "
         f"jobs through hydra/launcher {runner.name} with {runner.workers} worker{'s' * (runner.workers > 1)}")
     data = loaded(composed([f"data={dataset}", *common, "arch=fc"]))
+    warnings = rope_warnings(data, settings)
+    for line in warnings:
+        say(f"warning: {line}")
     check = native_graph_check(data, settings)
     units, tunings = run_protocol(settings, study.sampler_seed, run, say, configured)
     if storage is not None:
@@ -156,6 +159,7 @@ def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, c
         result["graph_check"] = {**summary(check), "agreement": agreement_note(check, outcomes)}
     curves = tuning_curves(tunings, settings)
     notes = [budget_note(curves, settings)] if len(curves) > 1 else []
+    notes += tie_notes(tunings, settings)
     if study.tuning_seeds > 1:
         notes += stability_notes(result, settings, run, say, configured)
     metric = settings.task.metric
@@ -164,7 +168,7 @@ def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, c
         protocol=protocol_text(settings, data.in_time_order),
         tuning={name: tuning_summary(per_unit, settings.task) for name, per_unit in tunings.items()},
         failed_trials=sum(tuning.failed for per_unit in tunings.values() for tuning in per_unit.values()),
-        tuning_notes=notes,
+        tuning_notes=notes, notes=warnings,
         launcher=runner.name, workers=runner.workers, parallel_trials=study.parallel_trials,
         tuning_storage=storage_text(study.storage, folder),
         minutes=(time.perf_counter() - started) / 60,
@@ -211,6 +215,20 @@ def storage_text(setting: str, folder: Path) -> str | None:
     return make_url(setting).render_as_string(hide_password=True)
 
 
+def rope_warnings(data: Dataset, settings: Settings) -> list[str]:
+    """A ROPE finer than one test sample's share of accuracy: a fold's figure moves in steps of
+    ``1 / n_test``, so "equivalent within the ROPE" is then nearly out of reach."""
+    if settings.task.metric != "accuracy" or data.labels.ndim != 1:
+        return []
+    tested = data.samples // settings.study.splits
+    step = 1.0 / max(tested, 1)
+    if settings.study.rope >= step:
+        return []
+    return [f"decision.rope={settings.study.rope:g} is finer than one test sample's share of accuracy (1/{tested} = {step:.4f} "
+            f"with {tested} test samples a fold): equivalence is nearly out of reach; accepted but consider "
+            f"decision.rope={step:.3g} or more, or fewer folds (larger test parts)"]
+
+
 def loaded(config: DictConfig) -> Dataset:
     """The dataset a composed job config names, under its own split."""
     from shiftbench.config import validate
@@ -235,7 +253,23 @@ def tuning_summary(per_unit: dict[int, Tuning], task: Task) -> dict[str, Any]:
     best = (max if task.higher_is_better else min)(finite) if finite else None
     return {"chosen": first.chosen, "trials": len(first.values), "failed": sum(t.failed for t in per_unit.values()),
             f"best_val_{task.metric}": best,
-            "folds": {str(unit): {"chosen": tuning.chosen, "values": tuning.values} for unit, tuning in per_unit.items()}}
+            "folds": {str(unit): {"chosen": tuning.chosen, "values": tuning.values, "tied": tuning.tied}
+                      for unit, tuning in per_unit.items()}}
+
+
+def tie_notes(tunings: dict[str, dict[int, Tuning]], settings: Settings) -> list[str]:
+    """One line per tuned candidate whose best validation figure was shared by several trials
+    in some fold, saying the rule that chose among them."""
+    notes = []
+    for candidate in settings.candidates:
+        if candidate.control_of and not settings.study.tune_controls:
+            continue
+        tied = {unit: tuning.tied for unit, tuning in tunings[candidate.name].items() if tuning.tied}
+        if tied:
+            folds = ", ".join(f"fold {unit} ({count + 1} trials)" for unit, count in tied.items())
+            notes.append(f"{candidate.name}: trials tied at the best validation {settings.task.metric} in {folds}; the one with "
+                         "the fewest parameters, then the earliest, was chosen.")
+    return notes
 
 
 def tuning_curves(tunings: dict[str, dict[int, Tuning]], settings: Settings) -> dict[str, np.ndarray]:

@@ -78,7 +78,7 @@ def verdict(units: pd.DataFrame, candidates: list[Candidate], study: StudyConfig
     if not floors:
         raise DecisionError("no graph-free candidate completed every fold; rerun the study to fill the failed ones")
     means = per_fold.groupby(level="candidate").mean()
-    reference = max(floors, key=lambda c: (sign * means.loc[c.name, val], -candidates.index(c))).name
+    reference, tied = strongest(floors, means, val, sign)
 
     def figures(name: str) -> np.ndarray:
         """The candidate's test figures per fold, signed so that larger is better."""
@@ -104,7 +104,7 @@ def verdict(units: pd.DataFrame, candidates: list[Candidate], study: StudyConfig
             entry.update(outcome="control", control_of=candidate.control_of,
                          sentence=_control_sentence(name, candidate.control_of, _value(means, name, test), task))
         elif name == reference:
-            entry.update(outcome="reference", sentence=_reference_sentence(name, means, task))
+            entry.update(outcome="reference", tied=tied, sentence=_reference_sentence(name, means, task, tied))
         elif missing[name]:
             entry.update(outcome="missing_units", missing=missing[name],
                          sentence=f"{name} cannot be compared: it has no usable run for folds "
@@ -249,10 +249,23 @@ def _cost(means: pd.DataFrame, name: str, reference: str) -> dict[str, Any]:
     }
 
 
-def _reference_sentence(name: str, means: pd.DataFrame, task: Task) -> str:
+def strongest(floors: list[Candidate], means: pd.DataFrame, val: str, sign: float) -> tuple[str, list[str]]:
+    """The graph-free candidate best on validation, and the others tied with it. A tie goes to
+    the one cheapest to train (mean training seconds, a test-free cost), then to the first name
+    in alphabetical order: never to the order the candidates were listed in."""
+    best = max(sign * means.loc[c.name, val] for c in floors)
+    level = [c.name for c in floors if abs(sign * means.loc[c.name, val] - best) <= 1e-12]
+    seconds = lambda name: _value(means, name, "train_seconds") or 0.0
+    chosen = min(level, key=lambda name: (seconds(name), name))
+    return chosen, [name for name in sorted(level) if name != chosen]
+
+
+def _reference_sentence(name: str, means: pd.DataFrame, task: Task, tied: list[str]) -> str:
     figure = _value(means, name, f"test_{task.metric}")
+    tie = (f" It ties on validation with {', '.join(tied)}; of the tied, the one cheapest to train is the reference."
+           if tied else "")
     return (f"{name} is the strongest graph-free candidate on validation (mean test {task.metric} {figure:.3f}): "
-            "the others are compared with it.")
+            f"the others are compared with it.{tie}")
 
 
 def _control_sentence(name: str, of: str, figure: float | None, task: Task) -> str:
@@ -309,6 +322,8 @@ def write_verdict(result: dict[str, Any], folder: Path) -> str:
               "Bayesian correlated t-test (baycomp)."]
     if "protocol" in result:
         lines += ["", f"Protocol: {result['protocol']}"]
+    if result.get("notes"):
+        lines += ["", "## Notes", "", *(f"- {note}" for note in result["notes"])]
     if result.get("tuning_notes"):
         lines += ["", "## The tuning's budget and luck", "", *(f"- {note}" for note in result["tuning_notes"])]
     markdown = "\n".join(lines) + "\n"

@@ -53,6 +53,7 @@ STAGES = {
     "shiftbench.decision_protocol": 10,
     "shiftbench.verdict": 10,
     "shiftbench.decision_study": 10,
+    "shiftbench.tuning_storage": 10,
     "shiftbench.cli": 11,
 }
 

@@ -231,3 +231,38 @@ def test_for_an_error_metric_lower_is_better_and_the_sentence_says_the_error_dif
     assert entry(result, "graph_conv")["sentence"].startswith("graph_conv earns its keep over ridge: -0.1")
     assert entry(result, "fc")["outcome"] == "does_not_earn_its_keep"
     assert "fc does not earn its keep over ridge: +0.1" in entry(result, "fc")["sentence"]  # +0.199: an error said as it is
+
+
+def test_floors_tied_on_validation_give_the_same_reference_in_any_list_order_and_the_verdict_names_the_tie():
+    # Two floors at exactly the same validation figure: the one cheaper to train is the
+    # reference whichever is listed first (the rule; common practice, no source).
+    logistic = Candidate("logistic", ("arch=logistic",), "logistic", False)
+    lda = Candidate("lda", ("arch=lda",), "lda", False)
+    base = noisy(0.80, 0.02)
+    rows = units({"graph_conv": base + 0.05, "logistic": base + 0.10, "lda": base - 0.05}, {"logistic": 0.975, "lda": 0.975})
+    rows.loc[rows["candidate"] == "logistic", "train_seconds"] = 0.5
+    first = verdict(rows, [GNN, lda, logistic], TEN_FOLDS, CLASSIFICATION)
+    second = verdict(rows, [GNN, logistic, lda], TEN_FOLDS, CLASSIFICATION)
+    assert first["reference"] == second["reference"] == "logistic"
+    assert entry(first, "graph_conv")["outcome"] == entry(second, "graph_conv")["outcome"]
+    assert entry(first, "logistic")["tied"] == ["lda"] and "It ties on validation with lda" in entry(first, "logistic")["sentence"]
+
+
+def test_a_tuning_tie_goes_to_the_trial_with_the_fewest_parameters_then_the_earliest():
+    from shiftbench.decision_protocol import tie_broken_best
+
+    assert tie_broken_best([0.9875, 0.95, 0.9875, 0.9875], [5000, 100, 800, 800], True) == (2, 2)
+    assert tie_broken_best([0.30, None, 0.20, 0.20], [10, 10, 50, 40], False) == (3, 1)
+    assert tie_broken_best([0.5, 0.7], [1, 2], True) == (1, 0)
+
+
+def test_a_rope_finer_than_one_test_samples_share_of_accuracy_is_warned_with_both_figures():
+    # 120 samples in 2 folds: 60 test samples a fold, one of them 1/60 = 0.0167 of accuracy.
+    from shiftbench.data import sensor_regimes
+    from shiftbench.decision import Settings
+    from shiftbench.decision_study import rope_warnings
+
+    data = sensor_regimes(nodes=8, samples_per_class=30)
+    (warning,) = rope_warnings(data, Settings(StudyConfig(splits=2, rope=0.01), []))
+    assert "decision.rope=0.01 is finer than one test sample's share of accuracy (1/60 = 0.0167" in warning
+    assert rope_warnings(data, Settings(StudyConfig(splits=2, rope=0.02), [])) == []
