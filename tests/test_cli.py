@@ -264,3 +264,12 @@ def test_two_sweeps_writing_one_study_folder_and_a_report_reading_it_meanwhile_s
     assert all("sweep done: 3 completed, 0 skipped, 0 failed" in out for out, _ in outputs)
     frame = load_records([sweep])
     assert reads > 0 and len(frame) == 6 and sorted(frame["seed"]) == [0, 0, 0, 1, 1, 1]
+
+
+def test_a_single_run_whose_job_failed_exits_1_after_its_summary_line(tmp_path):
+    # A script running one job must see the failure (common practice, no source): QDA on more
+    # features than samples per class fails every value of its grid.
+    result = run("shiftbench", "arch=qda", "data.nodes=32", "data.samples_per_class=40", cwd=tmp_path)
+    assert result.returncode == 1
+    assert "FAILED: FloorFailed: every value of qda's reg_param failed" in result.stdout
+    assert "Traceback" not in result.stdout + result.stderr

@@ -63,6 +63,9 @@ def _job(config: DictConfig) -> dict:
         )
     except ConfigError as error:
         fail(str(error))
+    if not in_sweep and record.get("status") == "failed":
+        # The summary line above names the error; a script that runs one job must see it failed.
+        raise SystemExit(1)
     # What the sweep progress callback shows for this job.
     metric = TASKS[record.get("task", "classification")].metric
     return {**{key: record.get(key) for key in ("status", "skipped", "family", "data")},

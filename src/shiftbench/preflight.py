@@ -82,6 +82,11 @@ def preflight(arguments: list[str], config_dir: Path) -> Checked:
         axes, fixed = split_overrides(overrides)
     except HydraException as error:
         raise ConfigError(_one_line(str(error))) from None
+    if axes and not any(argument in ("-m", "--multirun") for argument in arguments):
+        first = next(iter(axes.values()))
+        given = next((line for line in overrides if line.split("=", 1)[0] == first[0].split("=", 1)[0]), first[0])
+        raise ConfigError(f"{given}: several values run only as a sweep; accepted: shiftbench -m {given} (one job each), "
+                          "or one value")
 
     register_defaults()
     name, user_dir = config_source(arguments)

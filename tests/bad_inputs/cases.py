@@ -86,6 +86,8 @@ CONFIG_CASES: list[tuple[list[str], str]] = [
                                    "hydra/launcher=joblib here, or on a cluster's login node"),
     (["arch.order=-1"], "arch.order=-1 is not accepted; accepted: an integer >= 0"),
     (["threads=0"], "threads=0 is not accepted; accepted: an integer >= 1"),
+    (["arch=fc,graph_conv"], "arch=fc,graph_conv: several values run only as a sweep; accepted: shiftbench -m arch=fc,graph_conv "
+                             "(one job each), or one value"),
     (["folds=1"], "folds=1 is not accepted; accepted: 0 (no outer folds) or an integer >= 2"),
     (["folds=500"], "folds=500 is not accepted: the smallest class has 200 samples; accepted: an integer from 2 to 200 "
                     "(outer folds, each testing part of every class)"),

@@ -88,6 +88,10 @@ DISPLAY = {"logistic": "logistic regression", "lda": "shrinkage LDA", "qda": "re
            "ridge": "ridge regression"}
 
 
+class FloorFailed(ValueError):
+    """Every value of a floor's grid was refused by scikit-learn (the message names each)."""
+
+
 @dataclass
 class FloorConfig:
     """A graph-free scikit-learn floor; its grid is fixed (see :data:`FLOORS`)."""
@@ -103,24 +107,34 @@ def predict(estimator: Any, flat: np.ndarray, targets: np.ndarray, rows: np.ndar
 
 def fit_floor(name: str, dataset: Dataset, seed: int, task: Task) -> TrainingResult:
     """Choose the floor's hyperparameter on the validation figure of the task's metric, then
-    score every split. ``train_seconds`` covers the whole grid."""
+    score every split. ``train_seconds`` covers the whole grid. A value scikit-learn refuses
+    (a singular covariance without regularization) is skipped and named in ``chosen``; the
+    floor fails only when every value does."""
     floor = FLOORS[name]
     flat = dataset.signals.reshape(dataset.samples, -1).astype(np.float64)  # (samples, nodes * features)
     labels = dataset.labels
     train, val, test = dataset.splits.train, dataset.splits.val, dataset.splits.test
     started = time.perf_counter()
     best: tuple[float, Any, Any] | None = None
+    skipped: dict[str, str] = {}
     for value in floor.grid:
         with warnings.catch_warnings():
             # Collinear classes (QDA without regularization) and slow convergence are scored as
             # they come: the validation split decides.
             warnings.simplefilter("ignore")
-            classifier = floor.make(value, seed).fit(flat[train], labels[train])
-            score = task.score_predicted(predict(classifier, flat, labels, val), labels[val])
+            try:
+                classifier = floor.make(value, seed).fit(flat[train], labels[train])
+                score = task.score_predicted(predict(classifier, flat, labels, val), labels[val])
+            except (ValueError, ArithmeticError, np.linalg.LinAlgError) as error:  # scikit-learn's refusals of a value
+                skipped[str(value)] = f"{type(error).__name__}: {str(error).splitlines()[0] if str(error) else ''}"
+                continue
         if best is None or task.better(score) > task.better(best[0]):
             best = (score, value, classifier)
     train_seconds = time.perf_counter() - started
-    assert best is not None
+    if best is None:
+        reasons = {why: [value for value, same in skipped.items() if same == why] for why in skipped.values()}
+        failures = "; ".join(f"{floor.key}={', '.join(values)}: {why}" for why, values in reasons.items())
+        raise FloorFailed(f"every value of {name}'s {floor.key} failed ({failures})")
     val_score, value, classifier = best
     predicting = time.perf_counter()
     with warnings.catch_warnings():
@@ -138,7 +152,7 @@ def fit_floor(name: str, dataset: Dataset, seed: int, task: Task) -> TrainingRes
         train_seconds=train_seconds,
         samples_per_second=len(train) * len(floor.grid) / max(train_seconds, 1e-9),
         inference_seconds_per_sample=inference,
-        chosen={floor.key: value},
+        chosen={floor.key: value, **({"skipped": skipped} if skipped else {})},
         test_predictions=predicted,
     )
 
