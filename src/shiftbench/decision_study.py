@@ -146,7 +146,7 @@ def run_one(dataset: str, common: list[str], settings: Settings, folder: Path, c
         f"{study.trials} trials a tuning, {study.splits} folds x {study.repetitions} repetitions x {study.seeds} seeds; "
         f"jobs through hydra/launcher {runner.name} with {runner.workers} worker{'s' * (runner.workers > 1)}")
     data = loaded(composed([f"data={dataset}", *common, "arch=fc"]))
-    warnings = rope_warnings(data, settings)
+    warnings = study_warnings(data, settings)
     for line in warnings:
         say(f"warning: {line}")
     check = native_graph_check(data, settings)
@@ -215,18 +215,26 @@ def storage_text(setting: str, folder: Path) -> str | None:
     return make_url(setting).render_as_string(hide_password=True)
 
 
-def rope_warnings(data: Dataset, settings: Settings) -> list[str]:
-    """A ROPE finer than one test sample's share of accuracy: a fold's figure moves in steps of
-    ``1 / n_test``, so "equivalent within the ROPE" is then nearly out of reach."""
-    if settings.task.metric != "accuracy" or data.labels.ndim != 1:
-        return []
-    tested = data.samples // settings.study.splits
-    step = 1.0 / max(tested, 1)
-    if settings.study.rope >= step:
-        return []
-    return [f"decision.rope={settings.study.rope:g} is finer than one test sample's share of accuracy (1/{tested} = {step:.4f} "
-            f"with {tested} test samples a fold): equivalence is nearly out of reach; accepted but consider "
-            f"decision.rope={step:.3g} or more, or fewer folds (larger test parts)"]
+def study_warnings(data: Dataset, settings: Settings) -> list[str]:
+    """What the study's settings cannot show on this data, said before any job: fewer units
+    than an interval needs, and a ROPE finer than one test sample's share of accuracy (a fold's
+    figure moves in steps of ``1 / n_test``, so "equivalent" is then nearly out of reach)."""
+    from shiftbench.statistics import FEWEST_UNITS
+
+    study, warnings = settings.study, []
+    units = study.splits * study.repetitions
+    if units < FEWEST_UNITS:
+        warnings.append(f"decision.splits={study.splits} x decision.repetitions={study.repetitions} gives {units} paired units, "
+                        f"fewer than the {FEWEST_UNITS} an interval needs: every comparison will be undecided; "
+                        f"use decision.splits={FEWEST_UNITS} or more, or decision.repetitions=2")
+    if settings.task.metric == "accuracy" and data.labels.ndim == 1:
+        tested = data.samples // study.splits
+        step = 1.0 / max(tested, 1)
+        if study.rope < step:
+            warnings.append(f"decision.rope={study.rope:g} is finer than one test sample's share of accuracy "
+                            f"(1/{tested} = {step:.4f} with {tested} test samples a fold): equivalence is nearly out of "
+                            f"reach; consider decision.rope={step:.3g} or more, or fewer folds (larger test parts)")
+    return warnings
 
 
 def loaded(config: DictConfig) -> Dataset:

@@ -257,12 +257,22 @@ def test_a_tuning_tie_goes_to_the_trial_with_the_fewest_parameters_then_the_earl
 
 
 def test_a_rope_finer_than_one_test_samples_share_of_accuracy_is_warned_with_both_figures():
-    # 120 samples in 2 folds: 60 test samples a fold, one of them 1/60 = 0.0167 of accuracy.
+    # 120 samples in 3 folds: 40 test samples a fold, one of them 1/40 = 0.025 of accuracy.
     from shiftbench.data import sensor_regimes
     from shiftbench.decision import Settings
-    from shiftbench.decision_study import rope_warnings
+    from shiftbench.decision_study import study_warnings
 
     data = sensor_regimes(nodes=8, samples_per_class=30)
-    (warning,) = rope_warnings(data, Settings(StudyConfig(splits=2, rope=0.01), []))
-    assert "decision.rope=0.01 is finer than one test sample's share of accuracy (1/60 = 0.0167" in warning
-    assert rope_warnings(data, Settings(StudyConfig(splits=2, rope=0.02), [])) == []
+    (warning,) = study_warnings(data, Settings(StudyConfig(splits=3, rope=0.01), []))
+    assert "decision.rope=0.01 is finer than one test sample's share of accuracy (1/40 = 0.0250" in warning
+    assert study_warnings(data, Settings(StudyConfig(splits=3, rope=0.03), [])) == []
+
+
+def test_fewer_folds_than_an_interval_needs_are_warned_before_any_job():
+    from shiftbench.data import sensor_regimes
+    from shiftbench.decision import Settings
+    from shiftbench.decision_study import study_warnings
+
+    data = sensor_regimes(nodes=8, samples_per_class=30)
+    (warning,) = study_warnings(data, Settings(StudyConfig(splits=2, rope=0.5), []))
+    assert warning.startswith("decision.splits=2 x decision.repetitions=1 gives 2 paired units, fewer than the 3 an interval needs")

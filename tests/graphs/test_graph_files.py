@@ -36,10 +36,20 @@ def test_unweighted_edge_list_gets_unit_weights(tmp_path):
 def test_self_loops_are_kept_with_a_note(tmp_path):
     # (An edge listed twice is refused: see the bad-input corpus.)
     path = tmp_path / "g.csv"
-    path.write_text("source,target,weight\n0,1,1\n2,2,1\n")
+    path.write_text("source,target,weight\n0,1,1\n1,0,1\n2,2,1\n")
     graph = load_graph_file(str(path), nodes=3)
     assert graph.adjacency()[1, 0] == 1.0 and graph.adjacency()[2, 2] == 1.0
     assert graph.notes == ("1 self-loops kept",)
+
+
+def test_an_edge_list_that_gives_every_edge_one_way_only_is_read_as_directed_with_a_note(tmp_path):
+    path = tmp_path / "g.csv"
+    path.write_text("source,target\n0,1\n1,2\n")
+    graph = load_graph_file(str(path), nodes=3)
+    assert graph.adjacency()[1, 0] == 1.0 and graph.adjacency()[0, 1] == 0.0
+    assert graph.notes == ("read as directed: no edge is listed both ways (list each edge both ways for an undirected graph)",)
+    path.write_text("source,target\n0,1\n1,0\n1,2\n")
+    assert load_graph_file(str(path), nodes=3).notes == ()
 
 
 def test_scipy_npz_round_trips(tmp_path):

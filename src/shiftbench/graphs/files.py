@@ -74,7 +74,17 @@ def read_edge_list(path: Path, nodes: int, fail: Fail) -> Graph:
         if not pd.api.types.is_numeric_dtype(table["weight"]) or not np.isfinite(table["weight"]).all():
             raise fail(path, "weight column holds values that are not finite numbers")
         weight = table["weight"].to_numpy(dtype=np.float64)
-    return Graph.from_edge_index(index, weight, nodes=nodes, name="file")
+    graph = Graph.from_edge_index(index, weight, nodes=nodes, name="file")
+    return replace(graph, notes=(*graph.notes, *one_way_note(index)))
+
+
+def one_way_note(index: np.ndarray) -> tuple[str, ...]:
+    """A note when no edge of a ``(2, edges)`` edge list is given both ways: the graph is read
+    as directed, which a user meaning an undirected one would not see otherwise."""
+    edges = {(int(source), int(target)) for source, target in index.T if source != target}
+    if not edges or any((target, source) in edges for source, target in edges):
+        return ()
+    return ("read as directed: no edge is listed both ways (list each edge both ways for an undirected graph)",)
 
 
 def read_sparse_matrix(path: Path, fail: Fail) -> Graph:
