@@ -193,7 +193,7 @@ graph-free candidate, and does it beat itself on a degree-preserving rewiring of
   decision.KEY=VALUE   the study's settings (decision/settings.yaml): protocol (nested, tune_once),
                        trials, splits (outer folds), repetitions, seeds, tune_controls,
                        tuning_seeds, parallel_trials, storage, rope, alpha, sampler_seed,
-                       folder, candidates
+                       folder, candidates, only (candidate names or families: fc,graph_conv,qda)
   data=A[,B...]        the dataset(s); several give a rank test across datasets
   hydra/launcher=NAME  where the jobs run, as for a sweep: basic (this process, the default),
                        joblib (hydra.launcher.n_jobs=2: local cores), submitit_local, slurm_cpu

@@ -78,6 +78,7 @@ class StudyConfig(Schema):
     tune_controls: bool = False
     tuning_seeds: int = declared(at_least(1), 1)
     parallel_trials: int = declared(at_least(1), 1)
+    only: str = ""
     storage: str = declared(Check(lambda value: isinstance(value, str) and (value in ("journal", "none") or "://" in value),
                                   "journal (a file in the study's folder), none, or a database URL such as "
                                   "sqlite:///tuning.db"), "journal")
@@ -165,6 +166,22 @@ def read_study(base: DictConfig, overrides: list[str]) -> StudyConfig:
         raise ConfigError(f"{_first_line(error)}; accepted keys: decision.{', decision.'.join(accepted_keys)}") from None
 
 
+def chosen_entries(entries: Any, only: str) -> list[Any]:
+    """The candidate entries ``decision.only`` keeps: a comma-separated list of candidate names
+    or the families their ``arch=`` override names (``fc,graph_conv,qda``); empty keeps all."""
+    if not only.strip():
+        return list(entries)
+    wanted = [name.strip() for name in only.split(",") if name.strip()]
+    family = lambda entry: next((line.split("=", 1)[1] for line in entry.overrides if str(line).startswith("arch=")), None)
+    kept = [entry for entry in entries if str(entry.name) in wanted or family(entry) in wanted]
+    known = {str(entry.name) for entry in entries} | {family(entry) for entry in entries if family(entry)}
+    unknown = [name for name in wanted if name not in known]
+    if unknown:
+        raise ConfigError(f"decision.only={only}: {unknown[0]} names no candidate; accepted: candidate names or families "
+                          f"among {', '.join(sorted(known))}")
+    return kept
+
+
 def read_settings(settings_dir: Path, overrides: list[str], compose: Callable[[list[str]], DictConfig]) -> Settings:
     """The study's settings with ``decision.*`` overrides applied, every candidate composed once
     and its search space read and checked against its config, before any job runs."""
@@ -173,7 +190,8 @@ def read_settings(settings_dir: Path, overrides: list[str], compose: Callable[[l
     listed = OmegaConf.merge(base, OmegaConf.from_dotlist(
         [line.removeprefix("decision.") for line in overrides if line.startswith("decision.candidates=")]))
     candidates, spaces, tasks, uncontrolled = [], {}, set(), {}
-    for entry in listed.candidates:
+    kept = chosen_entries(listed.candidates, study.only)
+    for entry in kept:
         composed, lines = compose_candidate(entry, compose)
         if composed is None:
             continue  # a floor for another task (ridge in a classification study, say)

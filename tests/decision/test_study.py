@@ -29,6 +29,7 @@ FC_VS_QDA = "decision.candidates=[{name: fc, overrides: [arch=fc]}, {name: qda, 
     ("decision.folder=/tmp/elsewhere", "decision.folder='/tmp/elsewhere' is not accepted; accepted: a folder name under results_dir"),
     ("decision.budget=3", "accepted keys: decision.candidates"),
     ("data=digits,digits", "data=digits,digits: digits is named twice; accepted: distinct datasets"),
+    ("decision.only=fc,gnn", "decision.only=fc,gnn: gnn names no candidate; accepted: candidate names or families among fc, "),
     ("decision.rope=2", "decision.rope=2.0 is not accepted; accepted: a number in [0, 1"),
     ("decision.candidates=[{name: g, overrides: [arch=graph_conv]}]", "at least one graph-free candidate"),
     ("decision.candidates=[{name: q, overrides: [arch=qda]}, {name: g, overrides: [arch=gnn]}]", "candidate 'g': "),
@@ -230,3 +231,14 @@ def test_a_storage_that_cannot_be_opened_is_refused_in_one_line_before_any_job(t
     with pytest.raises(ConfigError, match=message.replace("[", r"\[")) as refused:
         run_study([f"results_dir={tmp_path}", setting, FC_VS_QDA], CONFIG_DIR)
     assert "\n" not in str(refused.value) and not (tmp_path / "store").exists()
+
+
+def test_decision_only_keeps_the_candidates_named_by_name_or_family_in_the_settings_order():
+    from omegaconf import OmegaConf
+
+    from shiftbench.decision import chosen_entries
+
+    entries = OmegaConf.load(CONFIG_DIR.parent / "decision" / "settings.yaml").candidates
+    kept = chosen_entries(entries, "qda, graph_conv,fc")
+    assert [entry.name for entry in kept] == ["fc", "graph_conv on native graph", "qda"]
+    assert len(chosen_entries(entries, "")) == len(entries)
