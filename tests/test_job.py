@@ -377,3 +377,11 @@ def test_a_read_only_home_is_refused_in_one_line_before_the_claim_and_a_finished
     run_job(config, None, [], live=False)
     monkeypatch.setattr(store.os, "access", lambda path, mode: False if Path(path) == target else real_access(path, mode))
     assert run_job(config, None, [], live=False)["skipped"] is True
+
+
+@pytest.mark.parametrize("family", ["graph_conv", "qda", "nearest"])
+def test_a_record_holds_the_cpu_seconds_its_training_took_beside_the_wall_time(small_config, tmp_path, family):
+    # time.process_time over the job's one torch thread: positive, and within the wall time
+    # (plus the clock's tick) since one thread computes at a time (common practice, no source).
+    record = run_job(small_config(f"arch={family}"), None, [], live=False, quiet=True)
+    assert 0.0 < record["train_cpu_seconds"] <= record["train_seconds"] + 0.05

@@ -26,7 +26,7 @@ from shiftbench.registry import FAMILIES, Task
 RunBatch = Callable[[list[list[str]]], list[dict[str, Any]]]
 
 # Record figures the verdict reads, per unit, besides the task's metric on test and validation.
-COST_FIELDS = ("parameters", "train_seconds", "inference_seconds_per_sample")
+COST_FIELDS = ("parameters", "train_seconds", "train_cpu_seconds", "inference_seconds_per_sample")
 
 
 def unit_fields(task: Task) -> tuple[str, ...]:

@@ -346,22 +346,25 @@ def outcomes_of(result: dict[str, Any]) -> dict[tuple[str, str], str]:
 
 
 def candidates_table(units: pd.DataFrame, task: Task) -> str:
-    """Mean figures per candidate over its usable runs (fold x seed), and the median parameter
-    count (nested tuning may choose another size in each fold), as markdown."""
+    """Mean figures per candidate over its usable runs (fold x seed), wall and CPU seconds of
+    training, and the median parameter count (nested tuning may choose another size in each
+    fold), as markdown."""
     completed = usable_units(units, task)
     metric = task.metric
     test, val = f"test_{metric}", f"val_{metric}"
     table = completed.groupby("candidate", sort=False).agg(
         test=(test, "mean"), std=(test, "std"), val=(val, "mean"),
-        parameters=("parameters", "median"), train_seconds=("train_seconds", "mean"), runs=(test, "size"),
+        parameters=("parameters", "median"), train_seconds=("train_seconds", "mean"),
+        train_cpu_seconds=("train_cpu_seconds", "mean"), runs=(test, "size"),
     )
     short = "acc" if metric == "accuracy" else metric
-    lines = [f"| candidate | test {short} | ± std | val {short} | median parameters | train s | runs |",
-             "| --- | ---: | ---: | ---: | ---: | ---: | ---: |"]
+    lines = [f"| candidate | test {short} | ± std | val {short} | median parameters | train s | train CPU s | runs |",
+             "| --- | ---: | ---: | ---: | ---: | ---: | ---: | ---: |"]
     for name, row in table.iterrows():
+        cpu = "-" if pd.isna(row.train_cpu_seconds) else f"{row.train_cpu_seconds:.2f}"
         lines.append(
             f"| {name} | {row.test:.3f} | {row['std']:.3f} | {row.val:.3f} | {row.parameters:,.0f} | "
-            f"{row.train_seconds:.2f} | {int(row.runs)} |"
+            f"{row.train_seconds:.2f} | {cpu} | {int(row.runs)} |"
         )
     return "\n".join(lines) + "\n"
 

@@ -245,6 +245,7 @@ def execute(run: RunConfig, record: Record, home: Path, live: bool, label: str =
         record.best_epoch = result.best_epoch
         record.epochs_run = result.epochs_run
         record.train_seconds = result.train_seconds
+        record.train_cpu_seconds = result.train_cpu_seconds
         record.samples_per_second = result.samples_per_second
         record.inference_seconds_per_sample = result.inference_seconds_per_sample
         record.chosen = result.chosen

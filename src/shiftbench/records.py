@@ -42,7 +42,7 @@ OPTIONAL_FIELDS = (
     "folds",
     "graph_name", "graph_notes", "budget", "sized_widths", "chosen", "chance_accuracy", "balanced_accuracy", "macro_f1",
     "confusion_matrix", "train_rmse", "val_rmse", "test_rmse", "test_mae", "test_r2", "chance_rmse", "flags",
-    "resumed_from_epoch", "failed_epoch", "traceback",
+    "resumed_from_epoch", "failed_epoch", "traceback", "train_cpu_seconds",
 )
 # The splits whose primary-metric figure a record holds as ``<split>_<metric>``, and the chance
 # level ``chance_<metric>``; load_records also gives them task-neutral columns ``<split>_score``.
@@ -122,6 +122,7 @@ class Record:
     best_epoch: int | None = None
     epochs_run: int | None = None
     train_seconds: float | None = None
+    train_cpu_seconds: float | None = None
     samples_per_second: float | None = None
     inference_seconds_per_sample: float | None = None
     peak_rss_mb: float | None = None

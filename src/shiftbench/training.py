@@ -150,6 +150,7 @@ class LoopState:
     first_epoch: int = 1
     resumed_from: int | None = None
     spent_before: float = 0.0
+    cpu_before: float = 0.0
 
 
 def resume(
@@ -182,6 +183,7 @@ def resume(
     stopping = state.stopping
     stopping.best, stopping.best_state, stopping.best_epoch = best
     state.curve, state.spent_before = curve, spent
+    state.cpu_before = float(saved.get("train_cpu_seconds", 0.0))  # absent from older checkpoints
     state.first_epoch = state.resumed_from = epoch + 1
     if stopping.should_stop(epoch):  # it had stopped early at that epoch
         state.first_epoch = config.epochs + 1
@@ -189,15 +191,16 @@ def resume(
 
 def checkpoint(
     checkpointing: Checkpointing, epoch: int, model: nn.Module, optimizer: torch.optim.Optimizer,
-    state: LoopState, seconds: float,
+    state: LoopState, seconds: float, cpu_seconds: float,
 ) -> None:
-    """Save the whole state after ``epoch``."""
+    """Save the whole state after ``epoch`` (``seconds`` of wall time and ``cpu_seconds`` of
+    this process's CPU time spent training so far)."""
     stopping = state.stopping
     save_checkpoint(checkpointing.folder, {
         "config_hash": checkpointing.config_hash, "epoch": epoch, "model": model.state_dict(),
         "optimizer": optimizer.state_dict(), "random": random_states(state.order_generator),
         "best": list(stopping.best), "best_state": stopping.best_state, "best_epoch": stopping.best_epoch,
-        "curve": state.curve, "train_seconds": seconds,
+        "curve": state.curve, "train_seconds": seconds, "train_cpu_seconds": cpu_seconds,
         "schedule": state.schedule.state_dict() if state.schedule is not None else None,
     })
 
@@ -269,10 +272,15 @@ def train(
         make_schedule(optimizer, config),
     )
     resume(state, model, optimizer, config, checkpointing)
-    started = time.perf_counter()
+    started, cpu_started = time.perf_counter(), time.process_time()
 
     def elapsed() -> float:
         return state.spent_before + time.perf_counter() - started
+
+    def cpu_elapsed() -> float:
+        # The process's CPU time over every thread it computes on: unlike wall time, it does not
+        # grow when other processes load the machine.
+        return state.cpu_before + time.process_time() - cpu_started
 
     def out_of_time() -> bool:
         return config.max_seconds is not None and elapsed() > config.max_seconds
@@ -302,17 +310,17 @@ def train(
         state.curve.append(row)
         improved = state.stopping.update(row, model)
         if checkpointing is not None and checkpointing.every and epoch % checkpointing.every == 0:
-            checkpoint(checkpointing, epoch, model, optimizer, state, elapsed())
+            checkpoint(checkpointing, epoch, model, optimizer, state, elapsed(), cpu_elapsed())
         if on_epoch is not None:
             on_epoch(row)
         if not improved and state.stopping.should_stop(epoch):
             break
-    return final_result(model, signals, labels, split, config, task, state, elapsed(), status)
+    return final_result(model, signals, labels, split, config, task, state, elapsed(), status, cpu_elapsed())
 
 
 def final_result(
     model: nn.Module, signals: torch.Tensor, labels: torch.Tensor, split: dict[str, torch.Tensor],
-    config: TrainConfig, task: Task, state: LoopState, train_seconds: float, status: str,
+    config: TrainConfig, task: Task, state: LoopState, train_seconds: float, status: str, train_cpu_seconds: float,
 ) -> TrainingResult:
     """Restore the kept weights and measure the training and test splits (and the time a test
     sample takes to predict); the validation figure is the kept epoch's (None without a
@@ -339,6 +347,7 @@ def final_result(
         best_epoch=state.stopping.best_epoch,
         epochs_run=len(curve),
         train_seconds=train_seconds,
+        train_cpu_seconds=train_cpu_seconds,
         samples_per_second=len(train_y) * len(curve) / max(train_seconds, 1e-9),
         curve=curve,
         status=status,

@@ -14,7 +14,8 @@ class TrainingResult:
     (accuracy, RMSE) on each split. ``curve`` holds one dict per epoch with keys
     ``epoch, train_loss, train_<metric>, val_loss, val_<metric>, seconds``. Figures that a
     family does not have (the 1-NN floor has no loss and no epochs) are None. ``chosen`` holds the
-    setting a self-tuning floor picked on the validation split. ``test_predictions`` holds the
+    setting a self-tuning floor picked on the validation split. ``train_cpu_seconds``: the
+    process's CPU time spent training (all its threads), which the machine's load does not inflate. ``test_predictions`` holds the
     prediction for each test sample (a class, or the outputs) (in the order of the split's indices), ``weights`` the
     trained network's final ``state_dict`` as numpy arrays (None for the floors)."""
 
@@ -26,6 +27,7 @@ class TrainingResult:
     epochs_run: int | None
     train_seconds: float
     samples_per_second: float
+    train_cpu_seconds: float | None = None
     curve: list[dict[str, float]] = field(default_factory=list)
     status: str = "completed"
     resumed_from_epoch: int | None = None

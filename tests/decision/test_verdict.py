@@ -276,3 +276,15 @@ def test_fewer_folds_than_an_interval_needs_are_warned_before_any_job():
     data = sensor_regimes(nodes=8, samples_per_class=30)
     (warning,) = study_warnings(data, Settings(StudyConfig(splits=2, rope=0.5), []))
     assert warning.startswith("decision.splits=2 x decision.repetitions=1 gives 2 paired units, fewer than the 3 an interval needs")
+
+
+def test_the_cost_ratio_reads_cpu_time_where_the_records_have_it_so_the_machines_load_does_not_move_it():
+    # Same CPU seconds, the graph model's wall time inflated tenfold by load: the ratio is the CPU one.
+    base = noisy(0.90, 0.02)
+    rows = units({"graph_conv": base + noisy(0.06, 0.01, 1), "qda": base})
+    rows["train_cpu_seconds"] = 2.0
+    rows.loc[rows["candidate"] == "graph_conv", "train_seconds"] = 20.0
+    result = verdict(rows, [GNN, QDA], TEN_FOLDS, CLASSIFICATION)
+    cost = entry(result, "graph_conv")["cost"]
+    assert cost["train_cpu_ratio"] == pytest.approx(1.0) and cost["train_seconds_ratio"] == pytest.approx(10.0)
+    assert "1x the training CPU time" in entry(result, "graph_conv")["sentence"]

@@ -114,7 +114,7 @@ def fit_floor(name: str, dataset: Dataset, seed: int, task: Task) -> TrainingRes
     flat = dataset.signals.reshape(dataset.samples, -1).astype(np.float64)  # (samples, nodes * features)
     labels = dataset.labels
     train, val, test = dataset.splits.train, dataset.splits.val, dataset.splits.test
-    started = time.perf_counter()
+    started, cpu_started = time.perf_counter(), time.process_time()
     best: tuple[float, Any, Any] | None = None
     skipped: dict[str, str] = {}
     for value in floor.grid:
@@ -130,7 +130,7 @@ def fit_floor(name: str, dataset: Dataset, seed: int, task: Task) -> TrainingRes
                 continue
         if best is None or task.better(score) > task.better(best[0]):
             best = (score, value, classifier)
-    train_seconds = time.perf_counter() - started
+    train_seconds, train_cpu_seconds = time.perf_counter() - started, time.process_time() - cpu_started
     if best is None:
         reasons = {why: [value for value, same in skipped.items() if same == why] for why in skipped.values()}
         failures = "; ".join(f"{floor.key}={', '.join(values)}: {why}" for why, values in reasons.items())
@@ -150,6 +150,7 @@ def fit_floor(name: str, dataset: Dataset, seed: int, task: Task) -> TrainingRes
         best_epoch=None,
         epochs_run=None,
         train_seconds=train_seconds,
+        train_cpu_seconds=train_cpu_seconds,
         samples_per_second=len(train) * len(floor.grid) / max(train_seconds, 1e-9),
         inference_seconds_per_sample=inference,
         chosen={floor.key: value, **({"skipped": skipped} if skipped else {})},
