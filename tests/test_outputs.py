@@ -66,3 +66,33 @@ def test_a_run_that_learned_is_not_flagged():
     curve = [{"train_loss": loss} for loss in (1.1, 0.7, 0.4)]
     judged = judge_classification(np.array([0, 1, 1, 0]), np.array([0, 1, 1, 0]), np.array([1, 1, 0]), curve)
     assert judged["flags"] == []
+
+
+def test_string_class_names_are_kept_through_record_predictions_and_the_reports_per_class_figures(tmp_path):
+    # Reference: scikit-learn's precision_recall_fscore_support on the written predictions.
+    from sklearn.metrics import precision_recall_fscore_support
+
+    from shiftbench.job import run_job
+    from shiftbench.records import PREDICTIONS_FILE
+    from shiftbench.report import write_report
+    from tests.conftest import composed, home
+
+    rng = np.random.default_rng(0)
+    names = np.array(["steady", "surge", "leak"])
+    codes = np.repeat([0, 1, 2], 30)
+    signals = rng.standard_normal((90, 6)) + codes[:, None] * (np.arange(6) < 2)
+    np.savez(tmp_path / "sig.npz", signals=signals.astype(np.float32), labels=names[codes])
+    overrides = ["data=file", f"data.path={tmp_path / 'sig.npz'}", "arch=fc", "train.epochs=5", f"results_dir={tmp_path}"]
+    record = run_job(composed(overrides), tmp_path / "sweep", overrides, live=False, quiet=True)
+    assert record["class_names"] == ["leak", "steady", "surge"]  # sorted as text: the codes 0, 1, 2
+    predictions = pd.read_csv(home(record) / PREDICTIONS_FILE)
+    assert (predictions["label_name"] == [record["class_names"][code] for code in predictions["label"]]).all()
+    assert (predictions["predicted_name"] == [record["class_names"][code] for code in predictions["predicted"]]).all()
+    precision, recall, f1, support = precision_recall_fscore_support(predictions["label"], predictions["predicted"],
+                                                                     labels=[0, 1, 2], zero_division=0)
+    np.testing.assert_allclose(record["per_class"]["f1"], f1)
+    np.testing.assert_allclose(record["per_class"]["recall"], recall)
+    assert record["per_class"]["support"] == support.tolist()
+    write_report([tmp_path / "sweep"], tmp_path / "out")
+    summary = pd.read_csv(tmp_path / "out" / "summary.csv")
+    assert summary.loc[0, "f1[surge]"] == pytest.approx(f1[2]) and summary.loc[0, "precision[leak]"] == pytest.approx(precision[0])

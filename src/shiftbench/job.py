@@ -198,7 +198,7 @@ class JobOutputs:
 def judge(run: RunConfig, dataset: Dataset, record: Record, result: TrainingResult) -> pd.DataFrame:
     """Fill ``record`` with the task's further figures and flags; return the test predictions
     as a table (``sample`` indexes the dataset): ``sample, label, predicted`` for a class per
-    signal, ``sample, node, label, predicted`` for each scored node of a class per node, and
+    signal (with ``label_name, predicted_name`` where the data names its classes), ``sample, node, label, predicted`` for each scored node of a class per node, and
     ``sample, [node,] output, target, predicted`` for each scored entry of a regression task."""
     import pandas as pd
 
@@ -207,7 +207,13 @@ def judge(run: RunConfig, dataset: Dataset, record: Record, result: TrainingResu
     for key, value in judged.items():
         setattr(record, key, value)
     if dataset.labels.ndim == 1:
-        return pd.DataFrame({"sample": test, "label": dataset.labels[test], "predicted": result.test_predictions})
+        table = pd.DataFrame({"sample": test, "label": dataset.labels[test], "predicted": result.test_predictions})
+        if dataset.class_names and "confusion_matrix" in judged:
+            # The codes stay (they index the confusion matrix); the names say what they stand for.
+            record.class_names = list(dataset.class_names)
+            names = np.asarray(dataset.class_names, dtype=object)
+            table["label_name"], table["predicted_name"] = names[table["label"]], names[table["predicted"]]
+        return table
     targets = dataset.labels[test]
     if targets.dtype.kind in "iu":  # classes on every node, -1 where not a target
         sample, node = np.nonzero(targets >= 0)

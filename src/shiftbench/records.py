@@ -42,7 +42,7 @@ OPTIONAL_FIELDS = (
     "folds",
     "graph_name", "graph_notes", "budget", "sized_widths", "chosen", "chance_accuracy", "balanced_accuracy", "macro_f1",
     "confusion_matrix", "train_rmse", "val_rmse", "test_rmse", "test_mae", "test_r2", "chance_rmse", "flags",
-    "resumed_from_epoch", "failed_epoch", "traceback", "train_cpu_seconds",
+    "resumed_from_epoch", "failed_epoch", "traceback", "train_cpu_seconds", "per_class", "class_names",
 )
 # The splits whose primary-metric figure a record holds as ``<split>_<metric>``, and the chance
 # level ``chance_<metric>``; load_records also gives them task-neutral columns ``<split>_score``.
@@ -139,6 +139,8 @@ class Record:
     balanced_accuracy: float | None = None
     macro_f1: float | None = None
     confusion_matrix: list[list[int]] | None = None
+    per_class: dict[str, list[float]] | None = None
+    class_names: list[str] | None = None
     flags: list[str] | None = None
     resumed_from_epoch: int | None = None
     failed_epoch: int | None = None

@@ -400,7 +400,7 @@ def write_report(
     if curves is not None and not 0 <= curves < len(table):
         raise ValueError(f"--curves {curves} is not accepted; accepted: a row number 0..{len(table) - 1}")
     buffer = io.StringIO()
-    table.drop(columns="paths").to_csv(buffer, index=False)
+    with_per_class(table.drop(columns="paths"), table["paths"], records).to_csv(buffer, index=False)
     write_atomic(out / "summary.csv", buffer.getvalue())
     figures = plots.standard_plots(table, out)
     if curves is not None:
@@ -423,6 +423,31 @@ def write_report(
     written = ", ".join(figure.name for figure in figures)
     said = f"graph check: {check[2]}" if check else ""
     return "\n".join(filter(None, [outcomes, said, head, text, *notes, f"plots: {written}" if written else ""]))
+
+
+def with_per_class(table: pd.DataFrame, paths: pd.Series, records: pd.DataFrame) -> pd.DataFrame:
+    """``table`` with each class's precision, recall and F1 (scikit-learn's, from the records'
+    ``per_class``), averaged over a row's records: columns ``precision[NAME]``, ``recall[NAME]``,
+    ``f1[NAME]``, named by the data's class names where the records keep them, else by code."""
+    if "per_class" not in records or "path" not in records:
+        return table
+    known = {path: (figures, names) for path, figures, names in
+             zip(records["path"], records["per_class"], records.get("class_names", pd.Series([None] * len(records))))
+             if isinstance(figures, dict)}
+    rows: list[dict[str, float]] = []
+    for row_paths in paths:
+        sums: dict[str, list[float]] = {}
+        for path in row_paths:
+            if path not in known:
+                continue
+            figures, names = known[path]
+            for measure in ("precision", "recall", "f1"):
+                for code, value in enumerate(figures.get(measure, [])):
+                    name = names[code] if isinstance(names, list) and code < len(names) else str(code)
+                    sums.setdefault(f"{measure}[{name}]", []).append(float(value))
+        rows.append({column: float(np.mean(values)) for column, values in sums.items()})
+    extra = pd.DataFrame(rows, index=table.index)
+    return pd.concat([table, extra], axis=1) if not extra.empty else table
 
 
 def graph_check_lines(records: pd.DataFrame) -> list[str]:

@@ -136,11 +136,12 @@ def chance_accuracy(train_labels: np.ndarray, labels: np.ndarray) -> float:
 def judge_classification(
     labels: np.ndarray, predicted: np.ndarray, train_labels: np.ndarray, curve: list[dict[str, float]]
 ) -> dict[str, Any]:
-    """Per-class figures of the test predictions (scikit-learn's balanced accuracy, macro F1 and
-    confusion matrix, rows the true classes ``0..C-1``), the chance level, and flags:
+    """Per-class figures of the test predictions (scikit-learn's balanced accuracy, macro F1,
+    confusion matrix, rows the true classes ``0..C-1``, and each class's precision, recall, F1
+    and support), the chance level, and flags:
     ``at_chance`` (test accuracy at or below the majority-class rate) and ``loss_never_fell``
     (no epoch's training loss below the first epoch's)."""
-    from sklearn.metrics import balanced_accuracy_score, confusion_matrix, f1_score
+    from sklearn.metrics import balanced_accuracy_score, confusion_matrix, f1_score, precision_recall_fscore_support
 
     classes = np.arange(max(int(labels.max()), int(predicted.max()), int(train_labels.max())) + 1)
     chance = chance_accuracy(train_labels, labels)
@@ -152,11 +153,14 @@ def judge_classification(
     with warnings.catch_warnings():  # a class never predicted is scored as it comes
         warnings.simplefilter("ignore")
         balanced = float(balanced_accuracy_score(labels, predicted))
+    precision, recall, f1, support = precision_recall_fscore_support(labels, predicted, labels=classes, zero_division=0)
     return {
         "chance_accuracy": chance,
         "balanced_accuracy": balanced,
         "macro_f1": float(f1_score(labels, predicted, labels=classes, average="macro", zero_division=0)),
         "confusion_matrix": confusion_matrix(labels, predicted, labels=classes).tolist(),
+        "per_class": {"precision": precision.tolist(), "recall": recall.tolist(), "f1": f1.tolist(),
+                      "support": support.tolist()},
         "flags": flags,
     }
 

@@ -61,6 +61,8 @@ class Dataset:
         name: the dataset's name in records.
         in_time_order: the samples are consecutive times (a forecast): every split keeps later
             samples out of the training part of an earlier test part (see ``splits.fold_split``).
+        class_names: the label text of each class code, where the source named its classes
+            (a file's string labels, an archive's class labels); empty where the codes are all.
     """
 
     signals: np.ndarray
@@ -70,6 +72,7 @@ class Dataset:
     native_graph: Graph
     name: str
     in_time_order: bool = False
+    class_names: tuple[str, ...] = ()
 
     @property
     def samples(self) -> int:

@@ -150,7 +150,7 @@ def _check_signals(path: Path, signals: np.ndarray) -> np.ndarray:
     return signals.astype(np.float32)
 
 
-def _check_labels(path: Path, labels: np.ndarray, samples: int) -> np.ndarray:
+def _check_labels(path: Path, labels: np.ndarray, samples: int) -> tuple[np.ndarray, list[str]]:
     if labels.ndim != 1:
         raise _fail(path, f"labels has shape {labels.shape}; accepted: (samples,)")
     if len(labels) != samples:
@@ -169,7 +169,7 @@ def _check_labels(path: Path, labels: np.ndarray, samples: int) -> np.ndarray:
     codes, order = encode_labels(labels)
     if len(order) < 2:
         raise _fail(path, f"labels hold a single class ({str(order[0])!r}); accepted: at least 2 classes")
-    return codes
+    return codes, [str(name) for name in order]
 
 
 def _real(path: Path, name: str, values: np.ndarray) -> np.ndarray:
@@ -330,8 +330,9 @@ def load_signal_file(
                           "(classes on every node) or sources (the node each signal started at)")
     signals = _check_signals(file, arrays["signals"])
     samples, nodes = signals.shape[:2]
+    names: list[str] = []
     if kinds == ["labels"]:
-        labels = _check_labels(file, arrays["labels"], samples)
+        labels, names = _check_labels(file, arrays["labels"], samples)
     elif kinds == ["targets"]:
         labels = _check_targets(file, arrays["targets"], samples)
     elif kinds == ["node_labels"]:
@@ -356,6 +357,7 @@ def load_signal_file(
         classes=outputs_of(kinds[0], labels),
         native_graph=native,
         name=file.stem,
+        class_names=tuple(names),
     )
 
 

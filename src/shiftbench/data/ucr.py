@@ -84,7 +84,7 @@ def ucr(name: str = "GunPoint", seed: int = 0, val_fraction: float = 0.2) -> Dat
     train_series, train_labels = _load_split(name, "train", folder)
     test_series, test_labels = _load_split(name, "test", folder)
     series = np.concatenate([train_series, test_series]).transpose(0, 2, 1).astype(np.float32)  # (samples, channels, steps) -> (samples, steps, channels)
-    labels, _ = encode_labels(np.concatenate([train_labels, test_labels]))
+    labels, names = encode_labels(np.concatenate([train_labels, test_labels]))
 
     archive_train = np.arange(len(train_labels))
     if val_fraction == 0:  # the whole archive train split is fitted on, as the archive's papers did
@@ -101,6 +101,7 @@ def ucr(name: str = "GunPoint", seed: int = 0, val_fraction: float = 0.2) -> Dat
         classes=int(labels.max()) + 1,
         native_graph=replace(line_graph(series.shape[1]), name="time_line"),
         name=name,
+        class_names=tuple(str(label) for label in names),
     )
 
 
