@@ -421,8 +421,7 @@ def write_report(
     text = format_terminal(shown)
     head = _constants_line(constants)
     written = ", ".join(figure.name for figure in figures)
-    said = f"graph check: {check[2]}" if check else ""
-    return "\n".join(filter(None, [outcomes, said, head, text, *notes, f"plots: {written}" if written else ""]))
+    return "\n".join(filter(None, [outcomes, head, text, *notes, f"plots: {written}" if written else ""]))
 
 
 def with_per_class(table: pd.DataFrame, paths: pd.Series, records: pd.DataFrame) -> pd.DataFrame:
