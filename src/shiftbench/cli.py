@@ -20,7 +20,7 @@ from shiftbench.preflight import override_arguments, preflight
 from shiftbench.config_store import register_defaults
 from shiftbench.records import MANIFEST_FILE as MANIFEST
 from shiftbench.registry import TASKS
-from shiftbench.runtime import keep_freed_memory
+from shiftbench.runtime import catch_interrupts, keep_freed_memory
 
 # The groups' options come from the components' schemas (see config_store); registered on import,
 # before Hydra composes anything.
@@ -73,6 +73,7 @@ def _job(config: DictConfig) -> dict:
 
 
 def main() -> None:
+    catch_interrupts()
     if not CONFIG_DIR.is_dir():
         fail(f"config folder {CONFIG_DIR} not found; install shiftbench from its source tree (pip install -e .)")
     if any(argument in ("-h", "--help") for argument in sys.argv[1:]):
@@ -164,6 +165,7 @@ def claims_main(arguments: list[str] | None = None) -> None:
 
 
 def decide_main(arguments: list[str] | None = None) -> None:
+    catch_interrupts()
     """``shiftbench-decide [KEY=VALUE ...]``: the decision study (see :mod:`decision`)."""
     quiet_on_closed_pipe()
     arguments = sys.argv[1:] if arguments is None else arguments

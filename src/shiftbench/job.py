@@ -35,7 +35,7 @@ from shiftbench.records import (
     FINAL_STATUSES, Record, config_hash, versions, write_curve, write_predictions, write_record, write_weights,
 )
 from shiftbench.registry import FAMILIES, TASKS
-from shiftbench.runtime import available_memory_bytes, peak_memory_mb, start_peak_memory
+from shiftbench.runtime import available_memory_bytes, peak_memory_mb, raise_if_interrupted, start_peak_memory
 from shiftbench.store import (
     claim, clear_torn_writes, finished_record, heartbeat, home_of, note_launch, release, require_plain_home, require_writable_home,
     set_aside,
@@ -300,6 +300,7 @@ def run_job(
     (it is not trained twice); an interrupted one resumes from its checkpoint. ``label`` (a
     sweep's ``job 3``) starts the job's epoch lines.
     """
+    raise_if_interrupted()
     run = validate(config)
     plain = job_content(run)
     digest = config_hash(plain)

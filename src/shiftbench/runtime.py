@@ -108,3 +108,28 @@ def peak_memory_mb() -> float:
     import resource
 
     return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+
+
+_interrupted = False
+
+
+def catch_interrupts() -> None:
+    """Ctrl-C as a KeyboardInterrupt that is also remembered: CPython swallows an exception
+    raised while a finalizer (``__del__``, a weakref callback) runs, so the interrupt could be
+    lost; :func:`raise_if_interrupted` at each epoch and each job raises it again. Only where
+    SIGINT is at Python's default (a worker that ignores it stays ignoring)."""
+    import signal
+
+    def interrupted(signum: int, frame: object) -> None:
+        global _interrupted
+        _interrupted = True
+        raise KeyboardInterrupt
+
+    if signal.getsignal(signal.SIGINT) is signal.default_int_handler:
+        signal.signal(signal.SIGINT, interrupted)
+
+
+def raise_if_interrupted() -> None:
+    """Raise KeyboardInterrupt when Ctrl-C came and its first raise was swallowed."""
+    if _interrupted:
+        raise KeyboardInterrupt

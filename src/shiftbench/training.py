@@ -25,6 +25,7 @@ from shiftbench.checkpoints import (
 from shiftbench.config import TrainConfig, batch_size_for
 from shiftbench.data.dataset import Dataset
 from shiftbench.registry import Task
+from shiftbench.runtime import raise_if_interrupted
 from shiftbench.task import CLASSIFICATION
 from shiftbench.training_result import TrainingResult
 
@@ -287,6 +288,7 @@ def train(
 
     status = "completed"
     for epoch in range(state.first_epoch, config.epochs + 1):
+        raise_if_interrupted()
         epoch_started = time.perf_counter()
         train_loss, train_metric, timed_out = run_epoch(
             model, optimizer, train_x, train_y, config, state.order_generator, task, out_of_time
